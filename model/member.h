@@ -1,0 +1,127 @@
+// The member description: geometry, section, material, end conditions and
+// sensors of one slender member (tie-rod, hanger, truss diagonal, strut).
+//
+// This is the in-memory form of the FORMATS.md section 1 JSON document; the
+// JSON mapping and its validation live in server/member_json.h. model/ only
+// states the preconditions its functions need (see ValidateMember).
+//
+// Units: SI throughout, suffix on every field. Coordinates: x runs along the
+// member from the left end (x = 0) to the right end (x = length_m). The
+// transverse displacement w is positive upwards for vertical vibration and
+// towards the observer's right-hand side for lateral vibration (the sign of a
+// mode shape is a normalisation choice, see modal.h).
+// Sign convention: axial force N is positive in tension.
+#pragma once
+
+#include <optional>
+#include <string>
+#include <vector>
+
+#include "model/status.h"
+
+namespace taut::model {
+
+// Plane of the sensed vibration.
+enum class Direction {
+  kVertical,  // in the vertical plane containing the member: sag couples
+  kLateral,   // out of that plane: no sag term
+};
+
+const char* ToString(Direction d);
+
+struct Section {
+  enum class Shape { kCircle, kRectangle, kGeneral };
+  Shape shape = Shape::kCircle;
+  double diameter_m = 0.0;        // kCircle
+  double width_m = 0.0;           // kRectangle: out of the vertical plane
+  double depth_m = 0.0;           // kRectangle: in the vertical plane
+  double area_m2 = 0.0;           // kGeneral
+  double second_moment_m4 = 0.0;  // kGeneral: same for both planes
+
+  // Cross-section area A [m^2].
+  double Area() const;
+  // Second moment of area I [m^4] for bending in the plane `d`. For a
+  // rectangle, depth_m is the dimension in the vertical plane (FORMATS.md:
+  // "in the plane of the sensed vibration"; when a member has sensors in
+  // both planes, depth is taken in the vertical one), so
+  // I_vertical = width depth^3 / 12 and I_lateral = depth width^3 / 12.
+  double SecondMoment(Direction d) const;
+};
+
+// Rotational restraint of one end.
+struct RotationEnd {
+  enum class Kind {
+    kPinned,   // no restraint
+    kClamped,  // full restraint
+    kElastic,  // unknown restraint, described by a fixity factor r in [0, 1]
+    kSpring,   // known rotational spring of stiffness_nm_per_rad
+  };
+  Kind kind = Kind::kElastic;
+  double stiffness_nm_per_rad = 0.0;  // kSpring only, > 0
+};
+
+// Axial restraint of the two ends together (what the member's length change
+// works against when it stretches).
+struct AxialEnds {
+  enum class Kind {
+    kFixed,   // immovable ends: the member's own EA/L resists stretching
+    kFree,    // no membrane stretching: the axial force stays constant
+    kSpring,  // supports of series stiffness stiffness_n_per_m
+  };
+  Kind kind = Kind::kFixed;
+  double stiffness_n_per_m = 0.0;  // kSpring only, > 0
+};
+
+struct Sensor {
+  std::string channel;      // column name in the record CSV
+  double position_m = 0.0;  // from the left end, strictly inside (0, L)
+  double mass_kg = 0.0;     // sensor and mount, a point mass
+  Direction direction = Direction::kVertical;
+};
+
+struct Member {
+  std::string id;
+  double length_m = 0.0;         // free length between the end supports
+  double inclination_deg = 0.0;  // axis to the horizontal, 0..90
+  Section section;
+  double elastic_modulus_pa = 0.0;  // nominal E
+  double density_kg_m3 = 0.0;
+  RotationEnd left;
+  RotationEnd right;
+  AxialEnds axial;
+  std::vector<Sensor> sensors;
+  std::optional<double> design_axial_force_n;  // tension > 0
+
+  // m = density A [kg/m].
+  double MassPerLength_kg_m() const;
+  // Nominal EI [N m^2] in the plane `d`, from E and the section.
+  double NominalBendingStiffness_nm2(Direction d) const;
+  // EA [N].
+  double AxialRigidity_n() const;
+  // Slenderness L / r_g with r_g = sqrt(I/A) in the plane `d`.
+  double Slenderness(Direction d) const;
+  // Number of sensors in the plane `d`.
+  int SensorCount(Direction d) const;
+};
+
+// Checks the preconditions every model function relies on (positive length,
+// section and material, sensors strictly inside the span, springs > 0).
+// Returns kInvalidArgument naming the field and its value. The JSON reader
+// checks the same rules with JSON paths; this is the guard for callers that
+// build a Member in code.
+Status ValidateMember(const Member& member);
+
+// Fixity factor of a rotational end spring (Monforton and Wu, 1963):
+//   r = 1 / (1 + 3 EI / (k L)),  0 = pinned, 1 = clamped.
+// Preconditions: k >= 0, EI > 0, L > 0. k = +inf gives 1.
+double FixityFromStiffness(double k_nm_per_rad, double ei_nm2, double length_m);
+
+// Inverse of FixityFromStiffness: k = 3 EI r / (L (1 - r)).
+// r is clamped to [0, 1 - kMaxFixityGap] so that r = 1 maps to a large but
+// finite spring (3e9 EI/L): the frequency error against a true clamp is of
+// order EI/(kL) ~ 3e-10, far below any test tolerance, and the stiffness
+// matrix stays well conditioned (ratio to element stiffness < 1e7).
+inline constexpr double kMaxFixityGap = 1e-9;
+double StiffnessFromFixity(double r, double ei_nm2, double length_m);
+
+}  // namespace taut::model

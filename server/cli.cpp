@@ -1,0 +1,37 @@
+#include "server/cli.h"
+
+#include <exception>
+#include <ostream>
+
+namespace taut::server {
+
+int Main(int argc, const char* const* argv, std::ostream& out, std::ostream& err) {
+  CLI::App app{"taut: axial force, bending stiffness and end restraint of slender members from vibration"};
+  app.require_subcommand(1);
+  app.set_version_flag("--version", "taut 0.1.0");
+  CliContext ctx{&out, &err, 0};
+  RegisterModesCommand(app, &ctx);
+  try {
+    app.parse(argc, argv);
+  } catch (const CLI::CallForHelp&) {
+    out << app.help();
+    return 0;
+  } catch (const CLI::CallForAllHelp&) {
+    out << app.help("", CLI::AppFormatMode::All);
+    return 0;
+  } catch (const CLI::CallForVersion&) {
+    out << app.version() << "\n";
+    return 0;
+  } catch (const CLI::ParseError& e) {
+    err << "taut: " << e.what() << " (see taut --help)\n";
+    return 2;
+  } catch (const std::exception& e) {
+    // Subcommands report data errors through ctx; anything landing here is
+    // unexpected, but the person still gets one line and a non-zero code.
+    err << "taut: internal error: " << e.what() << "\n";
+    return 1;
+  }
+  return ctx.exit_code;
+}
+
+}  // namespace taut::server

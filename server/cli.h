@@ -1,0 +1,25 @@
+// The `taut` command line: one executable, one subcommand per job.
+//
+// Each subcommand lives in its own cli_<name>.cpp and registers itself with
+// Register<Name>Command. Output goes to `out` (results) and `err` (one line
+// per error); the exit code is 0 on a result, 1 when the inputs are unusable
+// (bad file, member at buckling, ...), 2 for a malformed command line.
+#pragma once
+
+#include <CLI/CLI.hpp>
+#include <iosfwd>
+
+namespace taut::server {
+
+struct CliContext {
+  std::ostream* out;  // not owned; must outlive the command run
+  std::ostream* err;  // not owned
+  int exit_code = 0;
+};
+
+void RegisterModesCommand(CLI::App& app, CliContext* ctx);
+
+// Parses argv and runs the chosen subcommand; returns the exit code.
+int Main(int argc, const char* const* argv, std::ostream& out, std::ostream& err);
+
+}  // namespace taut::server

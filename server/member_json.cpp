@@ -1,0 +1,334 @@
+#include "server/member_json.h"
+
+#include <cmath>
+#include <fstream>
+#include <regex>
+#include <set>
+#include <sstream>
+
+namespace taut::server {
+
+namespace {
+
+using model::AxialEnds;
+using model::Direction;
+using model::Member;
+using model::RotationEnd;
+using model::Section;
+using nlohmann::json;
+
+// Thrown inside this file only, turned into a Status by the entry points.
+struct PathError {
+  std::string message;
+};
+
+[[noreturn]] void Fail(const std::string& path, const std::string& rule) {
+  throw PathError{path + ": " + rule};
+}
+
+std::string Show(const json& v) {
+  std::string s = v.dump();
+  if (s.size() > 40) s = s.substr(0, 37) + "...";
+  return s;
+}
+
+void RequireObject(const json& j, const std::string& path) {
+  if (!j.is_object()) Fail(path, "must be a JSON object, got " + Show(j));
+}
+
+// Rejects keys of `j` outside `allowed`.
+void OnlyKeys(const json& j, const std::string& path, std::initializer_list<const char*> allowed) {
+  for (auto it = j.begin(); it != j.end(); ++it) {
+    bool ok = false;
+    for (const char* a : allowed) ok = ok || it.key() == a;
+    if (!ok) {
+      std::string list;
+      for (const char* a : allowed) list += std::string(list.empty() ? "" : ", ") + a;
+      Fail(path + "." + it.key(), "unknown key (allowed here: " + list + ")");
+    }
+  }
+}
+
+const json& Required(const json& j, const std::string& path, const char* key) {
+  auto it = j.find(key);
+  if (it == j.end()) Fail(path + "." + key, "required key is missing");
+  return *it;
+}
+
+double Number(const json& v, const std::string& path) {
+  if (!v.is_number()) Fail(path, "must be a number, got " + Show(v));
+  const double x = v.get<double>();
+  if (!std::isfinite(x)) Fail(path, "must be finite");
+  return x;
+}
+
+std::string Str(const json& v, const std::string& path) {
+  if (!v.is_string()) Fail(path, "must be a string, got " + Show(v));
+  return v.get<std::string>();
+}
+
+std::string Fmt(double x) {
+  std::ostringstream os;
+  os << x;
+  return os.str();
+}
+
+double Positive(const json& v, const std::string& path) {
+  const double x = Number(v, path);
+  if (!(x > 0.0)) Fail(path, "= " + Fmt(x) + ": must be > 0");
+  return x;
+}
+
+Section ReadSection(const json& j, const std::string& path) {
+  RequireObject(j, path);
+  const std::string shape = Str(Required(j, path, "shape"), path + ".shape");
+  Section s;
+  if (shape == "circle") {
+    OnlyKeys(j, path, {"shape", "diameter_m"});
+    s.shape = Section::Shape::kCircle;
+    s.diameter_m = Positive(Required(j, path, "diameter_m"), path + ".diameter_m");
+  } else if (shape == "rectangle") {
+    OnlyKeys(j, path, {"shape", "width_m", "depth_m"});
+    s.shape = Section::Shape::kRectangle;
+    s.width_m = Positive(Required(j, path, "width_m"), path + ".width_m");
+    s.depth_m = Positive(Required(j, path, "depth_m"), path + ".depth_m");
+  } else if (shape == "general") {
+    OnlyKeys(j, path, {"shape", "area_m2", "second_moment_m4"});
+    s.shape = Section::Shape::kGeneral;
+    s.area_m2 = Positive(Required(j, path, "area_m2"), path + ".area_m2");
+    s.second_moment_m4 = Positive(Required(j, path, "second_moment_m4"), path + ".second_moment_m4");
+  } else {
+    Fail(path + ".shape", "unknown section shape \"" + shape + "\" (use circle, rectangle or general)");
+  }
+  return s;
+}
+
+RotationEnd ReadRotation(const json& j, const std::string& path) {
+  RotationEnd e;
+  if (j.is_string()) {
+    const std::string k = j.get<std::string>();
+    if (k == "pinned") {
+      e.kind = RotationEnd::Kind::kPinned;
+    } else if (k == "clamped") {
+      e.kind = RotationEnd::Kind::kClamped;
+    } else if (k == "elastic") {
+      e.kind = RotationEnd::Kind::kElastic;
+    } else {
+      Fail(path,
+           "unknown rotation \"" + k + "\" (use pinned, clamped, elastic or {\"stiffness_nm_per_rad\": k})");
+    }
+    return e;
+  }
+  if (!j.is_object()) Fail(path, "must be a string or an object, got " + Show(j));
+  OnlyKeys(j, path, {"stiffness_nm_per_rad"});
+  e.kind = RotationEnd::Kind::kSpring;
+  e.stiffness_nm_per_rad =
+      Positive(Required(j, path, "stiffness_nm_per_rad"), path + ".stiffness_nm_per_rad");
+  return e;
+}
+
+RotationEnd ReadEnd(const json& j, const std::string& path) {
+  RequireObject(j, path);
+  OnlyKeys(j, path, {"rotation"});
+  auto it = j.find("rotation");
+  return it == j.end() ? RotationEnd{} : ReadRotation(*it, path + ".rotation");
+}
+
+AxialEnds ReadAxial(const json& j, const std::string& path) {
+  AxialEnds a;
+  if (j.is_string()) {
+    const std::string k = j.get<std::string>();
+    if (k == "fixed") {
+      a.kind = AxialEnds::Kind::kFixed;
+    } else if (k == "free") {
+      a.kind = AxialEnds::Kind::kFree;
+    } else {
+      Fail(path, "unknown axial end \"" + k + "\" (use fixed, free or {\"stiffness_n_per_m\": k})");
+    }
+    return a;
+  }
+  if (!j.is_object()) Fail(path, "must be a string or an object, got " + Show(j));
+  OnlyKeys(j, path, {"stiffness_n_per_m"});
+  a.kind = AxialEnds::Kind::kSpring;
+  a.stiffness_n_per_m = Positive(Required(j, path, "stiffness_n_per_m"), path + ".stiffness_n_per_m");
+  return a;
+}
+
+void ReadMember(const json& j, Member* m, const MemberReadOptions& options) {
+  const std::string root = "$";
+  RequireObject(j, root);
+  OnlyKeys(j, root,
+           {"id", "length_m", "inclination_deg", "section", "material", "ends", "sensors",
+            "design_axial_force_n"});
+  *m = Member{};
+  if (auto it = j.find("id"); it != j.end()) {
+    m->id = Str(*it, "$.id");
+    static const std::regex kId("[A-Za-z0-9._-]{1,64}");
+    if (!std::regex_match(m->id, kId)) Fail("$.id", "\"" + m->id + "\" must match [A-Za-z0-9._-]{1,64}");
+  } else if (options.require_id) {
+    Fail("$.id", "required key is missing");
+  }
+  m->length_m = Positive(Required(j, root, "length_m"), "$.length_m");
+  if (auto it = j.find("inclination_deg"); it != j.end()) {
+    m->inclination_deg = Number(*it, "$.inclination_deg");
+    if (m->inclination_deg < 0.0 || m->inclination_deg > 90.0) {
+      Fail("$.inclination_deg", "= " + Fmt(m->inclination_deg) + ": must be in [0, 90]");
+    }
+  }
+  m->section = ReadSection(Required(j, root, "section"), "$.section");
+  {
+    const json& mat = Required(j, root, "material");
+    RequireObject(mat, "$.material");
+    OnlyKeys(mat, "$.material", {"elastic_modulus_pa", "density_kg_m3"});
+    m->elastic_modulus_pa =
+        Positive(Required(mat, "$.material", "elastic_modulus_pa"), "$.material.elastic_modulus_pa");
+    m->density_kg_m3 = Positive(Required(mat, "$.material", "density_kg_m3"), "$.material.density_kg_m3");
+  }
+  if (auto it = j.find("ends"); it != j.end()) {
+    RequireObject(*it, "$.ends");
+    OnlyKeys(*it, "$.ends", {"left", "right", "axial"});
+    if (auto e = it->find("left"); e != it->end()) m->left = ReadEnd(*e, "$.ends.left");
+    if (auto e = it->find("right"); e != it->end()) m->right = ReadEnd(*e, "$.ends.right");
+    if (auto e = it->find("axial"); e != it->end()) m->axial = ReadAxial(*e, "$.ends.axial");
+  }
+  if (auto it = j.find("sensors"); it != j.end()) {
+    if (!it->is_array()) Fail("$.sensors", "must be an array, got " + Show(*it));
+    std::set<std::string> seen;
+    static const std::regex kChannel("[A-Za-z0-9_]{1,32}");
+    for (size_t i = 0; i < it->size(); ++i) {
+      const json& s = (*it)[i];
+      const std::string path = "$.sensors[" + std::to_string(i) + "]";
+      RequireObject(s, path);
+      OnlyKeys(s, path, {"channel", "position_m", "mass_kg", "direction"});
+      model::Sensor sensor;
+      sensor.channel = Str(Required(s, path, "channel"), path + ".channel");
+      if (!std::regex_match(sensor.channel, kChannel)) {
+        Fail(path + ".channel", "\"" + sensor.channel + "\" must match [A-Za-z0-9_]{1,32}");
+      }
+      if (!seen.insert(sensor.channel).second) {
+        Fail(path + ".channel", "\"" + sensor.channel + "\" is used by an earlier sensor");
+      }
+      sensor.position_m = Number(Required(s, path, "position_m"), path + ".position_m");
+      if (!(sensor.position_m > 0.0 && sensor.position_m < m->length_m)) {
+        Fail(path + ".position_m", "= " + Fmt(sensor.position_m) +
+                                       ": must lie strictly inside the span (0, " + Fmt(m->length_m) + ") m");
+      }
+      if (auto mk = s.find("mass_kg"); mk != s.end()) {
+        sensor.mass_kg = Number(*mk, path + ".mass_kg");
+        if (sensor.mass_kg < 0.0) Fail(path + ".mass_kg", "= " + Fmt(sensor.mass_kg) + ": must be >= 0");
+      }
+      if (auto d = s.find("direction"); d != s.end()) {
+        const std::string dir = Str(*d, path + ".direction");
+        if (dir == "vertical") {
+          sensor.direction = Direction::kVertical;
+        } else if (dir == "lateral") {
+          sensor.direction = Direction::kLateral;
+        } else {
+          Fail(path + ".direction", "unknown direction \"" + dir + "\" (use vertical or lateral)");
+        }
+      }
+      m->sensors.push_back(sensor);
+    }
+  }
+  if (auto it = j.find("design_axial_force_n"); it != j.end()) {
+    m->design_axial_force_n = Number(*it, "$.design_axial_force_n");
+  }
+}
+
+}  // namespace
+
+Status MemberFromJson(const json& j, Member* member, MemberReadOptions options) {
+  try {
+    ReadMember(j, member, options);
+  } catch (const PathError& e) {
+    return Status::InvalidArgument(e.message);
+  }
+  // Belt and braces: the model's own preconditions must hold for anything
+  // the reader accepted.
+  return model::ValidateMember(*member);
+}
+
+Status ParseMember(const std::string& text, Member* member, MemberReadOptions options) {
+  json j;
+  try {
+    j = json::parse(text);
+  } catch (const json::parse_error& e) {
+    // Convert the byte offset to line:column for the person fixing the file.
+    size_t line = 1, col = 1;
+    const size_t stop = std::min(e.byte == 0 ? 0 : e.byte - 1, text.size());
+    for (size_t i = 0; i < stop; ++i) {
+      if (text[i] == '\n') {
+        ++line;
+        col = 1;
+      } else {
+        ++col;
+      }
+    }
+    std::string what = e.what();
+    if (auto p = what.find("syntax error"); p != std::string::npos) what = what.substr(p);
+    return Status::InvalidArgument("line " + std::to_string(line) + ", column " + std::to_string(col) +
+                                   ": not valid JSON (" + what + ")");
+  }
+  return MemberFromJson(j, member, options);
+}
+
+Status LoadMemberFile(const std::string& path, Member* member, MemberReadOptions options) {
+  std::ifstream in(path, std::ios::binary);
+  if (!in) return Status::InvalidArgument(path + ": cannot open member file");
+  std::ostringstream buf;
+  buf << in.rdbuf();
+  Status s = ParseMember(buf.str(), member, options);
+  if (!s.ok()) s.message = path + ": " + s.message;
+  return s;
+}
+
+json MemberToJson(const Member& m) {
+  json j;
+  if (!m.id.empty()) j["id"] = m.id;
+  j["length_m"] = m.length_m;
+  j["inclination_deg"] = m.inclination_deg;
+  switch (m.section.shape) {
+    case Section::Shape::kCircle:
+      j["section"] = {{"shape", "circle"}, {"diameter_m", m.section.diameter_m}};
+      break;
+    case Section::Shape::kRectangle:
+      j["section"] = {{"shape", "rectangle"}, {"width_m", m.section.width_m}, {"depth_m", m.section.depth_m}};
+      break;
+    case Section::Shape::kGeneral:
+      j["section"] = {{"shape", "general"},
+                      {"area_m2", m.section.area_m2},
+                      {"second_moment_m4", m.section.second_moment_m4}};
+      break;
+  }
+  j["material"] = {{"elastic_modulus_pa", m.elastic_modulus_pa}, {"density_kg_m3", m.density_kg_m3}};
+  auto rotation = [](const RotationEnd& e) -> json {
+    switch (e.kind) {
+      case RotationEnd::Kind::kPinned:
+        return "pinned";
+      case RotationEnd::Kind::kClamped:
+        return "clamped";
+      case RotationEnd::Kind::kElastic:
+        return "elastic";
+      case RotationEnd::Kind::kSpring:
+        return {{"stiffness_nm_per_rad", e.stiffness_nm_per_rad}};
+    }
+    return "elastic";
+  };
+  json axial = "fixed";
+  if (m.axial.kind == AxialEnds::Kind::kFree) axial = "free";
+  if (m.axial.kind == AxialEnds::Kind::kSpring) axial = {{"stiffness_n_per_m", m.axial.stiffness_n_per_m}};
+  j["ends"] = {{"left", {{"rotation", rotation(m.left)}}},
+               {"right", {{"rotation", rotation(m.right)}}},
+               {"axial", axial}};
+  j["sensors"] = json::array();
+  for (const auto& s : m.sensors) {
+    j["sensors"].push_back({{"channel", s.channel},
+                            {"position_m", s.position_m},
+                            {"mass_kg", s.mass_kg},
+                            {"direction", model::ToString(s.direction)}});
+  }
+  if (m.design_axial_force_n) j["design_axial_force_n"] = *m.design_axial_force_n;
+  return j;
+}
+
+}  // namespace taut::server
