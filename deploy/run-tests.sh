@@ -14,3 +14,13 @@ cmake -S . -B build -G Ninja -DCMAKE_BUILD_TYPE=Release -DTAUT_WERROR=ON
 cmake --build build -j"$JOBS"
 ctest --test-dir build --output-on-failure -j"$JOBS" --timeout 900
 bash deploy/check-format.sh
+
+# Second pass under AddressSanitizer + UndefinedBehaviorSanitizer (no
+# benchmarks). TAUT_SKIP_SANITIZE=1 skips it for a quick local run.
+if [ "${TAUT_SKIP_SANITIZE:-0}" != "1" ]; then
+  cmake -S . -B build-asan -G Ninja -DCMAKE_BUILD_TYPE=RelWithDebInfo -DTAUT_WERROR=ON \
+    -DTAUT_SANITIZE=ON -DTAUT_BUILD_BENCH=OFF
+  cmake --build build-asan -j"$JOBS"
+  ASAN_OPTIONS=detect_leaks=1:abort_on_error=1 UBSAN_OPTIONS=print_stacktrace=1:halt_on_error=1 \
+    ctest --test-dir build-asan --output-on-failure -j"$JOBS" --timeout 1800
+fi
