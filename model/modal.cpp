@@ -62,38 +62,6 @@ constexpr int kDenseDofLimit = 24;
 constexpr double kLanczosTolerance = 1e-11;
 constexpr int kLanczosMaxRestarts = 1000;
 
-double ResolveFixity(const std::optional<double>& override_r, const RotationEnd& end, double ei,
-                     double length, double* k) {
-  double r = 0.0;
-  if (override_r) {
-    r = *override_r;
-    *k = StiffnessFromFixity(r, ei, length);
-    return r;
-  }
-  switch (end.kind) {
-    case RotationEnd::Kind::kPinned:
-      r = 0.0;
-      break;
-    case RotationEnd::Kind::kClamped:
-      r = 1.0;
-      break;
-    case RotationEnd::Kind::kElastic:
-      r = kDefaultElasticFixity;
-      break;
-    case RotationEnd::Kind::kSpring:
-      *k = end.stiffness_nm_per_rad;
-      return FixityFromStiffness(end.stiffness_nm_per_rad, ei, length);
-  }
-  *k = StiffnessFromFixity(r, ei, length);
-  return r;
-}
-
-double SeriesAxialStiffness(double ea_over_l, double k_support) {
-  if (std::isinf(k_support)) return ea_over_l;
-  if (k_support <= 0.0) return 0.0;
-  return 1.0 / (1.0 / ea_over_l + 1.0 / k_support);
-}
-
 }  // namespace
 
 ModalModel::ModalModel(const Member& member, Direction direction, ModalOptions options)
@@ -101,44 +69,11 @@ ModalModel::ModalModel(const Member& member, Direction direction, ModalOptions o
   matrices_ = AssembleBeam(member_, mesh_);
 }
 
-Status ModalModel::Resolve(const ModalParameters& p, Resolved* out) const {
-  const double length = member_.length_m;
-  out->ei = p.bending_stiffness_nm2.value_or(member_.NominalBendingStiffness_nm2(direction_));
-  if (!(std::isfinite(out->ei) && out->ei > 0.0)) {
-    return Status::InvalidArgument("bending stiffness EI = " + std::to_string(out->ei) +
-                                   " N m^2: must be > 0");
-  }
-  if (!std::isfinite(p.axial_force_n)) {
-    return Status::InvalidArgument("axial force must be finite");
-  }
-  for (const auto* r : {&p.fixity_left, &p.fixity_right}) {
-    if (*r && !(**r >= 0.0 && **r <= 1.0)) {
-      return Status::InvalidArgument(std::string(r == &p.fixity_left ? "fixity_left" : "fixity_right") +
-                                     " = " + std::to_string(**r) + ": must be in [0, 1]");
-    }
-  }
-  out->r_left = ResolveFixity(p.fixity_left, member_.left, out->ei, length, &out->k_left);
-  out->r_right = ResolveFixity(p.fixity_right, member_.right, out->ei, length, &out->k_right);
-
-  const double ea_over_l = member_.AxialRigidity_n() / length;
-  out->k_axial = 0.0;
-  if (direction_ == Direction::kVertical) {
-    if (p.axial_support_stiffness_n_per_m) {
-      out->k_axial = SeriesAxialStiffness(ea_over_l, *p.axial_support_stiffness_n_per_m);
-    } else if (member_.axial.kind == AxialEnds::Kind::kFixed) {
-      out->k_axial = ea_over_l;
-    } else if (member_.axial.kind == AxialEnds::Kind::kSpring) {
-      out->k_axial = SeriesAxialStiffness(ea_over_l, member_.axial.stiffness_n_per_m);
-    }
-  }
-  out->gravity = p.gravity_m_s2 * std::cos(member_.inclination_deg * std::numbers::pi / 180.0);
-  return Status::Ok();
-}
-
 Status ModalModel::CriticalCompression(const ModalParameters& params, double* n_cr) const {
-  Resolved r;
-  if (Status s = Resolve(params, &r); !s.ok()) return s;
-  const SparseMatrix a = r.ei * matrices_.K_b + r.k_left * matrices_.S_left + r.k_right * matrices_.S_right;
+  ResolvedParameters r;
+  if (Status s = ResolveParameters(member_, direction_, params, &r); !s.ok()) return s;
+  const SparseMatrix a = r.ei_nm2 * matrices_.K_b + r.k_left_nm_per_rad * matrices_.S_left +
+                         r.k_right_nm_per_rad * matrices_.S_right;
   // G is positive definite on the free DOFs (w' = 0 with w = 0 at the ends
   // forces w = 0), so (A, G) is a definite pencil.
   Eigen::GeneralizedSelfAdjointEigenSolver<Eigen::MatrixXd> es(
@@ -154,12 +89,12 @@ Status ModalModel::Solve(const ModalParameters& params, int num_modes, ModalResu
     return Status::InvalidArgument("number of modes = " + std::to_string(num_modes) + ": must be in [1, " +
                                    std::to_string(n / 2) + "] for this mesh");
   }
-  Resolved r;
-  if (Status s = Resolve(params, &r); !s.ok()) return s;
+  ResolvedParameters r;
+  if (Status s = ResolveParameters(member_, direction_, params, &r); !s.ok()) return s;
 
   // K_0: tangent stiffness without the sag term.
-  const SparseMatrix k0 = r.ei * matrices_.K_b + params.axial_force_n * matrices_.G +
-                          r.k_left * matrices_.S_left + r.k_right * matrices_.S_right;
+  const SparseMatrix k0 = r.ei_nm2 * matrices_.K_b + params.axial_force_n * matrices_.G +
+                          r.k_left_nm_per_rad * matrices_.S_left + r.k_right_nm_per_rad * matrices_.S_right;
   BandedLdlt ldlt(k0);
   const bool factor_ok = ldlt.info() == Eigen::Success;
   // Sylvester's law of inertia: K_0 is positive definite iff every pivot of
@@ -171,7 +106,7 @@ Status ModalModel::Solve(const ModalParameters& params, int num_modes, ModalResu
     std::ostringstream os;
     os << "axial force N = " << params.axial_force_n << " N is at or beyond the buckling load";
     if (CriticalCompression(params, &n_cr).ok()) os << " (critical compression " << n_cr << " N)";
-    os << " for EI = " << r.ei << " N m^2, fixities " << r.r_left << " / " << r.r_right
+    os << " for EI = " << r.ei_nm2 << " N m^2, fixities " << r.fixity_left << " / " << r.fixity_right
        << ": no real vibration frequencies";
     return Status::Buckled(os.str());
   }
@@ -180,10 +115,10 @@ Status ModalModel::Solve(const ModalParameters& params, int num_modes, ModalResu
   Eigen::VectorXd g = Eigen::VectorXd::Zero(n);
   Eigen::VectorXd w_s = Eigen::VectorXd::Zero(n);
   double c = 0.0;
-  if (r.k_axial > 0.0 && r.gravity > 0.0) {
-    w_s = ldlt.solve(matrices_.weight * r.gravity);
+  if (r.k_axial_n_per_m > 0.0 && r.gravity_normal_m_s2 > 0.0) {
+    w_s = ldlt.solve(matrices_.weight * r.gravity_normal_m_s2);
     g = matrices_.G * w_s;
-    c = r.k_axial;
+    c = r.k_axial_n_per_m;
   }
 
   Eigen::VectorXd eigenvalues;
@@ -215,9 +150,9 @@ Status ModalModel::Solve(const ModalParameters& params, int num_modes, ModalResu
   ModalResult out;
   out.direction = direction_;
   out.node_x_m = mesh_.x_m;
-  out.fixity_left = r.r_left;
-  out.fixity_right = r.r_right;
-  out.bending_stiffness_nm2 = r.ei;
+  out.fixity_left = r.fixity_left;
+  out.fixity_right = r.fixity_right;
+  out.bending_stiffness_nm2 = r.ei_nm2;
   for (size_t i = 0; i < member_.sensors.size(); ++i) {
     if (member_.sensors[i].direction != direction_) continue;
     out.channels.push_back(member_.sensors[i].channel);

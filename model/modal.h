@@ -35,28 +35,10 @@
 
 #include "model/beam_fe.h"
 #include "model/member.h"
+#include "model/parameters.h"
 #include "model/status.h"
 
 namespace taut::model {
-
-// The quantities the estimation varies. Unset optionals take the member's
-// declared values (see ResolveEnds).
-struct ModalParameters {
-  double axial_force_n = 0.0;                   // N, tension > 0
-  std::optional<double> bending_stiffness_nm2;  // EI > 0; default nominal E I
-  // Fixity factors r in [0, 1] (member.h). When set they override the
-  // declared end; when unset: pinned 0, clamped 1, known spring from its
-  // stiffness, elastic kDefaultElasticFixity.
-  std::optional<double> fixity_left;
-  std::optional<double> fixity_right;
-  // Series axial stiffness of the supports [N/m], overriding ends.axial
-  // (identify may estimate it). +inf = fixed, 0 = free.
-  std::optional<double> axial_support_stiffness_n_per_m;
-  // Standard gravity [m/s^2]; 0 switches the sag coupling off.
-  double gravity_m_s2 = 9.80665;
-};
-
-inline constexpr double kDefaultElasticFixity = 0.5;
 
 struct ModalOptions {
   int target_elements = 40;  // mesh density, see BuildMesh
@@ -112,11 +94,6 @@ class ModalModel {
   Direction direction() const { return direction_; }
 
  private:
-  struct Resolved {
-    double ei, r_left, r_right, k_left, k_right, k_axial, gravity;
-  };
-  Status Resolve(const ModalParameters& params, Resolved* out) const;
-
   Member member_;
   Direction direction_;
   Mesh mesh_;
