@@ -58,3 +58,33 @@ void BM_ComputeModesFromScratch(benchmark::State& state) {
 BENCHMARK(BM_ComputeModesFromScratch);
 
 }  // namespace
+
+// Issue target: one transient of 10 s at 2 kHz output with 20 elements,
+// quasi-static-axial form, under 20 ms.
+#include "model/transient.h"
+
+namespace {
+
+void BM_Transient10s2kHz(benchmark::State& state) {
+  const auto m = BenchMember();
+  auto p = BenchParameters();
+  taut::model::TransientOptions o;
+  o.target_elements = 20;
+  o.output_rate_hz = 2000.0;
+  o.duration_s = 10.0;
+  o.damping_ratio = 0.005;
+  const taut::model::TransientModel model(m, Direction::kVertical, p, o);
+  taut::model::TransientLoads loads;
+  loads.impulses = {{2.2, 1.5}};
+  taut::model::TransientResult r;
+  for (auto _ : state) {
+    auto s = model.Run(loads, &r);
+    benchmark::DoNotOptimize(r);
+    if (!s.ok()) state.SkipWithError(s.message.c_str());
+  }
+  state.counters["steps"] = r.steps;
+  state.counters["newton_per_step"] = static_cast<double>(r.newton_iterations) / r.steps;
+}
+BENCHMARK(BM_Transient10s2kHz)->Unit(benchmark::kMillisecond);
+
+}  // namespace

@@ -134,4 +134,36 @@ BeamMatrices AssembleBeam(const Member& member, const Mesh& mesh) {
   return out;
 }
 
+namespace {
+
+// Element index and the four shape-function values at x.
+int ShapeAt(const Mesh& mesh, double x, Eigen::Vector4d* n) {
+  const auto it = std::upper_bound(mesh.x_m.begin(), mesh.x_m.end(), x);
+  int e = static_cast<int>(it - mesh.x_m.begin()) - 1;
+  e = std::clamp(e, 0, mesh.Elements() - 1);
+  const double h = mesh.x_m[e + 1] - mesh.x_m[e];
+  const double s = std::clamp((x - mesh.x_m[e]) / h, 0.0, 1.0);
+  const double s2 = s * s, s3 = s2 * s;
+  *n << 1 - 3 * s2 + 2 * s3, h * (s - 2 * s2 + s3), 3 * s2 - 2 * s3, h * (s3 - s2);
+  return e;
+}
+
+}  // namespace
+
+Eigen::VectorXd PointLoadVector(const Mesh& mesh, double x_m) {
+  Eigen::Vector4d n;
+  const int e = ShapeAt(mesh, x_m, &n);
+  const int nodes = mesh.Nodes();
+  const int dof[4] = {WDof(e, nodes), ThetaDof(e, nodes), WDof(e + 1, nodes), ThetaDof(e + 1, nodes)};
+  Eigen::VectorXd f = Eigen::VectorXd::Zero(mesh.FreeDofs());
+  for (int a = 0; a < 4; ++a) {
+    if (dof[a] >= 0) f[dof[a]] += n[a];
+  }
+  return f;
+}
+
+double InterpolateW(const Mesh& mesh, const Eigen::VectorXd& q, double x_m) {
+  return PointLoadVector(mesh, x_m).dot(q);
+}
+
 }  // namespace taut::model

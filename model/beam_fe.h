@@ -80,4 +80,13 @@ struct BeamMatrices {
 
 BeamMatrices AssembleBeam(const Member& member, const Mesh& mesh);
 
+// Work-equivalent free-DOF load vector of a unit transverse point force at
+// x_m (0 <= x_m <= L): the Hermite shape functions of the element holding
+// x_m evaluated there, N = (1 - 3s^2 + 2s^3, h(s - 2s^2 + s^3), 3s^2 - 2s^3,
+// h(s^3 - s^2)) with s = (x - x_a)/h (Cook et al. 2002, eq. 2.3-4).
+Eigen::VectorXd PointLoadVector(const Mesh& mesh, double x_m);
+
+// Interpolated w at x_m from the free-DOF vector `q` (same shape functions).
+double InterpolateW(const Mesh& mesh, const Eigen::VectorXd& q, double x_m);
+
 }  // namespace taut::model
