@@ -162,6 +162,29 @@ Eigen::VectorXd PointLoadVector(const Mesh& mesh, double x_m) {
   return f;
 }
 
+Eigen::VectorXd DistributedLoadVector(const Mesh& mesh, const std::function<double(double)>& q) {
+  // 5-point Gauss-Legendre on [0, 1] (Abramowitz and Stegun 1964, Table 25.4).
+  static constexpr double kX[5] = {0.04691007703066800, 0.2307653449471585, 0.5, 0.7692346550528415,
+                                   0.9530899229693320};
+  static constexpr double kW[5] = {0.1184634425280945, 0.2393143352496832, 0.2844444444444444,
+                                   0.2393143352496832, 0.1184634425280945};
+  Eigen::VectorXd f = Eigen::VectorXd::Zero(mesh.FreeDofs());
+  const int nodes = mesh.Nodes();
+  for (int e = 0; e < mesh.Elements(); ++e) {
+    const double h = mesh.x_m[e + 1] - mesh.x_m[e];
+    const int dof[4] = {WDof(e, nodes), ThetaDof(e, nodes), WDof(e + 1, nodes), ThetaDof(e + 1, nodes)};
+    for (int g = 0; g < 5; ++g) {
+      const double s = kX[g], s2 = s * s, s3 = s2 * s;
+      const double n[4] = {1 - 3 * s2 + 2 * s3, h * (s - 2 * s2 + s3), 3 * s2 - 2 * s3, h * (s3 - s2)};
+      const double qh = kW[g] * h * q(mesh.x_m[e] + s * h);
+      for (int a = 0; a < 4; ++a) {
+        if (dof[a] >= 0) f[dof[a]] += qh * n[a];
+      }
+    }
+  }
+  return f;
+}
+
 double InterpolateW(const Mesh& mesh, const Eigen::VectorXd& q, double x_m) {
   return PointLoadVector(mesh, x_m).dot(q);
 }

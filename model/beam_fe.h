@@ -26,6 +26,7 @@
 
 #include <Eigen/Core>
 #include <Eigen/SparseCore>
+#include <functional>
 #include <vector>
 
 #include "model/member.h"
@@ -85,6 +86,10 @@ BeamMatrices AssembleBeam(const Member& member, const Mesh& mesh);
 // x_m evaluated there, N = (1 - 3s^2 + 2s^3, h(s - 2s^2 + s^3), 3s^2 - 2s^3,
 // h(s^3 - s^2)) with s = (x - x_a)/h (Cook et al. 2002, eq. 2.3-4).
 Eigen::VectorXd PointLoadVector(const Mesh& mesh, double x_m);
+
+// Work-equivalent free-DOF load vector of a distributed transverse load
+// q(x) [N/m]: int q N dx per element by 5-point Gauss-Legendre quadrature.
+Eigen::VectorXd DistributedLoadVector(const Mesh& mesh, const std::function<double(double x_m)>& q);
 
 // Interpolated w at x_m from the free-DOF vector `q` (same shape functions).
 double InterpolateW(const Mesh& mesh, const Eigen::VectorXd& q, double x_m);

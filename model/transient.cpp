@@ -241,6 +241,11 @@ Status TransientModel::Run(const TransientLoads& loads, TransientResult* result)
     p += b.fg_hat;
     for (size_t i = 0; i < loads.forces.size(); ++i)
       p += loads.forces[i].force_n(t + 0.5 * h) * b.force_hat[i];
+    if (loads.distributed) {
+      const double tm = t + 0.5 * h;
+      p.noalias() += b.phi.transpose() *
+                     DistributedLoadVector(mesh_, [&](double x) { return loads.distributed(x, tm); });
+    }
     const double n0 = stretch_force(y);
     double nbar = n0;
     for (int it = 0; it < kMaxScalarNewton; ++it) {
@@ -303,11 +308,17 @@ Status TransientModel::Run(const TransientLoads& loads, TransientResult* result)
     const double nw = stretch_force(y);
     Eigen::VectorXd a = accel_g - accel_k * y - nw * (accel_rows * y);
     for (size_t i = 0; i < loads.forces.size(); ++i) a += loads.forces[i].force_n(t) * accel_f[i];
+    if (loads.distributed) {
+      a.noalias() += accel_rows * (b0.phi.transpose() * DistributedLoadVector(mesh_, [&](double x) {
+                                     return loads.distributed(x, t);
+                                   }));
+    }
     if (damped) a.noalias() -= accel_c * z;
     out.acceleration_m_s2.row(k) = a.transpose();
     out.displacement_m.row(k) = (phi_sensors * (y - y_s)).transpose();
     out.axial_force_n[k] = nw;
     out.midspan_m[k] = mid_row.dot(y - y_s);
+    if (loads.observer) loads.observer(t, b0.phi * y);
     if (options_.record_energy) {
       // E = (1/2) v^T M v + (1/2) w^T K w + N_s e + (k_ax/2) e^2 - f_g^T w
       const double e = 0.5 * y.squaredNorm() - e_s_;

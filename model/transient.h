@@ -86,6 +86,13 @@ struct TransientLoads {
   Eigen::VectorXd initial_velocity;
   std::vector<PointImpulse> impulses;
   std::vector<PointForce> forces;
+  // Distributed transverse load q(x, t) [N/m] (optional; used by the
+  // manufactured-solution verification). Costs a quadrature and one dense
+  // product per step.
+  std::function<double(double x_m, double t_s)> distributed;
+  // Called at every output sample with t and the total w on the free DOFs
+  // (measured from the straight line), when set. For verification.
+  std::function<void(double t_s, const Eigen::VectorXd& w)> observer;
 };
 
 struct TransientResult {
