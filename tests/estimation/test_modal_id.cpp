@@ -58,7 +58,8 @@ TEST(ModalId, ThreeDofFrequenciesDampingShapes) {
   for (int k = 0; k < 3; ++k) {
     const IdentifiedMode& m = id.modes[static_cast<std::size_t>(k)];
     EXPECT_NEAR(m.frequency_hz, sys.frequency_hz[k], kFrequencyTol * sys.frequency_hz[k]) << "mode " << k + 1;
-    EXPECT_NEAR(m.damping_ratio, sys.damping_ratio[k], kDampingTol * sys.damping_ratio[k]) << "mode " << k + 1;
+    EXPECT_NEAR(m.damping_ratio, sys.damping_ratio[k], kDampingTol * sys.damping_ratio[k])
+        << "mode " << k + 1;
     const Eigen::VectorXd shape = Eigen::Map<const Eigen::VectorXd>(m.shape.data(), 3);
     EXPECT_GT(Mac(shape, Eigen::VectorXd(sys.shapes.col(k))), kMinMac3Dof) << "mode " << k + 1;
     EXPECT_NEAR(shape.cwiseAbs().maxCoeff(), 1.0, 1e-12);
@@ -99,7 +100,8 @@ TEST(ModalId, ThreeDofStdMatchesReplicationScatter) {
     EXPECT_GT(chi2, kChi2Lo) << "mode " << k + 1 << ": reported std too large";
     EXPECT_LT(chi2, kChi2Hi) << "mode " << k + 1 << ": reported std too small";
     // And no bias beyond the random error of the mean of 30 (3 sigma).
-    EXPECT_NEAR(f.col(k).mean(), sys.frequency_hz[k], 3.0 * std::sqrt(ss / (kReps - 1) / kReps)) << "mode " << k + 1;
+    EXPECT_NEAR(f.col(k).mean(), sys.frequency_hz[k], 3.0 * std::sqrt(ss / (kReps - 1) / kReps))
+        << "mode " << k + 1;
   }
 }
 
@@ -161,9 +163,13 @@ TEST(ModalId, BeamModelModes) {
   ASSERT_EQ(id.modes.size(), 4u);
   for (int r = 0; r < 4; ++r) {
     const IdentifiedMode& im = id.modes[static_cast<std::size_t>(r)];
-    EXPECT_NEAR(im.frequency_hz, f[static_cast<std::size_t>(r)], kFrequencyTol * f[static_cast<std::size_t>(r)])
+    EXPECT_NEAR(im.frequency_hz, f[static_cast<std::size_t>(r)],
+                kFrequencyTol * f[static_cast<std::size_t>(r)])
         << "mode " << r + 1;
-    EXPECT_GT(Mac(Eigen::VectorXd(Eigen::Map<const Eigen::VectorXd>(im.shape.data(), 3)), Eigen::VectorXd(shapes.col(r))), 0.98) << "mode " << r + 1;
+    EXPECT_GT(Mac(Eigen::VectorXd(Eigen::Map<const Eigen::VectorXd>(im.shape.data(), 3)),
+                  Eigen::VectorXd(shapes.col(r))),
+              0.98)
+        << "mode " << r + 1;
   }
 }
 
