@@ -244,7 +244,7 @@ Status IdentifyModes(const Record& record, const ModalIdOptions& o, ModalIdentif
     bool narrow = std::any_of(ssi.narrow_lines_hz.begin(), ssi.narrow_lines_hz.end(), [&](double f) {
       return std::abs(f - fdd.peaks[k].frequency_hz) < kFddSsiPairTol * f;
     });
-    if (narrow || fdd.peaks[k].prominence < 10.0 * kMinPeakProminenceRatio) continue;
+    if (narrow || fdd.peaks[k].prominence < kUnconfirmedPeakProminence) continue;
     out->cautions.push_back(
         {"fdd-peak-unconfirmed", "a strong spectral peak at " + Fmt(fdd.peaks[k].frequency_hz) +
                                      " Hz was not confirmed by SSI-COV and is not reported."});

@@ -4,6 +4,7 @@
 #include <gtest/gtest.h>
 #include <unistd.h>
 
+#include <algorithm>
 #include <filesystem>
 #include <fstream>
 #include <nlohmann/json.hpp>
@@ -51,6 +52,11 @@ class CliModal : public ::testing::Test {
       o << k / fs << "," << y(k, 0) << "," << y(k, 1) << "," << y(k, 2) << "\n";
   }
   void TearDown() override { std::filesystem::remove_all(dir_); }
+
+  long ErrLines() const {
+    const std::string e = err_.str();
+    return std::count(e.begin(), e.end(), '\n');
+  }
 
   int Run(std::vector<std::string> args) {
     args.insert(args.begin(), "taut");
@@ -110,10 +116,10 @@ TEST_F(CliModal, BadInputOneLineExitOne) {
   }
   EXPECT_EQ(Run({"modal", "--record", (dir_ / "bad.csv").string()}), 1);
   EXPECT_NE(err_.str().find("line 3, column 2 (v1)"), std::string::npos) << err_.str();
-  EXPECT_EQ(std::count(err_.str().begin(), err_.str().end(), '\n'), 1);
+  EXPECT_EQ(ErrLines(), 1);
   EXPECT_EQ(Run({"modal", "--record", record_path_, "--band", "40"}), 1);
   EXPECT_NE(err_.str().find("--band"), std::string::npos);
-  EXPECT_EQ(std::count(err_.str().begin(), err_.str().end(), '\n'), 1);
+  EXPECT_EQ(ErrLines(), 1);
   {
     std::ofstream o(dir_ / "other.csv");
     o << "time_s,x9\n";
