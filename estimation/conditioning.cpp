@@ -70,7 +70,7 @@ Status Decimate(const Eigen::MatrixXd& in, int factor, Eigen::MatrixXd* out) {
   // product of the taps with a contiguous input segment.
   for (Eigen::Index c = 0; c < in.cols(); ++c) {
     for (Eigen::Index m = 0; m < n_out; ++m) {
-      (*out)(m, c) = in.col(c).segment(m * factor, taps).dot(h.reverse());
+      (*out)(m, c) = in.col(c).segment(m * factor, taps).dot(h);  // h is symmetric: no reversal needed
     }
   }
   return Status::Ok();

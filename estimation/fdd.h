@@ -20,8 +20,8 @@ namespace taut::estimation {
 // A peak is kept when its topographic prominence (height above the higher
 // of the two lowest points separating it from a higher peak on either side,
 // the definition of scipy.signal.peak_prominences) is at least this ratio:
-// 10 dB in s1, a practical choice. The random ripple of a 15-average Welch
-// estimate has a 95 % band of about +-2.3 dB per line (chi-square with 30
+// 10 dB in s1, a practical choice. The random ripple of a 31-average Welch
+// estimate has a 95 % band of about -1.6 / +1.3 dB per line (chi-square with 62
 // degrees of freedom, Welch 1967), but among thousands of noise lines its
 // largest local maxima reach 6 dB of prominence (seen on white noise), so
 // 6 dB would keep noise peaks; modes of the members taut serves stand

@@ -3,6 +3,7 @@
 #include <algorithm>
 #include <charconv>
 #include <cmath>
+#include <cstdio>
 #include <cstring>
 #include <fstream>
 #include <istream>
@@ -316,14 +317,15 @@ Status ParseRecordCsv(std::istream& in, const RecordReadOptions& options, Record
       if (col == nch + 1 && comma != std::string_view::npos)
         return Status::InvalidArgument(Where(ln) + ": more than " + std::to_string(nch + 1) + " cells");
       std::string_view cell = line.substr(start, comma == std::string_view::npos ? line.npos : comma - start);
-      const std::string& name = col == 1 ? std::string("time_s") : record->channels[col - 2];
-      if (StripBlanks(cell).empty()) return Status::InvalidArgument(Where(ln, col, name) + ": empty cell");
+      // Column name for messages only (no copy on the hot path).
+      auto name = [&] { return col == 1 ? std::string("time_s") : record->channels[col - 2]; };
+      if (StripBlanks(cell).empty()) return Status::InvalidArgument(Where(ln, col, name()) + ": empty cell");
       double v;
       if (!ParseDouble(cell, &v))
-        return Status::InvalidArgument(Where(ln, col, name) + ": cell \"" + Excerpt(cell) +
+        return Status::InvalidArgument(Where(ln, col, name()) + ": cell \"" + Excerpt(cell) +
                                        "\" is not a number");
       if (!std::isfinite(v))
-        return Status::InvalidArgument(Where(ln, col, name) + ": cell \"" + Excerpt(cell) +
+        return Status::InvalidArgument(Where(ln, col, name()) + ": cell \"" + Excerpt(cell) +
                                        "\" is not a finite number");
       if (col == 1) {
         if (!times.empty() && !(v > times.back()))
