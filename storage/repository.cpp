@@ -563,32 +563,37 @@ StorageStatus Repository::InsertRecord(Id organisation_id, const NewRecord& reco
   const std::int64_t n_channels = static_cast<std::int64_t>(record.channels.size());
   const std::int64_t n_samples = static_cast<std::int64_t>(record.samples.size()) / n_channels;
   return Write([&]() -> StorageStatus {
-    // 1. An earlier upload with the same key or the same content?
+    // 1. An earlier upload with the same key, or the same content for the
+    //    same member? Two lookups, each on its own unique index (one query
+    //    with OR could not seek on a NULL key).
     if (StorageStatus f = Fault(); !f.ok()) return f;
-    Statement prior(
-        db_.handle(),
-        "SELECT r.id, j.id, r.content_sha256, r.idempotency_key IS ?3 FROM record r "
-        "JOIN job j ON j.record_id = r.id WHERE r.organisation_id = ?1 AND "
-        "((?3 IS NOT NULL AND r.idempotency_key = ?3) OR (r.member_id = ?2 AND r.content_sha256 = ?4)) "
-        "ORDER BY r.idempotency_key IS ?3 DESC LIMIT 1");
-    prior.Bind(1, organisation_id).Bind(2, record.member_id).Bind(4, record.content_sha256);
-    if (record.idempotency_key.empty()) {
-      prior.BindNull(3);
-    } else {
-      prior.Bind(3, record.idempotency_key);
-    }
-    int rc = prior.Step();
-    if (rc == SQLITE_ROW) {
-      const bool same_key = prior.Int64(3) != 0;
-      if (same_key && prior.Text(2) != record.content_sha256) {
-        return {SQLITE_CONSTRAINT, "idempotency key '" + record.idempotency_key +
-                                       "' was already used for a different upload (record " +
-                                       std::to_string(prior.Int64(0)) + ")"};
+    if (!record.idempotency_key.empty()) {
+      Statement by_key(db_.handle(),
+                       "SELECT r.id, j.id, r.content_sha256 FROM record r JOIN job j ON j.record_id = r.id "
+                       "WHERE r.organisation_id = ?1 AND r.idempotency_key = ?2");
+      by_key.Bind(1, organisation_id).Bind(2, record.idempotency_key);
+      const int rc = by_key.Step();
+      if (rc == SQLITE_ROW) {
+        if (by_key.Text(2) != record.content_sha256) {
+          return {SQLITE_CONSTRAINT, "idempotency key '" + record.idempotency_key +
+                                         "' was already used for a different upload (record " +
+                                         std::to_string(by_key.Int64(0)) + ")"};
+        }
+        *out = {by_key.Int64(0), by_key.Int64(1), true};
+        return {};
       }
-      *out = {prior.Int64(0), prior.Int64(1), true};
+      if (rc != SQLITE_DONE) return by_key.status();
+    }
+    Statement by_hash(db_.handle(),
+                      "SELECT r.id, j.id FROM record r JOIN job j ON j.record_id = r.id "
+                      "WHERE r.member_id = ?1 AND r.content_sha256 = ?2 AND r.organisation_id = ?3");
+    by_hash.Bind(1, record.member_id).Bind(2, record.content_sha256).Bind(3, organisation_id);
+    int rc = by_hash.Step();
+    if (rc == SQLITE_ROW) {
+      *out = {by_hash.Int64(0), by_hash.Int64(1), true};
       return {};
     }
-    if (rc != SQLITE_DONE) return prior.status();
+    if (rc != SQLITE_DONE) return by_hash.status();
 
     // 2. The member must be this organisation's and live; its current
     //    version is the one the record was taken against.

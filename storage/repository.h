@@ -305,7 +305,7 @@ class Repository {
   StorageStatus LatestEstimate(Id organisation_id, Id member_id, Estimate* out);
   // Estimates with from <= measured_at < to, ordered by (measured_at, id),
   // at most kMaxHistoryRows; result_json is not selected. Uses the index
-  // estimate_member_time (schema version 2).
+  // estimate_member_time (schema version 2), which covers every selected column.
   StorageStatus ForceHistory(Id organisation_id, Id member_id, std::int64_t from_unix_ms,
                              std::int64_t to_unix_ms, std::vector<Estimate>* out);
 
