@@ -357,7 +357,9 @@ Status DetectDrift(const std::vector<DriftPoint>& series, const DriftSettings& s
     if (in) base.push_back(i);
     judged[i] = !in && (!window || t >= *settings.baseline_to_s);
   }
-  const bool baseline_complete = window ? !base.empty() : base.size() >= settings.baseline_count;
+  // A window is complete by definition (FitQuantity cautions when it holds
+  // too few points); a count-based baseline waits for its K points.
+  const bool baseline_complete = window || base.size() >= settings.baseline_count;
   if (!baseline_complete) {
     report.cautions.push_back(
         {"drift-baseline-forming", "The baseline is still forming (" + std::to_string(base.size()) + " of " +

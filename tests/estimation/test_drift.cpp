@@ -333,6 +333,21 @@ TEST(DetectDrift, ExplicitBaselineWindow) {
   }
 }
 
+TEST(DetectDrift, WindowWithTooFewPointsRunsOnlyTheAbsoluteRules) {
+  HangerScenario sc;
+  const std::vector<DriftPoint> series = Simulate(sc, 4);
+  DriftSettings settings;
+  settings.baseline_from_s = 0;
+  settings.baseline_to_s = 1;  // holds the first point only
+  DriftReport r;
+  ASSERT_TRUE(DetectDrift(series, settings, &r).ok());
+  EXPECT_FALSE(r.force_baseline.has_value());
+  bool forming = false;
+  for (const Caution& c : r.cautions) forming |= c.code == "drift-baseline-forming";
+  EXPECT_TRUE(forming);
+  for (const PointAssessment& p : r.points) EXPECT_FALSE(p.force_z.has_value());
+}
+
 TEST(DetectDrift, BadInputIsRefusedNamingTheFieldAndIndex) {
   const std::vector<DriftPoint> good = HandBaseline();
   DriftReport r;
