@@ -44,7 +44,11 @@ class Database {
 
   // Opens (creating if absent) the file at `path` (":memory:" for a
   // private in-memory database) with foreign keys on, WAL journal mode
-  // (file databases) and kBusyTimeout_ms.
+  // (file databases) and kBusyTimeout_ms. Durability: SQLite's default
+  // synchronous = FULL is kept, so a committed upload survives a power
+  // loss, not only a killed process; it costs one fsync of the WAL per
+  // write transaction (bench_storage measures it). Does not migrate: use
+  // OpenAndMigrate (migrations.h).
   StorageStatus Open(const std::string& path);
 
   // Replaces the busy timeout (milliseconds, >= 0) of this connection.

@@ -293,6 +293,40 @@ TEST_F(RepositoryTest, ResentUploadReturnsTheOriginalIds) {
   EXPECT_EQ(CountRows(db_, "job"), 1);
 }
 
+// Regression: the duplicate lookup of an upload once used one query with
+// an OR over the key and the content hash, which SQLite could not answer by
+// index seeks when the key was NULL, so every upload scanned the record
+// table. The work of an insert is counted in virtual-machine instructions
+// (sqlite3_progress_handler with N = 1, SQLite documentation): with index
+// seeks (O(log n), SQLite "Query Planning") it must not grow with the number
+// of stored records. Tolerance: +25 % for the deeper b-trees and the larger
+// rowids of the later insert; a scan of 400 more rows would add thousands.
+TEST_F(RepositoryTest, UploadCostDoesNotGrowWithStoredRecords) {
+  const Fixture f = MakeFixture(repo_, "Scan Guard Ltd");
+  ASSERT_TRUE(db_.Exec("PRAGMA synchronous = OFF;").ok());  // setup speed only; counted work is unaffected
+  long long ops = 0;
+  sqlite3_progress_handler(
+      db_.handle(), 1,
+      [](void* counter) {
+        ++*static_cast<long long*>(counter);
+        return 0;
+      },
+      &ops);
+  const auto cost_of_insert = [&](unsigned long long content) {
+    RecordInsertResult ins;
+    ops = 0;
+    EXPECT_TRUE(repo_.InsertRecord(f.org, SmallRecord(f.member, content, 1), 1, &ins).ok());
+    return ops;
+  };
+  for (unsigned long long i = 0; i < 20; ++i) cost_of_insert(i);
+  const long long early = cost_of_insert(5000);
+  for (unsigned long long i = 20; i < 420; ++i) cost_of_insert(i);
+  const long long late = cost_of_insert(5001);
+  sqlite3_progress_handler(db_.handle(), 0, nullptr, nullptr);
+  EXPECT_GT(early, 0);
+  EXPECT_LT(static_cast<double>(late), 1.25 * static_cast<double>(early)) << early << " -> " << late;
+}
+
 TEST_F(RepositoryTest, JobLifeCycleAndRequeue) {
   const Fixture f = MakeFixture(repo_, "Signal Box Row");
   RecordInsertResult r1, r2, r3;
