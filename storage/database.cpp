@@ -1,5 +1,6 @@
 #include "storage/database.h"
 
+#include <string>
 #include <utility>
 
 namespace taut::storage {
@@ -39,6 +40,15 @@ StorageStatus Database::Open(const std::string& path) {
     if (StorageStatus s = QueryText("PRAGMA journal_mode = WAL;", &mode); !s.ok()) return s;
     if (mode != "wal") return {SQLITE_ERROR, "database '" + path + "' refused WAL mode (got '" + mode + "')"};
   }
+  return {};
+}
+
+StorageStatus Database::SetBusyTimeout(int timeout_ms) {
+  if (db_ == nullptr) return {SQLITE_MISUSE, "SetBusyTimeout: database is not open"};
+  if (timeout_ms < 0)
+    return {SQLITE_MISUSE, "busy timeout " + std::to_string(timeout_ms) + " ms must be >= 0"};
+  const int rc = sqlite3_busy_timeout(db_, timeout_ms);
+  if (rc != SQLITE_OK) return {rc, sqlite3_errmsg(db_)};
   return {};
 }
 
