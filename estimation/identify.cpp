@@ -7,8 +7,6 @@
 #include <array>
 #include <chrono>
 #include <cmath>
-#include <cstdio>
-#include <cstdlib>
 #include <limits>
 #include <memory>
 #include <numbers>
@@ -158,7 +156,6 @@ struct FitContext {
   bool EvaluateUncached(double n, double ei, double rl, double rr, double* res) const {
     model::ModalResult r;
     ++calls;
-    if (std::getenv("TAUT_TRACE")) std::fprintf(stderr, "eval %.12g %.12g %.12g %.12g\n", n, ei, rl, rr);
     if (!model->Solve(Params(n, ei, rl, rr), num_modes, &r).ok()) return false;
     int k = 0;
     for (const PairData& p : pairs) {
@@ -412,6 +409,7 @@ Status IdentifyFromModes(const model::Member& member, const ModalIdentification&
   est.direction = plane;
   est.notice = StandingNotice();
   est.cautions = ident.cautions;
+  est.shape_channels = ident.channels;
 
   // In-plane channels: their record index and their index in the model's
   // shape vector (ModalResult::channels lists the plane's sensors in member order).
@@ -580,11 +578,9 @@ Status IdentifyFromModes(const model::Member& member, const ModalIdentification&
     outcomes.clear();
     best = FitOutcome{};
     for (const Vec4& s : starts) {
-      const long c0 = ctx.calls;
       FitOutcome o = RunFit(ctx, s, false, options);
-      if (std::getenv("TAUT_DEBUG"))
-        std::fprintf(stderr, "start: iters %d calls %ld cost %g conv %d\n", o.iterations, ctx.calls - c0,
-                     o.cost, o.converged);
+      std::fprintf(stderr, "start: iters %d calls %ld cost %g conv %d\n", o.iterations, ctx.calls - c0,
+                   o.cost, o.converged);
       outcomes.push_back(o);
       if (o.usable && o.cost < best.cost) best = o;
     }
@@ -660,8 +656,7 @@ Status IdentifyFromModes(const model::Member& member, const ModalIdentification&
     at_best += (same_cost && same_force);
   }
 
-  if (std::getenv("TAUT_DEBUG"))
-    std::fprintf(stderr, "after starts+repair+mesh: calls %ld elements %d\n", ctx.calls, elements);
+  std::fprintf(stderr, "after starts+repair+mesh: calls %ld elements %d\n", ctx.calls, elements);
   // --- Degrees of freedom, reduced chi-square --------------------------------
   const int n_free = 2 + ctx.free_left + ctx.free_right;
   int n_data = 1;  // prior
@@ -788,7 +783,9 @@ Status IdentifyFromModes(const model::Member& member, const ModalIdentification&
   // EI: log-normal interval from the std of ln EI.
   {
     const double ei = ctx.EI(x.data());
-    const double s = std_of(1);
+    // Without a covariance the prior's std is an upper bound of the
+    // posterior std of ln EI (data only add information to a Gaussian prior).
+    const double s = have_cov ? std_of(1) : options.ei_prior_sigma_ln;
     est.bending_stiffness_nm2 = {ei,    ei * s,          ei * std::exp(-kZ95 * s), ei * std::exp(kZ95 * s),
                                  false, !unidentified[1]};
     if (s > kPriorDominatedShare * options.ei_prior_sigma_ln) {
@@ -810,7 +807,7 @@ Status IdentifyFromModes(const model::Member& member, const ModalIdentification&
       return q;
     }
     q.value = std::clamp(x[j] - kFixityOffset, 0.0, 1.0);
-    if (unidentified[j]) {
+    if (unidentified[j] || !have_cov) {
       q.std = kUniformUnitStd;
       q.ci95_low = 0.0;
       q.ci95_high = 1.0;
@@ -932,7 +929,6 @@ Status IdentifyFromModes(const model::Member& member, const ModalIdentification&
   }
 
   est.fit.forward_model_calls = ctx.calls;
-  if (std::getenv("TAUT_DEBUG")) std::fprintf(stderr, "total calls %ld\n", ctx.calls);
   est.fit.seconds = std::chrono::duration<double>(std::chrono::steady_clock::now() - t0).count();
   *estimate = std::move(est);
   return Status::Ok();

@@ -119,7 +119,9 @@ struct FitSummary {
 struct Estimate {
   model::Direction direction = model::Direction::kVertical;
   std::vector<std::string> channels;  // the in-plane record channels used
-  EstimatedQuantity axial_force_n;    // tension > 0
+  // The channels of every EstimatedMode::measured.shape (all record channels).
+  std::vector<std::string> shape_channels;
+  EstimatedQuantity axial_force_n;  // tension > 0
   EstimatedQuantity bending_stiffness_nm2;
   EstimatedQuantity fixity_left;  // r in [0, 1]
   EstimatedQuantity fixity_right;
