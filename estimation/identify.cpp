@@ -579,8 +579,6 @@ Status IdentifyFromModes(const model::Member& member, const ModalIdentification&
     best = FitOutcome{};
     for (const Vec4& s : starts) {
       FitOutcome o = RunFit(ctx, s, false, options);
-      std::fprintf(stderr, "start: iters %d calls %ld cost %g conv %d\n", o.iterations, ctx.calls - c0,
-                   o.cost, o.converged);
       outcomes.push_back(o);
       if (o.usable && o.cost < best.cost) best = o;
     }
@@ -656,7 +654,6 @@ Status IdentifyFromModes(const model::Member& member, const ModalIdentification&
     at_best += (same_cost && same_force);
   }
 
-  std::fprintf(stderr, "after starts+repair+mesh: calls %ld elements %d\n", ctx.calls, elements);
   // --- Degrees of freedom, reduced chi-square --------------------------------
   const int n_free = 2 + ctx.free_left + ctx.free_right;
   int n_data = 1;  // prior
