@@ -29,6 +29,26 @@ struct IdentifiedMode {
   std::optional<double> mac_fdd_ssi;
 };
 
+// Free decay after a blow (excitation = impact): the instantaneous
+// frequency of the dominant mode against its amplitude, the backbone that
+// the nonlinear (large-amplitude) model is fitted to. Filled by
+// IdentifyModes (estimation/modal_id.h) for impact records only.
+struct BackbonePoint {
+  double time_s = 0.0;          // window centre, from the start of the record
+  double amplitude_m_s2 = 0.0;  // mean acceleration envelope of the mode over the window
+  double displacement_m = 0.0;  // amplitude_m_s2 / (2 pi f)^2, the modal displacement amplitude
+  double frequency_hz = 0.0;    // mean instantaneous frequency over the window
+};
+
+struct ImpactDecay {
+  double blow_time_s = 0.0;    // time of the largest acceleration, from the start of the record
+  double decay_start_s = 0.0;  // identification window, from the start of the record
+  double decay_end_s = 0.0;
+  std::string channel;                  // channel the backbone was measured on
+  double mode_frequency_hz = 0.0;       // dominant mode (SSI-COV over the decay)
+  std::vector<BackbonePoint> backbone;  // descending amplitude (ascending time)
+};
+
 struct ModalIdentification {
   std::vector<std::string> channels;  // record channels the shapes refer to
   std::vector<IdentifiedMode> modes;  // ascending frequency
@@ -37,7 +57,8 @@ struct ModalIdentification {
   std::string uncertainty_method;
   double sample_rate_hz = 0.0;
   double duration_s = 0.0;
-  Cautions cautions;  // record quality and identification cautions
+  Cautions cautions;                  // record quality and identification cautions
+  std::optional<ImpactDecay> impact;  // set for impact records
 };
 
 }  // namespace taut::estimation
