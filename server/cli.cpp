@@ -11,6 +11,7 @@ int Main(int argc, const char* const* argv, std::ostream& out, std::ostream& err
   app.set_version_flag("--version", "taut 0.1.0");
   CliContext ctx{&out, &err, 0};
   RegisterModesCommand(app, &ctx);
+  RegisterIdentifyCommand(app, &ctx);
   try {
     app.parse(argc, argv);
   } catch (const CLI::CallForHelp&) {
