@@ -73,6 +73,8 @@ constexpr int kMaxProfileSteps = 10;
 constexpr int kMaxMeshRefinements = 3;
 // Re-pairing rounds after a fit (the pairing is redone at the estimate).
 constexpr int kMaxPairingRounds = 2;
+// Model modes beyond the highest expected order that pairing considers.
+constexpr int kPairingExtraModes = 2;
 // Fixity of the first start (the middle of [0, 1]).
 constexpr double kMidFixity = 0.5;
 
@@ -473,12 +475,21 @@ Status IdentifyFromModes(const model::Member& member, const ModalIdentification&
   ctx.shape_std = options.shape_std;
   ctx.free_left = member.left.kind == model::RotationEnd::Kind::kElastic;
   ctx.free_right = member.right.kind == model::RotationEnd::Kind::kElastic;
-  ctx.num_modes = std::max(highest, static_cast<int>(measured.size())) + 2;
+  // Pairing looks at kPairingExtraModes model modes beyond the highest order
+  // the measured modes may have; the fits then solve only up to the highest
+  // paired order (fewer Lanczos vectors per model call).
+  const int expected_highest = std::max(highest, static_cast<int>(measured.size()));
+  int pairing_modes = expected_highest + kPairingExtraModes;
   ctx.n_scale = std::max(std::abs(hyp.axial_force_n), n_euler_pinned);
 
-  int elements = std::max(options.min_elements, options.elements_per_order * ctx.num_modes);
+  int elements = std::max(options.min_elements, options.elements_per_order * expected_highest);
   auto model = std::make_unique<model::ModalModel>(member, plane, model::ModalOptions{elements});
-  ctx.num_modes = std::min(ctx.num_modes, model->mesh().FreeDofs() / 2);
+  pairing_modes = std::min(pairing_modes, model->mesh().FreeDofs() / 2);
+  ctx.num_modes = pairing_modes;
+  auto set_fit_modes = [&]() {
+    ctx.num_modes = 1;
+    for (const PairData& p : ctx.pairs) ctx.num_modes = std::max(ctx.num_modes, p.order);
+  };
   ctx.model = model.get();
 
   // Start 1: the regression (fixities 0, consistent with its pinned ends).
@@ -492,7 +503,7 @@ Status IdentifyFromModes(const model::Member& member, const ModalIdentification&
   auto pairs_from = [&](const std::vector<ModePair>& mp) {
     std::vector<PairData> out;
     for (size_t i = 0; i < mp.size(); ++i) {
-      if (!mp[i].order || *mp[i].order > ctx.num_modes) continue;
+      if (!mp[i].order || *mp[i].order > pairing_modes) continue;
       PairData p;
       p.measured = static_cast<int>(i);
       p.order = *mp[i].order;
@@ -503,15 +514,14 @@ Status IdentifyFromModes(const model::Member& member, const ModalIdentification&
     }
     return out;
   };
-  auto model_at = [&](const Vec4& x, model::ModalResult* r) {
+  auto model_at = [&](const Vec4& x, model::ModalResult* r, int modes) {
     ++ctx.calls;
     return ctx.model->Solve(
-        ctx.Params(ctx.N(x.data()), ctx.EI(x.data()), x[2] - kFixityOffset, x[3] - kFixityOffset),
-        ctx.num_modes, r);
+        ctx.Params(ctx.N(x.data()), ctx.EI(x.data()), x[2] - kFixityOffset, x[3] - kFixityOffset), modes, r);
   };
 
   model::ModalResult start_modes;
-  if (Status s = model_at(x_reg, &start_modes); !s.ok()) {
+  if (Status s = model_at(x_reg, &start_modes, pairing_modes); !s.ok()) {
     return Status::InvalidArgument(
         "the member model cannot be evaluated at the pinned-beam regression start (N = " +
         Fmt(ctx.N(x_reg.data())) + " N): " + s.message);
@@ -522,6 +532,7 @@ Status IdentifyFromModes(const model::Member& member, const ModalIdentification&
       PairModes(f_measured, shapes_in_plane, model_index, start_modes, options.pairing);
   ctx.pairs = pairs_from(pairing);
   ctx.Reset();
+  set_fit_modes();
   if (ctx.pairs.empty()) {
     return Status::InvalidArgument(
         "none of the " + std::to_string(measured.size()) +
@@ -564,7 +575,7 @@ Status IdentifyFromModes(const model::Member& member, const ModalIdentification&
       if (p.order < low->order) low = &p;
     }
     model::ModalResult r;
-    if (!model_at(st, &r).ok()) continue;
+    if (!model_at(st, &r, ctx.num_modes).ok()) continue;
     const double f_model = r.modes[low->order - 1].frequency_hz;
     const double slope = low->order * low->order / (4.0 * osi.mass_per_length_kg_m * length * length);
     const double n_new =
@@ -592,7 +603,7 @@ Status IdentifyFromModes(const model::Member& member, const ModalIdentification&
   // Re-pair at the estimate; refit from it when the pairing changed.
   for (int round = 0; round < kMaxPairingRounds; ++round) {
     model::ModalResult at_best;
-    if (!model_at(best.x, &at_best).ok()) break;
+    if (!model_at(best.x, &at_best, pairing_modes).ok()) break;
     std::vector<ModePair> again =
         PairModes(f_measured, shapes_in_plane, model_index, at_best, options.pairing);
     bool same = true;
@@ -603,6 +614,7 @@ Status IdentifyFromModes(const model::Member& member, const ModalIdentification&
     pairing = again;
     ctx.pairs = candidate;
     ctx.Reset();
+    set_fit_modes();
     FitOutcome o = RunFit(ctx, best.x, false, options);
     if (!o.usable) break;
     best = o;
@@ -643,15 +655,6 @@ Status IdentifyFromModes(const model::Member& member, const ModalIdentification&
     if (!o.usable) break;
     best = o;
     outcomes.push_back(o);
-  }
-
-  int at_best = 0;
-  for (const auto& o : outcomes) {
-    if (!o.usable) continue;
-    const bool same_cost = std::abs(o.cost - best.cost) <= kSameMinimumCost * std::max(1.0, best.cost);
-    const bool same_force =
-        std::abs(o.x[0] - best.x[0]) <= kSameMinimumForce * std::max(1.0, std::abs(best.x[0]));
-    at_best += (same_cost && same_force);
   }
 
   // --- Degrees of freedom, reduced chi-square --------------------------------
@@ -723,6 +726,20 @@ Status IdentifyFromModes(const model::Member& member, const ModalIdentification&
   double n_lo = n_hat - kZ95 * n_std, n_hi = n_hat + kZ95 * n_std;
   std::string n_method = "wald";
   bool profile_open = false;
+  // Starts that reached the best minimum: the same cost and a force that
+  // differs by less than a tenth of its Wald std (a flat minimum ends at
+  // slightly different forces from different starts) or kSameMinimumForce.
+  int at_best = 0;
+  {
+    const double force_tol = std::max(kSameMinimumForce * std::max(1.0, std::abs(x[0])),
+                                      std::isfinite(n_std) ? 0.1 * std_of(0) : 0.0);
+    for (const auto& o : outcomes) {
+      if (!o.usable) continue;
+      const bool same_cost = std::abs(o.cost - best.cost) <= kSameMinimumCost * std::max(1.0, best.cost);
+      at_best += (same_cost && std::abs(o.x[0] - x[0]) <= force_tol);
+    }
+  }
+  const long calls_before_profile = ctx.calls;
   if (options.profile_axial_force) {
     const double target = kChi2Dof1At95 * cov_scale;  // in chi-square units
     double sides[2] = {n_lo, n_hi};
@@ -770,6 +787,7 @@ Status IdentifyFromModes(const model::Member& member, const ModalIdentification&
     }
     n_std = std::max(std::isfinite(n_std) ? n_std : 0.0, (n_hi - n_lo) / (2.0 * kZ95));
   }
+  est.fit.profile_model_calls = ctx.calls - calls_before_profile;
   est.axial_force_n = {n_hat, n_std, n_lo, n_hi, false, !unidentified[0] && !profile_open};
   if (profile_open || !std::isfinite(n_std)) {
     est.cautions.push_back({"force-interval-open",
@@ -795,7 +813,7 @@ Status IdentifyFromModes(const model::Member& member, const ModalIdentification&
 
   // Fixities.
   model::ModalResult final_modes;
-  const bool final_ok = model_at(x, &final_modes).ok();
+  const bool final_ok = model_at(x, &final_modes, ctx.num_modes).ok();
   auto fixity = [&](int j, bool free_end, double resolved) {
     EstimatedQuantity q;
     if (!free_end) {

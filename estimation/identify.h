@@ -109,9 +109,10 @@ struct FitSummary {
   int degrees_of_freedom = 0;
   int iterations = 0;  // of the best start
   int starts = 0;
-  int starts_at_best = 0;  // starts that ended at the best minimum
-  double seconds = 0.0;    // wall time of the whole identification
-  long forward_model_calls = 0;
+  int starts_at_best = 0;                     // starts that ended at the best minimum
+  double seconds = 0.0;                       // wall time of the whole identification
+  long forward_model_calls = 0;               // every ModalModel::Solve of the identification
+  long profile_model_calls = 0;               // of which in the profile-likelihood interval
   int elements = 0;                           // mesh used
   std::string axial_force_interval = "wald";  // or "profile" (the wider one)
 };

@@ -60,6 +60,7 @@ nlohmann::json EstimateToJson(const estimation::Estimate& e) {
               {"seconds", Number(e.fit.seconds)},
               {"starts_at_best", e.fit.starts_at_best},
               {"forward_model_calls", e.fit.forward_model_calls},
+              {"profile_model_calls", e.fit.profile_model_calls},
               {"elements", e.fit.elements},
               {"degrees_of_freedom", e.fit.degrees_of_freedom},
               {"axial_force_interval", e.fit.axial_force_interval}};
