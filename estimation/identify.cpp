@@ -1,6 +1,7 @@
 #include "estimation/identify.h"
 
 #include <ceres/ceres.h>
+#include <ceres/normal_prior.h>
 
 #include <Eigen/Dense>
 #include <algorithm>
@@ -300,12 +301,26 @@ bool JacobianAt(const FitContext& ctx, Vec4 x, Eigen::MatrixXd* jac) {
 // Gauss-Newton covariance of the free, identifiable blocks by
 // ceres::Covariance (DENSE_SVD, no null space allowed: a rank-deficient
 // problem fails instead of returning a pseudo-inverse with zero variance
-// along the undetermined direction). `held[j]` marks blocks held constant.
-bool CovarianceAt(const FitContext& ctx, Vec4 x, const std::array<bool, 4>& held, Eigen::Matrix4d* cov) {
+// along the undetermined direction). `held[j]` marks blocks held constant;
+// `range_prior[j]` adds the residual (x_j - x_j,hat) / kUniformUnitStd, the
+// Gaussian with the std of a uniform distribution over the fixity range
+// [0, 1]: a fixity the data leave undetermined then carries "anywhere in
+// its range" into the covariance of N and EI instead of being held at an
+// arbitrary point of the flat valley (which would make their intervals
+// conditional on it, hence too tight).
+bool CovarianceAt(const FitContext& ctx, Vec4 x, const std::array<bool, 4>& held,
+                  const std::array<bool, 4>& range_prior, Eigen::Matrix4d* cov) {
   ceres::Problem problem;
   BuildProblem(ctx, x, held[0], &problem);
   for (int j = 1; j < 4; ++j) {
     if (held[j] && !problem.IsParameterBlockConstant(&x[j])) problem.SetParameterBlockConstant(&x[j]);
+    if (range_prior[j] && !problem.IsParameterBlockConstant(&x[j])) {
+      ceres::Matrix a(1, 1);
+      a(0, 0) = 1.0 / kUniformUnitStd;
+      ceres::Vector b(1);
+      b[0] = x[j];
+      problem.AddResidualBlock(new ceres::NormalPrior(a, b), nullptr, &x[j]);
+    }
   }
   ceres::Covariance::Options co;
   co.algorithm_type = ceres::DENSE_SVD;
@@ -520,11 +535,36 @@ Status IdentifyFromModes(const model::Member& member, const ModalIdentification&
         ctx.Params(ctx.N(x.data()), ctx.EI(x.data()), x[2] - kFixityOffset, x[3] - kFixityOffset), modes, r);
   };
 
+  // Pairing point and first start: the regression's N and EI with mid-range
+  // fixities, the force corrected by one Newton step (pinned-beam slope
+  // d(f^2)/dN = n^2 / (4 m L^2), the closed form of pairing.h) so that the
+  // model reproduces the lowest hypothesised mode; the regression itself
+  // assumed pinned ends, which elastic ends contradict.
+  const double f2_per_n = 1.0 / (4.0 * osi.mass_per_length_kg_m * length * length);
+  Vec4 x_pair = x_reg;
+  if (ctx.free_left) x_pair[2] = kFixityOffset + kMidFixity;
+  if (ctx.free_right) x_pair[3] = kFixityOffset + kMidFixity;
+  {
+    int i0 = -1;
+    for (size_t i = 0; i < hyp.order.size(); ++i) {
+      if (hyp.order[i] > 0 && (i0 < 0 || hyp.order[i] < hyp.order[i0])) i0 = static_cast<int>(i);
+    }
+    model::ModalResult r;
+    if (i0 >= 0 && hyp.order[i0] <= pairing_modes && model_at(x_pair, &r, pairing_modes).ok()) {
+      const int n0 = hyp.order[i0];
+      const double f_model = r.modes[n0 - 1].frequency_hz, f = measured[i0].frequency_hz;
+      const double n_new = ctx.N(x_pair.data()) + (f * f - f_model * f_model) / (n0 * n0 * f2_per_n);
+      x_pair[0] = std::max(n_new, -0.5 * n_euler_pinned) / ctx.n_scale;
+    }
+  }
   model::ModalResult start_modes;
-  if (Status s = model_at(x_reg, &start_modes, pairing_modes); !s.ok()) {
-    return Status::InvalidArgument(
-        "the member model cannot be evaluated at the pinned-beam regression start (N = " +
-        Fmt(ctx.N(x_reg.data())) + " N): " + s.message);
+  if (!model_at(x_pair, &start_modes, pairing_modes).ok()) {
+    x_pair = x_reg;
+    if (Status s = model_at(x_reg, &start_modes, pairing_modes); !s.ok()) {
+      return Status::InvalidArgument(
+          "the member model cannot be evaluated at the pinned-beam regression start (N = " +
+          Fmt(ctx.N(x_reg.data())) + " N): " + s.message);
+    }
   }
   std::vector<double> f_measured;
   for (const auto& m : measured) f_measured.push_back(m.frequency_hz);
@@ -541,14 +581,53 @@ Status IdentifyFromModes(const model::Member& member, const ModalIdentification&
         " Hz at the regression start)");
   }
 
+  // Mesh check: the frequency change of every paired mode on doubling the
+  // mesh must stay below max_mesh_error_sigma of its std. Refines (doubling,
+  // at most kMaxMeshRefinements times) and returns true when the mesh changed.
+  bool mesh_caution = false;
+  auto check_mesh = [&](const Vec4& at) {
+    bool changed = false;
+    for (int refine = 0;; ++refine) {
+      model::ModalModel fine(member, plane, model::ModalOptions{2 * elements});
+      model::ModalResult coarse_r, fine_r;
+      const auto params =
+          ctx.Params(ctx.N(at.data()), ctx.EI(at.data()), at[2] - kFixityOffset, at[3] - kFixityOffset);
+      ctx.calls += 2;
+      if (!ctx.model->Solve(params, ctx.num_modes, &coarse_r).ok() ||
+          !fine.Solve(params, ctx.num_modes, &fine_r).ok()) {
+        return changed;
+      }
+      double worst = 0.0;
+      for (const PairData& p : ctx.pairs) {
+        worst = std::max(worst, std::abs(coarse_r.modes[p.order - 1].frequency_hz -
+                                         fine_r.modes[p.order - 1].frequency_hz) /
+                                    p.sigma_hz);
+      }
+      if (worst <= options.max_mesh_error_sigma) return changed;
+      if (refine == kMaxMeshRefinements) {
+        if (!mesh_caution) {
+          est.cautions.push_back({"mesh-error", "The finite-element discretisation error (" + Fmt(worst, 2) +
+                                                    " frequency stds) could not be brought below " +
+                                                    Fmt(options.max_mesh_error_sigma, 2) + " std."});
+        }
+        mesh_caution = true;
+        return changed;
+      }
+      elements *= 2;
+      model = std::make_unique<model::ModalModel>(member, plane, model::ModalOptions{elements});
+      ctx.model = model.get();
+      ctx.Reset();
+      pairing_modes = std::min(expected_highest + kPairingExtraModes, model->mesh().FreeDofs() / 2);
+      changed = true;
+    }
+  };
+  check_mesh(x_pair);
+
   // --- Starts ----------------------------------------------------------------
-  // Start 1: regression N and EI with mid-range fixities (pairing above used
-  // fixity 0, consistent with the regression's pinned ends; as a start, the
-  // bound r = 0 costs extra model calls for the reflected differences).
-  Vec4 x_first = x_reg;
-  if (ctx.free_left) x_first[2] = kFixityOffset + kMidFixity;
-  if (ctx.free_right) x_first[3] = kFixityOffset + kMidFixity;
-  std::vector<Vec4> starts = {x_first};
+  // Start 1: the pairing point (regression N and EI, mid-range fixities, N
+  // corrected). A start at the regression's own pinned ends would sit on
+  // the bound r = 0, where the reflected differences cost extra model calls.
+  std::vector<Vec4> starts = {x_pair};
   {
     std::vector<double> grid_l = ctx.free_left ? options.start_fixities : std::vector<double>{0.0};
     std::vector<double> grid_r = ctx.free_right ? options.start_fixities : std::vector<double>{0.0};
@@ -577,7 +656,7 @@ Status IdentifyFromModes(const model::Member& member, const ModalIdentification&
     model::ModalResult r;
     if (!model_at(st, &r, ctx.num_modes).ok()) continue;
     const double f_model = r.modes[low->order - 1].frequency_hz;
-    const double slope = low->order * low->order / (4.0 * osi.mass_per_length_kg_m * length * length);
+    const double slope = low->order * low->order * f2_per_n;
     const double n_new =
         ctx.N(st.data()) + (low->frequency_hz * low->frequency_hz - f_model * f_model) / slope;
     st[0] = std::max(n_new, -0.5 * n_euler_pinned) / ctx.n_scale;
@@ -600,7 +679,9 @@ Status IdentifyFromModes(const model::Member& member, const ModalIdentification&
                              " starts (the model could not be evaluated near them)");
   }
 
-  // Re-pair at the estimate; refit from it when the pairing changed.
+  FitOutcome best_start = best;  // the minimum the starts are compared with
+  // Re-pair at the estimate; when the pairing changed, run all starts again
+  // with the new pairing.
   for (int round = 0; round < kMaxPairingRounds; ++round) {
     model::ModalResult at_best;
     if (!model_at(best.x, &at_best, pairing_modes).ok()) break;
@@ -611,50 +692,45 @@ Status IdentifyFromModes(const model::Member& member, const ModalIdentification&
     if (same) break;
     std::vector<PairData> candidate = pairs_from(again);
     if (candidate.empty()) break;
+    // Only modes added (none dropped or re-ordered): polish from the estimate;
+    // the starts' verdict stands for the pairs they shared.
+    bool superset = true;
+    for (size_t i = 0; i < again.size(); ++i)
+      superset = superset && (!pairing[i].order || again[i].order == pairing[i].order);
+    if (superset) {
+      pairing = again;
+      ctx.pairs = candidate;
+      ctx.Reset();
+      set_fit_modes();
+      check_mesh(best.x);
+      FitOutcome o = RunFit(ctx, best.x, false, options);
+      if (!o.usable) break;
+      best = o;
+      continue;
+    }
+    const FitOutcome previous = best;
+    const std::vector<PairData> previous_pairs = ctx.pairs;
     pairing = again;
     ctx.pairs = candidate;
     ctx.Reset();
     set_fit_modes();
-    FitOutcome o = RunFit(ctx, best.x, false, options);
-    if (!o.usable) break;
-    best = o;
-    for (auto& out : outcomes) out.cost = std::numeric_limits<double>::infinity();  // other pairing
-    outcomes.push_back(o);
+    check_mesh(best.x);
+    run_starts();
+    best_start = best;
+    if (!best.usable) {  // keep the first pairing's result
+      ctx.pairs = previous_pairs;
+      ctx.Reset();
+      set_fit_modes();
+      best = previous;
+      best_start = previous;
+      break;
+    }
   }
 
-  // Mesh check: the frequency change on doubling the mesh must stay below
-  // max_mesh_error_sigma of each frequency std.
-  for (int refine = 0; refine <= kMaxMeshRefinements; ++refine) {
-    model::ModalModel fine(member, plane, model::ModalOptions{2 * elements});
-    model::ModalResult coarse_r, fine_r;
-    const auto params = ctx.Params(ctx.N(best.x.data()), ctx.EI(best.x.data()), best.x[2] - kFixityOffset,
-                                   best.x[3] - kFixityOffset);
-    ctx.calls += 2;
-    if (!ctx.model->Solve(params, ctx.num_modes, &coarse_r).ok() ||
-        !fine.Solve(params, ctx.num_modes, &fine_r).ok()) {
-      break;
-    }
-    double worst = 0.0;
-    for (const PairData& p : ctx.pairs) {
-      worst = std::max(
-          worst, std::abs(coarse_r.modes[p.order - 1].frequency_hz - fine_r.modes[p.order - 1].frequency_hz) /
-                     p.sigma_hz);
-    }
-    if (worst <= options.max_mesh_error_sigma) break;
-    if (refine == kMaxMeshRefinements) {
-      est.cautions.push_back({"mesh-error", "The finite-element discretisation error (" + Fmt(worst, 2) +
-                                                " frequency stds) could not be brought below " +
-                                                Fmt(options.max_mesh_error_sigma, 2) + " std."});
-      break;
-    }
-    elements *= 2;
-    model = std::make_unique<model::ModalModel>(member, plane, model::ModalOptions{elements});
-    ctx.model = model.get();
-    ctx.Reset();
+  // Mesh check at the estimate; a refined mesh is polished from the estimate.
+  if (check_mesh(best.x)) {
     FitOutcome o = RunFit(ctx, best.x, false, options);
-    if (!o.usable) break;
-    best = o;
-    outcomes.push_back(o);
+    if (o.usable) best = o;
   }
 
   // --- Degrees of freedom, reduced chi-square --------------------------------
@@ -709,13 +785,13 @@ Status IdentifyFromModes(const model::Member& member, const ModalIdentification&
   }
 
   // --- Covariance (Wald) -------------------------------------------------------
-  // Unidentified fixities are held at the estimate for the covariance; their
-  // effect on N is captured by the profile likelihood, which re-optimises
-  // them, and they are reported with the whole range [0, 1].
-  std::array<bool, 4> held = {!free_block[0], !free_block[1], !free_block[2] || unidentified[2],
-                              !free_block[3] || unidentified[3]};
+  // Unidentified fixities enter the covariance with a range prior (see
+  // CovarianceAt) and are reported with the whole range [0, 1]; the profile
+  // likelihood of N re-optimises them within their bounds.
+  const std::array<bool, 4> held = {!free_block[0], !free_block[1], !free_block[2], !free_block[3]};
+  const std::array<bool, 4> range_prior = {false, false, unidentified[2], unidentified[3]};
   Eigen::Matrix4d cov;
-  const bool have_cov = CovarianceAt(ctx, x, held, &cov);
+  const bool have_cov = CovarianceAt(ctx, x, held, range_prior, &cov);
   if (have_cov) cov *= cov_scale;
   auto std_of = [&](int j) {
     return have_cov ? std::sqrt(std::max(0.0, cov(j, j))) : std::numeric_limits<double>::infinity();
@@ -735,8 +811,9 @@ Status IdentifyFromModes(const model::Member& member, const ModalIdentification&
                                       std::isfinite(n_std) ? 0.1 * std_of(0) : 0.0);
     for (const auto& o : outcomes) {
       if (!o.usable) continue;
-      const bool same_cost = std::abs(o.cost - best.cost) <= kSameMinimumCost * std::max(1.0, best.cost);
-      at_best += (same_cost && std::abs(o.x[0] - x[0]) <= force_tol);
+      const bool same_cost =
+          std::abs(o.cost - best_start.cost) <= kSameMinimumCost * std::max(1.0, best_start.cost);
+      at_best += (same_cost && std::abs(o.x[0] - best_start.x[0]) <= force_tol);
     }
   }
   const long calls_before_profile = ctx.calls;
