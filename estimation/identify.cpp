@@ -426,6 +426,24 @@ Status IdentifyFromModes(const model::Member& member, const ModalIdentification&
   est.direction = plane;
   est.notice = StandingNotice();
   est.cautions = ident.cautions;
+  // Large amplitude: the free-decay backbone of an impact record shows the
+  // frequency moving with amplitude (membrane stretching hardens the member,
+  // DESIGN.md; Nayfeh and Mook 1979), so the linear tangent model, fitted to
+  // the identified frequencies, is biased towards the larger amplitudes.
+  if (ident.impact && ident.impact->backbone.size() >= 2) {
+    double f_min = std::numeric_limits<double>::infinity(), f_max = 0.0;
+    for (const auto& p : ident.impact->backbone) {
+      f_min = std::min(f_min, p.frequency_hz);
+      f_max = std::max(f_max, p.frequency_hz);
+    }
+    if (f_min > 0.0 && (f_max - f_min) / f_min > kLargeAmplitudeFrequencyShift) {
+      est.cautions.push_back(
+          {"large-amplitude",
+           "The dominant frequency moves by " + Fmt(100.0 * (f_max - f_min) / f_min, 2) +
+               " % over the free decay: the member vibrated at amplitudes where stretching "
+               "stiffens it, and the linear model's force is biased high."});
+    }
+  }
   est.shape_channels = ident.channels;
 
   // In-plane channels: their record index and their index in the model's

@@ -54,6 +54,10 @@ inline constexpr double kPoorFitReducedChi2 = 3.0;
 inline constexpr double kNearBucklingShare = 0.5;
 // |N - N_design| above this share of N_design: far-from-design caution.
 inline constexpr double kDesignForceDeviationShare = 0.3;
+// Impact records: a shift of the backbone frequency over the decay above
+// this share raises the large-amplitude caution (0.5 % is several frequency
+// stds of a good record; common practice, recalled value).
+inline constexpr double kLargeAmplitudeFrequencyShift = 0.005;
 // Slenderness L / r_g below which Euler-Bernoulli theory is doubtful
 // (DESIGN.md; shear and rotary inertia matter for stockier members).
 inline constexpr double kStockySlenderness = 50.0;

@@ -458,3 +458,37 @@ TEST(Identify, BadInputsGiveClearErrors) {
 
 }  // namespace
 }  // namespace taut::estimation
+
+namespace taut::estimation {
+namespace {
+
+TEST(Identify, HardeningBackboneRaisesLargeAmplitudeCaution) {
+  // DESIGN.md: large amplitude biases the linear model (Duffing hardening,
+  // Nayfeh and Mook 1979). A free-decay backbone whose frequency falls by
+  // 2 % as the amplitude decays must raise "large-amplitude"; one that moves
+  // by 0.1 % (below kLargeAmplitudeFrequencyShift = 0.5 %) must not.
+  model::Member m = Bar(6.0, 0.030, model::Direction::kLateral, {0.2, 0.45, 0.7});
+  model::ModalParameters truth;
+  truth.axial_force_n = 30e3;
+  ModalIdentification id;
+  ASSERT_TRUE(testing::MakeModes(m, model::Direction::kLateral, truth, {}, nullptr, &id));
+  const double f1 = id.modes[0].frequency_hz;
+  for (double shift : {0.02, 0.001}) {
+    ImpactDecay decay;
+    decay.mode_frequency_hz = f1;
+    for (int k = 0; k < 5; ++k) {
+      BackbonePoint p;
+      p.time_s = k;
+      p.amplitude_m_s2 = 10.0 / (1 + k);
+      p.frequency_hz = f1 * (1.0 + shift * (4 - k) / 4.0);
+      decay.backbone.push_back(p);
+    }
+    id.impact = decay;
+    Estimate e;
+    ASSERT_TRUE(IdentifyFromModes(m, id, {}, &e).ok());
+    EXPECT_EQ(HasCaution(e, "large-amplitude"), shift > kLargeAmplitudeFrequencyShift) << shift;
+  }
+}
+
+}  // namespace
+}  // namespace taut::estimation
