@@ -25,6 +25,20 @@
 // grid, the other unknowns re-optimised, boundary at a rise of the
 // chi-square by 3.841, the 95 % point of chi-square with one degree of
 // freedom; Pawitan, In All Likelihood, 2001, ch. 3 and 9).
+// Identifiability: the eigen-decomposition of J^T J (J the weighted
+// Jacobian at the estimate, columns in natural units: N relative to itself,
+// ln EI, r over its range) names the unknowns with a component >= 0.3 in
+// any direction whose std exceeds half a natural unit. Such a fixity is
+// reported with the whole range [0, 1] and enters the covariance with a
+// uniform-range prior (std 1/sqrt(12)), so N and EI are not conditioned on
+// an arbitrary point of the valley; the profile of N re-optimises it within
+// [0, 1]. A caution names what cannot be separated; an N interval the data
+// do not close is reported as the searched range with a caution.
+// Sequence: order search and pinned-beam regression (pairing.h) -> pairing
+// at a Newton-corrected mid-fixity start -> mesh chosen so its frequency
+// error is below 0.1 std -> Levenberg-Marquardt from every start (the
+// first one and a grid of fixities) -> re-pairing at the best -> covariance,
+// identifiability, profile -> cautions.
 #pragma once
 
 #include <optional>
