@@ -20,9 +20,13 @@ namespace taut::estimation {
 // A peak is kept when its topographic prominence (height above the higher
 // of the two lowest points separating it from a higher peak on either side,
 // the definition of scipy.signal.peak_prominences) is at least this ratio:
-// 6 dB in s1, a practical choice that rejects the random ripple of a
-// 15-average Welch estimate (its 95 % band spans about +-2.3 dB).
-inline constexpr double kMinPeakProminenceRatio = 3.98;  // 10^(6/10)
+// 10 dB in s1, a practical choice. The random ripple of a 15-average Welch
+// estimate has a 95 % band of about +-2.3 dB per line (chi-square with 30
+// degrees of freedom, Welch 1967), but among thousands of noise lines its
+// largest local maxima reach 6 dB of prominence (seen on white noise), so
+// 6 dB would keep noise peaks; modes of the members taut serves stand
+// 20-40 dB above the floor.
+inline constexpr double kMinPeakProminenceRatio = 10.0;  // 10^(10/10)
 // Peaks within this many lines of the band edges are ignored (no
 // interpolation neighbours).
 inline constexpr int kPeakEdgeLines = 2;

@@ -199,6 +199,19 @@ Status IdentifyModes(const Record& record, const ModalIdOptions& o, ModalIdentif
     }
     cand.push_back(std::move(c));
   }
+  // FDD cross-check: an SSI-COV mode without an FDD peak near it is most
+  // often a noise pole that happened to be stable (with one channel there is
+  // no shape to reject it by); it is dropped with a caution.
+  for (auto it = cand.begin(); it != cand.end();) {
+    if (it->confirmed) {
+      ++it;
+      continue;
+    }
+    out->cautions.push_back(
+        {"ssi-mode-unconfirmed", "a stable SSI-COV pole cluster at " + Fmt(it->mode.frequency_hz) +
+                                     " Hz has no spectral peak in the FDD and is not reported."});
+    it = cand.erase(it);
+  }
   std::stable_sort(cand.begin(), cand.end(), [](const Candidate& a, const Candidate& b) {
     if (a.confirmed != b.confirmed) return a.confirmed;
     return a.cluster_size > b.cluster_size;
@@ -215,10 +228,18 @@ Status IdentifyModes(const Record& record, const ModalIdOptions& o, ModalIdentif
     if (!c.std_from_segments) any_cluster_std = true;
     out->modes.push_back(c.mode);
   }
-  const int seg = so.uncertainty_segments;
+  const int seg = ssi.segments;
   if (impact) {
     out->uncertainty_method =
         "scatter over the stable pole cluster (free decay; understates the random error)";
+  } else if (seg == 0) {
+    out->uncertainty_method =
+        "scatter over the stable pole cluster (record too short for segments; understates "
+        "the random error)";
+    out->cautions.push_back({"weak-uncertainty",
+                             "the record is too short to split into segments; the frequency "
+                             "standard deviations come from the pole cluster and are likely "
+                             "too small."});
   } else if (any_cluster_std) {
     out->uncertainty_method = "scatter over " + std::to_string(seg) +
                               " record segments (std of the mean); scatter over the stable pole cluster for "
@@ -244,7 +265,7 @@ Status IdentifyModes(const Record& record, const ModalIdOptions& o, ModalIdentif
     bool narrow = std::any_of(ssi.narrow_lines_hz.begin(), ssi.narrow_lines_hz.end(), [&](double f) {
       return std::abs(f - fdd.peaks[k].frequency_hz) < kFddSsiPairTol * f;
     });
-    if (narrow || fdd.peaks[k].prominence < 10.0 * kMinPeakProminenceRatio) continue;
+    if (narrow || fdd.peaks[k].prominence < kUnconfirmedPeakProminence) continue;
     out->cautions.push_back(
         {"fdd-peak-unconfirmed", "a strong spectral peak at " + Fmt(fdd.peaks[k].frequency_hz) +
                                      " Hz was not confirmed by SSI-COV and is not reported."});

@@ -53,6 +53,10 @@ inline constexpr double kBackboneMergeShare = 0.05;
 // An FDD peak and an SSI mode are the same mode within this relative
 // frequency distance.
 inline constexpr double kFddSsiPairTol = 0.03;
+// An FDD peak that SSI-COV does not confirm is cautioned when its
+// prominence exceeds this ratio (20 dB): a strong peak should not vanish
+// silently; weaker ones are common noise.
+inline constexpr double kUnconfirmedPeakProminence = 100.0;
 // Default top of the band when none is given: this share of the Nyquist
 // frequency (above it the decimation filter's transition band starts).
 inline constexpr double kDefaultBandTopShare = 0.8;

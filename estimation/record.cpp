@@ -286,7 +286,8 @@ Status ParseRecordCsv(std::istream& in, const RecordReadOptions& options, Record
 
   // 2. Data rows, row-major into `data`; times kept for the spacing check.
   const std::size_t nch = record->channels.size();
-  const std::int64_t max_rows = kMaxCells / static_cast<std::int64_t>(nch);
+  const std::int64_t max_cells = std::min(options.max_cells, kMaxCells);
+  const std::int64_t max_rows = max_cells / static_cast<std::int64_t>(nch);
   std::vector<double> data;
   std::vector<double> times;
   std::vector<std::int64_t> blank_lines;  // pending blank lines (allowed at end of file only)
@@ -303,7 +304,7 @@ Status ParseRecordCsv(std::istream& in, const RecordReadOptions& options, Record
       return Status::InvalidArgument(Where(ln) +
                                      ": metadata line after the header (metadata must come first)");
     if (static_cast<std::int64_t>(times.size()) >= max_rows)
-      return Status::InvalidArgument(Where(ln) + ": more than " + std::to_string(kMaxCells) +
+      return Status::InvalidArgument(Where(ln) + ": more than " + std::to_string(max_cells) +
                                      " data cells (samples x channels)");
     std::size_t start = 0;
     for (std::size_t col = 1; col <= nch + 1; ++col) {

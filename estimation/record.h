@@ -98,6 +98,8 @@ struct RecordReadOptions {
   std::optional<std::string> units;      // override: "m/s2" or "g"
   std::optional<double> temperature_c;   // override
   std::optional<Excitation> excitation;  // override
+  // Cell limit (samples x channels), at most kMaxCells; only tests lower it.
+  std::int64_t max_cells = kMaxCells;
 };
 
 // Reads the CSV at `path`. Errors are prefixed with the path. On error the

@@ -114,12 +114,17 @@ Status RunSsiCov(const Eigen::MatrixXd& y, double fs, const SsiOptions& o, SsiRe
     return Status::InvalidArgument("SSI-COV: " + std::to_string(i) + " block rows x " + std::to_string(l) +
                                    " channels cannot carry model order " + std::to_string(o.max_order));
   const int kmax = 2 * i - 1;
-  const int n_seg = o.uncertainty_segments;
-  const Eigen::Index seg_len = n_seg > 0 ? n / n_seg : n;
-  if (seg_len < 20 * (kmax + 1))
+  const Eigen::Index min_len = kMinSamplesPerLag * (kmax + 1);
+  if (n < min_len)
     return Status::InvalidArgument("SSI-COV: " + std::to_string(n) + " samples are too few for " +
-                                   std::to_string(kmax) + " correlation lags" +
-                                   (n_seg > 0 ? " in " + std::to_string(n_seg) + " segments" : ""));
+                                   std::to_string(kmax) + " correlation lags (at least " +
+                                   std::to_string(min_len) + " needed)");
+  // Fewer segments when they would be too short; none below
+  // kMinSegmentsForStd (the cluster scatter is then used).
+  int n_seg = std::min<int>(o.uncertainty_segments, static_cast<int>(n / min_len));
+  if (n_seg < kMinSegmentsForStd) n_seg = 0;
+  const Eigen::Index seg_len = n_seg > 0 ? n / n_seg : n;
+  out->segments = n_seg;
   out->block_rows = i;
 
   // Correlations per segment; the whole-record correlations are their mean

@@ -67,6 +67,9 @@ inline constexpr double kMaxDampingRatio = 0.2;
 inline constexpr double kLagPeriods = 1.0;
 inline constexpr int kMaxHankelRows = 150;
 inline constexpr int kMinSegmentsForStd = 3;
+// Correlation estimates need many more samples than lags: a record (or
+// uncertainty segment) must hold at least this many samples per lag.
+inline constexpr int kMinSamplesPerLag = 20;
 // A segment pole belongs to a mode when within this relative frequency and
 // above this MAC.
 inline constexpr double kSegmentMatchTol = 0.05;
@@ -80,7 +83,7 @@ struct SsiOptions {
   double lo_hz = 0.0;            // poles outside [lo_hz, hi_hz] are dropped
   double hi_hz = 1e9;            // clipped to the Nyquist frequency
   double lowest_hz = 0.0;        // lowest frequency of interest for the automatic i; 0 = lo_hz
-  int uncertainty_segments = 6;  // 0 disables the segment runs
+  int uncertainty_segments = 6;  // upper bound; 0 disables the segment runs
 };
 
 struct SsiPole {
@@ -107,6 +110,7 @@ struct SsiMode {
 
 struct SsiResult {
   int block_rows = 0;
+  int segments = 0;                     // uncertainty segments used (0 = cluster scatter only)
   std::vector<SsiPole> poles;           // the stabilisation diagram (physical poles in band)
   std::vector<SsiMode> modes;           // ascending frequency
   std::vector<double> narrow_lines_hz;  // rejected near-zero-damping lines (harmonics)

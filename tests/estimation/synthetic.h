@@ -18,10 +18,10 @@
 namespace taut::testing {
 
 struct LumpedSystem {
-  Eigen::MatrixXd M, K, C;         // n x n
-  Eigen::VectorXd frequency_hz;    // undamped natural frequencies, ascending
-  Eigen::VectorXd damping_ratio;   // modal damping ratios
-  Eigen::MatrixXd shapes;          // columns: mass-normalised mode shapes
+  Eigen::MatrixXd M, K, C;        // n x n
+  Eigen::VectorXd frequency_hz;   // undamped natural frequencies, ascending
+  Eigen::VectorXd damping_ratio;  // modal damping ratios
+  Eigen::MatrixXd shapes;         // columns: mass-normalised mode shapes
 };
 
 // A classically damped system: C = M Phi diag(2 zeta_r omega_r) Phi^T M,
@@ -84,8 +84,8 @@ inline Eigen::MatrixXd SimulateAmbient(const LumpedSystem& s, double fs, Eigen::
 // measurement noise of std noise_share x the channel RMS.
 inline Eigen::MatrixXd SimulateModal(const std::vector<double>& f_hz, const std::vector<double>& zeta,
                                      const Eigen::MatrixXd& shapes,  // sensors x modes
-                                     const std::vector<double>& drive, double fs, Eigen::Index n, unsigned seed,
-                                     double noise_share = 0.02) {
+                                     const std::vector<double>& drive, double fs, Eigen::Index n,
+                                     unsigned seed, double noise_share = 0.02) {
   const Eigen::Index nm = shapes.cols();
   std::mt19937_64 rng(seed);
   std::normal_distribution<double> g(0.0, 1.0);

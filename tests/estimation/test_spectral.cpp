@@ -1,6 +1,7 @@
 // Conditioning and spectral estimation (conditioning.h, spectral.h, fdd.h)
 // against a reference library and closed-form results.
 #include <gtest/gtest.h>
+#include <unistd.h>
 
 #include <cmath>
 #include <complex>
@@ -8,10 +9,9 @@
 #include <cstdlib>
 #include <filesystem>
 #include <fstream>
+#include <iostream>
 #include <random>
 #include <string>
-#include <unistd.h>
-#include <iostream>
 
 #include "estimation/conditioning.h"
 #include "estimation/fdd.h"
@@ -56,11 +56,14 @@ TEST(Welch, MatchesScipy) {
   }
   const std::string script =
       "import numpy as np, scipy.signal as s\n"
-      "x = np.loadtxt('" + (dir / "x.txt").string() + "')\n"
+      "x = np.loadtxt('" +
+      (dir / "x.txt").string() +
+      "')\n"
       "f, p0 = s.welch(x[:,0], fs=200.0, window='hann', nperseg=512, noverlap=256)\n"
       "_, p1 = s.welch(x[:,1], fs=200.0, window='hann', nperseg=512, noverlap=256)\n"
       "_, c = s.csd(x[:,0], x[:,1], fs=200.0, window='hann', nperseg=512, noverlap=256)\n"
-      "np.savetxt('" + (dir / "p.txt").string() + "', np.column_stack([f, p0, p1, c.real, c.imag]), fmt='%.17g')\n";
+      "np.savetxt('" +
+      (dir / "p.txt").string() + "', np.column_stack([f, p0, p1, c.real, c.imag]), fmt='%.17g')\n";
   {
     std::ofstream f(dir / "ref.py");
     f << script;
