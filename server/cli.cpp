@@ -12,6 +12,7 @@ int Main(int argc, const char* const* argv, std::ostream& out, std::ostream& err
   CliContext ctx{&out, &err, 0};
   RegisterModesCommand(app, &ctx);
   RegisterSimulateCommand(app, &ctx);
+  RegisterIdentifyCommand(app, &ctx);
   RegisterModalCommand(app, &ctx);
   try {
     app.parse(argc, argv);

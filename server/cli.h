@@ -19,6 +19,7 @@ struct CliContext {
 
 void RegisterModesCommand(CLI::App& app, CliContext* ctx);
 void RegisterSimulateCommand(CLI::App& app, CliContext* ctx);
+void RegisterIdentifyCommand(CLI::App& app, CliContext* ctx);
 void RegisterModalCommand(CLI::App& app, CliContext* ctx);
 
 // Parses argv and runs the chosen subcommand; returns the exit code.

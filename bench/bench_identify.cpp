@@ -1,0 +1,145 @@
+// Identification speed (issue 4: whole `identify` under 100 ms median with
+// unknown N, EI and two fixities). Run by hand:
+//   build/bench/bench_identify --benchmark_repetitions=10 --benchmark_report_aggregates_only=true
+// The counter "model_calls" is the number of forward-model solves per
+// identification.
+#include <benchmark/benchmark.h>
+
+#include <chrono>
+#include <cmath>
+#include <cstdio>
+#include <filesystem>
+#include <random>
+
+#include "estimation/identify.h"
+#include "estimation/modal_id.h"
+#include "estimation/record.h"
+#include "model/modal.h"
+#include "tests/server/synthetic_record.h"
+
+namespace {
+
+using taut::model::Direction;
+
+// An invented 6 m, 30 mm round tie with three vertical sensors and two
+// elastic ends (the unknowns: N, EI, both fixities).
+taut::model::Member BenchMember() {
+  taut::model::Member m;
+  m.id = "bench-tie";
+  m.length_m = 6.0;
+  m.section.diameter_m = 0.030;
+  m.elastic_modulus_pa = 2.0e11;
+  m.density_kg_m3 = 7850.0;
+  const double x[3] = {1.2, 2.7, 4.2};
+  for (int i = 0; i < 3; ++i)
+    m.sensors.push_back({"a" + std::to_string(i + 1), x[i], 0.03, Direction::kVertical});
+  m.design_axial_force_n = 30000.0;
+  return m;
+}
+
+// Four modes from the forward model (fine mesh) at N = 30 kN, fixities
+// 0.4 / 0.6, with 0.2 % frequency noise and 0.03 shape noise.
+taut::estimation::ModalIdentification BenchModes(const taut::model::Member& m) {
+  taut::model::ModalParameters p;
+  p.axial_force_n = 30000.0;
+  p.fixity_left = 0.4;
+  p.fixity_right = 0.6;
+  taut::model::ModalResult r;
+  (void)taut::model::ComputeModes(m, Direction::kVertical, p, 4, &r, {160});
+  std::mt19937 rng(7);
+  std::normal_distribution<double> unit(0.0, 1.0);
+  taut::estimation::ModalIdentification id;
+  id.channels = r.channels;
+  for (const auto& mode : r.modes) {
+    taut::estimation::IdentifiedMode im;
+    im.frequency_std_hz = 2e-3 * mode.frequency_hz;
+    im.frequency_hz = mode.frequency_hz + im.frequency_std_hz * unit(rng);
+    double amax = 0.0;
+    for (double v : mode.shape_at_sensors) amax = std::max(amax, std::abs(v));
+    for (double v : mode.shape_at_sensors) im.shape.push_back(v / amax + 0.03 * unit(rng));
+    id.modes.push_back(im);
+  }
+  return id;
+}
+
+void BM_IdentifyFromModes(benchmark::State& state) {
+  const auto member = BenchMember();
+  const auto modes = BenchModes(member);
+  taut::estimation::IdentifyOptions options;
+  options.shape_std = 0.03;
+  long calls = 0, profile_calls = 0;
+  for (auto _ : state) {
+    taut::estimation::Estimate e;
+    auto s = taut::estimation::IdentifyFromModes(member, modes, options, &e);
+    if (!s.ok()) state.SkipWithError(s.message.c_str());
+    calls = e.fit.forward_model_calls;
+    profile_calls = e.fit.profile_model_calls;
+    benchmark::DoNotOptimize(e);
+  }
+  state.counters["model_calls"] = static_cast<double>(calls);
+  state.counters["profile_calls"] = static_cast<double>(profile_calls);
+}
+BENCHMARK(BM_IdentifyFromModes)->Unit(benchmark::kMillisecond);
+
+// The whole `identify` path of the issue: a 300 s, 3-channel, 512 Hz record
+// (synthesised once, tests/server/synthetic_record.h: five modes of the tie
+// at N = 30 kN, fixities 0.4 / 0.6, 1 % damping, 2 % sensor noise) is read,
+// its modes identified and the member model updated, every iteration.
+void BM_IdentifyFromRecord(benchmark::State& state) {
+  const auto member = BenchMember();
+  taut::model::ModalParameters p;
+  p.axial_force_n = 30000.0;
+  p.fixity_left = 0.4;
+  p.fixity_right = 0.6;
+  taut::testing::RecordSpec spec;
+  spec.duration_s = 300.0;
+  spec.sample_rate_hz = 512.0;
+  const std::string path = (std::filesystem::temp_directory_path() / "taut-bench-identify.csv").string();
+  if (!taut::testing::WriteSyntheticRecord(path, member, Direction::kVertical, p, spec)) {
+    state.SkipWithError("cannot write the synthetic record");
+    return;
+  }
+  long calls = 0, profile_calls = 0;
+  double force = 0.0;
+  // Mean CPU-independent wall time per stage [ms], to show where the time goes.
+  double read_ms = 0.0, modal_ms = 0.0, update_ms = 0.0;
+  using Clock = std::chrono::steady_clock;
+  auto ms = [](Clock::time_point a, Clock::time_point b) {
+    return std::chrono::duration<double, std::milli>(b - a).count();
+  };
+  for (auto _ : state) {
+    taut::estimation::RecordReadOptions ro;
+    ro.member = &member;
+    taut::estimation::Record record;
+    const auto t0 = Clock::now();
+    auto s = taut::estimation::ReadRecordCsv(path, ro, &record);
+    const auto t1 = Clock::now();
+    taut::estimation::ModalIdentification modes;
+    if (s.ok()) s = taut::estimation::IdentifyModes(record, {}, &modes);
+    const auto t2 = Clock::now();
+    taut::estimation::Estimate e;
+    if (s.ok()) s = taut::estimation::IdentifyFromModes(member, modes, {}, &e);
+    const auto t3 = Clock::now();
+    read_ms += ms(t0, t1);
+    modal_ms += ms(t1, t2);
+    update_ms += ms(t2, t3);
+    if (!s.ok()) {
+      state.SkipWithError(s.message.c_str());
+      break;
+    }
+    calls = e.fit.forward_model_calls;
+    profile_calls = e.fit.profile_model_calls;
+    force = e.axial_force_n.value;
+    benchmark::DoNotOptimize(e);
+  }
+  state.counters["model_calls"] = static_cast<double>(calls);
+  state.counters["force_n"] = force;
+  state.counters["profile_calls"] = static_cast<double>(profile_calls);
+  state.counters["read_ms"] = benchmark::Counter(read_ms, benchmark::Counter::kAvgIterations);
+  state.counters["modal_id_ms"] = benchmark::Counter(modal_ms, benchmark::Counter::kAvgIterations);
+  state.counters["update_ms"] = benchmark::Counter(update_ms, benchmark::Counter::kAvgIterations);
+  std::remove(path.c_str());
+}
+BENCHMARK(BM_IdentifyFromRecord)->Unit(benchmark::kMillisecond);
+
+}  // namespace

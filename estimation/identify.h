@@ -1,0 +1,168 @@
+// Model updating: identified modes -> axial force N, bending stiffness EI
+// and end fixities of a member, with intervals, identifiability and
+// cautions (issue 4; DESIGN.md "Estimation" step 4).
+//
+// Sign convention: N > 0 in tension. Units: SI, suffix on every field.
+//
+// Unknowns (internal, scaled so that Ceres' relative finite-difference step
+// means the same thing for each, see identify.cpp):
+//   N                      axial force, bounded below only by buckling,
+//   ln EI                  EI > 0,
+//   r_left, r_right        fixity factors in [0, 1] of `elastic` ends only
+//                          (pinned, clamped and known-spring ends are held).
+// Objective (Ceres: cost = 1/2 sum of squared residuals):
+//   per paired mode k:   (f_k - f_model,k(theta)) / sigma_k,
+//                        sigma_k = max(frequency_std_hz, kMinRelativeFrequencyStd f_k);
+//   per paired mode k and in-plane channel c (two or more channels):
+//                        (phi_k,c - alpha_k psi_k,c(theta)) / shape_std,
+//                        alpha_k = psi_k^T phi_k / psi_k^T psi_k (the scale of
+//                        the model shape psi fitted in closed form, so the
+//                        residual is free of the measured shape's scale and sign);
+//   prior:               (ln EI - ln EI_nominal) / ei_prior_sigma_ln.
+// Uncertainty: Gauss-Newton covariance from ceres::Covariance (DENSE_SVD)
+// scaled by the reduced chi-square when above 1; the N interval is the wider
+// of the Wald interval and the profile-likelihood interval (N held on a
+// grid, the other unknowns re-optimised, boundary at a rise of the
+// chi-square by 3.841, the 95 % point of chi-square with one degree of
+// freedom; Pawitan, In All Likelihood, 2001, ch. 3 and 9).
+// Identifiability: the eigen-decomposition of J^T J (J the weighted
+// Jacobian at the estimate, columns in natural units: N relative to itself,
+// ln EI, r over its range) names the unknowns with a component >= 0.3 in
+// any direction whose std exceeds half a natural unit. Such a fixity is
+// reported with the whole range [0, 1] and enters the covariance with a
+// uniform-range prior (std 1/sqrt(12)), so N and EI are not conditioned on
+// an arbitrary point of the valley; the profile of N re-optimises it within
+// [0, 1]. A caution names what cannot be separated; an N interval the data
+// do not close is reported as the searched range with a caution.
+// Sequence: order search and pinned-beam regression (pairing.h) -> pairing
+// at a Newton-corrected mid-fixity start -> mesh chosen so its frequency
+// error is below 0.1 std -> Levenberg-Marquardt from every start (the
+// first one and a grid of fixities) -> re-pairing at the best -> covariance,
+// identifiability, profile -> cautions.
+#pragma once
+
+#include <optional>
+#include <string>
+#include <vector>
+
+#include "estimation/cautions.h"
+#include "estimation/modes.h"
+#include "estimation/pairing.h"
+#include "model/member.h"
+#include "model/status.h"
+
+namespace taut::estimation {
+
+// Frequency std floor as a share of the frequency: an identified std below
+// 1e-4 f is not credible for a real member (environmental scatter alone is
+// larger; common practice, recalled value), and a tiny std would make the
+// fit chase discretisation error.
+inline constexpr double kMinRelativeFrequencyStd = 1e-4;
+// Fixity within this distance of 0 or 1 is reported as "at a bound".
+inline constexpr double kFixityBoundDistance = 0.01;
+// Interval width (upper - lower) above this share of the value: caution.
+inline constexpr double kWideIntervalShare = 0.20;
+// Reduced chi-square above this: poor-fit caution.
+inline constexpr double kPoorFitReducedChi2 = 3.0;
+// Compression |N| above this share of the critical load: near-buckling caution.
+inline constexpr double kNearBucklingShare = 0.5;
+// |N - N_design| above this share of N_design: far-from-design caution.
+inline constexpr double kDesignForceDeviationShare = 0.3;
+// Impact records: a shift of the backbone frequency over the decay above
+// this share raises the large-amplitude caution (0.5 % is several frequency
+// stds of a good record; common practice, recalled value).
+inline constexpr double kLargeAmplitudeFrequencyShift = 0.005;
+// Slenderness L / r_g below which Euler-Bernoulli theory is doubtful
+// (DESIGN.md; shear and rotary inertia matter for stockier members).
+inline constexpr double kStockySlenderness = 50.0;
+
+struct IdentifyOptions {
+  // One-sigma of the shape components, as a share of the largest component
+  // (shapes are scaled to max |.| = 1): 0.05 is a common-practice figure
+  // for ambient-vibration shapes with a few sensors (recalled value).
+  double shape_std = 0.05;
+  // Weak prior on EI around the member's nominal E I: one sigma of ln EI.
+  double ei_prior_sigma_ln = 0.15;
+  // Mesh of the forward model. The identification starts with
+  // max(min_elements, elements_per_order * highest order) elements and
+  // doubles them until the frequency change on doubling is below
+  // max_mesh_error_sigma of every frequency std.
+  int min_elements = 20;
+  int elements_per_order = 4;
+  double max_mesh_error_sigma = 0.1;
+  // Ceres limits per start.
+  int max_iterations = 60;
+  // Fixity grid for the extra starts (values for each elastic end).
+  std::vector<double> start_fixities = {0.2, 0.8};
+  PairingOptions pairing;
+  // Compute the profile-likelihood interval of N (a few extra fits).
+  bool profile_axial_force = true;
+};
+
+// One identified quantity: value, one-sigma std and 95 % interval, or
+// `fixed` when the member description sets it (no interval then).
+struct EstimatedQuantity {
+  double value = 0.0;
+  double std = 0.0;
+  double ci95_low = 0.0;
+  double ci95_high = 0.0;
+  bool fixed = false;
+  // false when the data cannot determine it (see Estimate::identifiability);
+  // the interval is then the whole admissible range or the profile range.
+  bool identifiable = true;
+};
+
+// A measured mode with its pairing.
+struct EstimatedMode {
+  IdentifiedMode measured;  // order set when paired
+  bool paired = false;
+  double model_frequency_hz = 0.0;  // at the estimate (paired modes)
+  double mac = 0.0;                 // measured vs model shape at the in-plane channels
+};
+
+struct FitSummary {
+  bool converged = false;
+  double cost = 0.0;          // Ceres cost 1/2 sum r^2 at the best start
+  double reduced_chi2 = 0.0;  // 2 cost / degrees of freedom (0 when dof <= 0)
+  int degrees_of_freedom = 0;
+  int iterations = 0;  // of the best start
+  int starts = 0;
+  int starts_at_best = 0;                     // starts that ended at the best minimum
+  double seconds = 0.0;                       // wall time of the whole identification
+  long forward_model_calls = 0;               // every ModalModel::Solve of the identification
+  long profile_model_calls = 0;               // of which in the profile-likelihood interval
+  int elements = 0;                           // mesh used
+  std::string axial_force_interval = "wald";  // or "profile" (the wider one)
+};
+
+struct Estimate {
+  model::Direction direction = model::Direction::kVertical;
+  std::vector<std::string> channels;  // the in-plane record channels used
+  // The channels of every EstimatedMode::measured.shape (all record channels).
+  std::vector<std::string> shape_channels;
+  EstimatedQuantity axial_force_n;  // tension > 0
+  EstimatedQuantity bending_stiffness_nm2;
+  EstimatedQuantity fixity_left;  // r in [0, 1]
+  EstimatedQuantity fixity_right;
+  std::vector<EstimatedMode> modes;     // every measured mode, ascending frequency
+  double critical_compression_n = 0.0;  // at the estimate
+  // Plain-words identifiability verdict, e.g. "all unknowns separated" or
+  // "the data cannot separate: N, fixity left".
+  std::string identifiability;
+  FitSummary fit;
+  Cautions cautions;
+  std::string notice;
+};
+
+// Estimates N, EI and the elastic fixities of `member` from `modes`.
+// Preconditions checked (kInvalidArgument, message names the value):
+// ValidateMember(member); every channel of `modes` is a sensor of the
+// member; shapes have one entry per channel; frequencies and stds finite
+// and > 0; at least one mode pairs with a model bending mode.
+// The plane is that of the majority of the record's channels (vertical on a
+// tie); channels of the other plane are ignored with a caution.
+// A result with cautions is ok(); kNumerical when every start failed.
+Status IdentifyFromModes(const model::Member& member, const ModalIdentification& modes,
+                         const IdentifyOptions& options, Estimate* estimate);
+
+}  // namespace taut::estimation

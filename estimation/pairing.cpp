@@ -1,0 +1,208 @@
+#include "estimation/pairing.h"
+
+#include <Eigen/Dense>
+#include <algorithm>
+#include <cmath>
+#include <limits>
+#include <numbers>
+#include <sstream>
+
+namespace taut::estimation {
+
+namespace {
+
+// Score terms of the order search (all in chi-square units, so that 4 is a
+// "two-sigma" surprise and 9 a "three-sigma" one).
+// A measured shape that differs from the pinned shape by 1 - MAC = 0.1
+// costs one unit: shapes of elastically restrained ends stay within a few
+// hundredths of MAC of the pinned ones at low orders.
+constexpr double kOrderSearchMacScale = 0.1;
+// A missing order that the sensors would see costs a two-sigma surprise; a
+// mode left out of the hypothesis a three-sigma one.
+constexpr double kMissingOrderPenalty = 4.0;
+constexpr double kLeftOutModePenalty = 9.0;
+// A pinned shape whose largest |sin(n pi x/L)| over the sensors is below
+// this is taken as invisible (sensors near nodes), so its absence is free.
+constexpr double kVisibleShapeAmplitude = 0.3;
+
+double PinnedShapeAt(int n, double x, double length) { return std::sin(n * std::numbers::pi * x / length); }
+
+struct Searcher {
+  const OrderSearchInput& in;
+  int modes;
+  std::vector<int> order;
+  OrderHypothesis best;
+  bool found = false;
+
+  void Leaf() {
+    double n_reg = 0.0, ei_reg = 0.0, chi2 = 0.0;
+    if (!PinnedBeamRegression(in, order, &n_reg, &ei_reg, &chi2).ok()) return;
+    if (!(ei_reg > 0.0)) return;
+    const double n_euler = std::numbers::pi * std::numbers::pi * ei_reg / (in.length_m * in.length_m);
+    if (!(n_reg > -n_euler)) return;
+    double score = chi2 + std::pow(std::log(ei_reg / in.nominal_ei_nm2) / in.ei_prior_sigma_ln, 2);
+    int highest = 0;
+    std::vector<bool> used(kOrderSearchMaxOrder + kOrderSearchMaxStep + 2, false);
+    for (int i = 0; i < modes; ++i) {
+      if (order[i] == 0) {
+        score += kLeftOutModePenalty;
+        continue;
+      }
+      used[order[i]] = true;
+      highest = std::max(highest, order[i]);
+      if (in.sensor_x_m.size() >= 2) {
+        std::vector<double> pinned;
+        for (double x : in.sensor_x_m) pinned.push_back(PinnedShapeAt(order[i], x, in.length_m));
+        score += std::pow((1.0 - Mac(in.shape[i], pinned)) / kOrderSearchMacScale, 2);
+      }
+    }
+    for (int n = 1; n < highest; ++n) {
+      if (used[n]) continue;
+      double amplitude = 0.0;
+      for (double x : in.sensor_x_m)
+        amplitude = std::max(amplitude, std::abs(PinnedShapeAt(n, x, in.length_m)));
+      if (amplitude >= kVisibleShapeAmplitude) score += kMissingOrderPenalty;
+    }
+    if (!found || score < best.score) {
+      found = true;
+      best.order = order;
+      best.axial_force_n = n_reg;
+      best.bending_stiffness_nm2 = ei_reg;
+      best.score = score;
+    }
+  }
+
+  void Recurse(int i, int last) {
+    if (i == modes) {
+      Leaf();
+      return;
+    }
+    order[i] = 0;
+    Recurse(i + 1, last);
+    for (int step = 1; step <= kOrderSearchMaxStep; ++step) {
+      const int n = last + step;
+      if (n > kOrderSearchMaxOrder) break;
+      order[i] = n;
+      Recurse(i + 1, n);
+    }
+    order[i] = 0;
+  }
+};
+
+}  // namespace
+
+double Mac(const std::vector<double>& a, const std::vector<double>& b) {
+  if (a.size() != b.size() || a.empty()) return 0.0;
+  double ab = 0.0, aa = 0.0, bb = 0.0;
+  for (size_t i = 0; i < a.size(); ++i) {
+    ab += a[i] * b[i];
+    aa += a[i] * a[i];
+    bb += b[i] * b[i];
+  }
+  if (aa <= 0.0 || bb <= 0.0) return 0.0;
+  return ab * ab / (aa * bb);
+}
+
+Status PinnedBeamRegression(const OrderSearchInput& in, const std::vector<int>& order, double* axial_force_n,
+                            double* bending_stiffness_nm2, double* chi2) {
+  const double pi2 = std::numbers::pi * std::numbers::pi;
+  const double m = in.mass_per_length_kg_m, length = in.length_m;
+  // Unknowns (a, b): f_n^2/n^2 = a + b n^2, a = N/(4 m L^2), b = pi^2 EI/(4 m L^4).
+  int rows = 1;
+  for (int n : order) rows += (n > 0);
+  if (rows < 2) return Status::InvalidArgument("pinned-beam regression: no mode has an order");
+  Eigen::MatrixXd A(rows, 2);
+  Eigen::VectorXd y(rows);
+  int r = 0;
+  for (size_t i = 0; i < order.size(); ++i) {
+    const int n = order[i];
+    if (n <= 0) continue;
+    const double f = in.frequency_hz[i];
+    const double sigma_f = std::max(in.frequency_std_hz[i], kOrderSearchModelTolerance * f);
+    // sigma of y = f^2/n^2 by first-order propagation: 2 f sigma_f / n^2.
+    const double w = 1.0 / (2.0 * f * sigma_f / (n * n));
+    A(r, 0) = w;
+    A(r, 1) = w * n * n;
+    y[r] = w * f * f / (n * n);
+    ++r;
+  }
+  const double b_nominal = pi2 * in.nominal_ei_nm2 / (4.0 * m * std::pow(length, 4));
+  const double w_prior = 1.0 / (in.ei_prior_sigma_ln * b_nominal);
+  A(r, 0) = 0.0;
+  A(r, 1) = w_prior;
+  y[r] = w_prior * b_nominal;
+  Eigen::ColPivHouseholderQR<Eigen::MatrixXd> qr(A);
+  if (qr.rank() < 2) return Status::Numerical("pinned-beam regression: singular least-squares system");
+  const Eigen::Vector2d ab = qr.solve(y);
+  const Eigen::VectorXd res = A * ab - y;
+  *chi2 = res.head(rows - 1).squaredNorm();
+  *axial_force_n = 4.0 * m * length * length * ab[0];
+  *bending_stiffness_nm2 = 4.0 * m * std::pow(length, 4) * ab[1] / pi2;
+  return Status::Ok();
+}
+
+Status SearchModeOrders(const OrderSearchInput& in, OrderHypothesis* best) {
+  const size_t total = in.frequency_hz.size();
+  if (total == 0) return Status::InvalidArgument("order search: no measured modes");
+  if (in.frequency_std_hz.size() != total || in.shape.size() != total) {
+    return Status::InvalidArgument("order search: frequency, std and shape lists differ in length");
+  }
+  if (!(in.length_m > 0.0 && in.mass_per_length_kg_m > 0.0 && in.nominal_ei_nm2 > 0.0 &&
+        in.ei_prior_sigma_ln > 0.0)) {
+    return Status::InvalidArgument("order search: length, mass, nominal EI and prior sigma must be > 0");
+  }
+  Searcher s{in, static_cast<int>(std::min<size_t>(total, kOrderSearchMaxModes)), {}, {}, false};
+  s.order.assign(s.modes, 0);
+  s.Recurse(0, 0);
+  if (!s.found) {
+    std::ostringstream os;
+    os << "no assignment of bending orders to the " << total
+       << " measured modes gives a positive bending stiffness and a force above the Euler load "
+          "(lowest frequency "
+       << in.frequency_hz[0] << " Hz)";
+    return Status::InvalidArgument(os.str());
+  }
+  s.best.order.resize(total, 0);  // modes beyond the search are paired by the model
+  *best = s.best;
+  return Status::Ok();
+}
+
+std::vector<ModePair> PairModes(const std::vector<double>& measured_frequency_hz,
+                                const std::vector<std::vector<double>>& measured_shape,
+                                const std::vector<int>& model_index, const model::ModalResult& model,
+                                const PairingOptions& options) {
+  struct Candidate {
+    double score;
+    size_t i, j;
+    double mac;
+  };
+  std::vector<Candidate> candidates;
+  for (size_t i = 0; i < measured_frequency_hz.size(); ++i) {
+    for (size_t j = 0; j < model.modes.size(); ++j) {
+      const model::Mode& mode = model.modes[j];
+      const double df = (measured_frequency_hz[i] - mode.frequency_hz) / mode.frequency_hz;
+      if (std::abs(df) > options.max_relative_frequency_difference) continue;
+      std::vector<double> model_shape;
+      for (int k : model_index) model_shape.push_back(mode.shape_at_sensors[k]);
+      const double mac = model_index.size() >= 2 ? Mac(measured_shape[i], model_shape) : 1.0;
+      if (model_index.size() >= 2 && mac < options.min_mac) continue;
+      const double score = std::pow(df / options.max_relative_frequency_difference, 2) +
+                           std::pow((1.0 - mac) / (1.0 - options.min_mac), 2);
+      candidates.push_back({score, i, j, mac});
+    }
+  }
+  std::sort(candidates.begin(), candidates.end(),
+            [](const Candidate& a, const Candidate& b) { return a.score < b.score; });
+  std::vector<ModePair> pairs(measured_frequency_hz.size());
+  std::vector<bool> model_used(model.modes.size(), false);
+  for (const Candidate& c : candidates) {
+    if (pairs[c.i].order || model_used[c.j]) continue;
+    model_used[c.j] = true;
+    pairs[c.i].order = model.modes[c.j].order;
+    pairs[c.i].model_frequency_hz = model.modes[c.j].frequency_hz;
+    pairs[c.i].mac = c.mac;
+  }
+  return pairs;
+}
+
+}  // namespace taut::estimation

@@ -1,0 +1,170 @@
+// `taut identify`: member + record -> axial force, bending stiffness and end
+// fixity with intervals (record reader -> modal identification -> model
+// updating), as a short table or the FORMATS.md section 3 JSON object.
+#include <iomanip>
+#include <nlohmann/json.hpp>
+#include <ostream>
+#include <sstream>
+
+#include "estimation/identify.h"
+#include "estimation/modal_id.h"
+#include "estimation/record.h"
+#include "server/cli.h"
+#include "server/estimate_json.h"
+#include "server/member_json.h"
+
+namespace taut::server {
+
+namespace {
+
+struct IdentifyCliOptions {
+  std::string member_path;
+  std::string record_path;
+  std::optional<std::string> units;
+  std::optional<double> temperature_c;
+  bool json = false;
+};
+
+std::string Fixed(double v, int decimals) {
+  std::ostringstream os;
+  os << std::fixed << std::setprecision(decimals) << v;
+  return os.str();
+}
+
+std::string Sig(double v, int digits = 4) {
+  std::ostringstream os;
+  os << std::setprecision(digits) << v;
+  return os.str();
+}
+
+void PrintQuantity(std::ostream& out, const std::string& name, const estimation::EstimatedQuantity& q,
+                   double scale, int decimals, const std::string& unit, const std::string& fixed_text) {
+  out << "  " << std::left << std::setw(19) << name << std::right;
+  if (q.fixed) {
+    out << fixed_text << "\n";
+    return;
+  }
+  out << std::setw(10) << Fixed(q.value / scale, decimals) << " " << std::left << std::setw(6) << unit
+      << std::right << " 95 % [" << Fixed(q.ci95_low / scale, decimals) << ", "
+      << Fixed(q.ci95_high / scale, decimals) << "]  std " << Fixed(q.std / scale, decimals);
+  if (!q.identifiable) out << "  (not determined by the data)";
+  out << "\n";
+}
+
+std::string FixedEndText(const model::RotationEnd& end, double r) {
+  switch (end.kind) {
+    case model::RotationEnd::Kind::kPinned:
+      return "pinned (declared, r = 0)";
+    case model::RotationEnd::Kind::kClamped:
+      return "clamped (declared, r = 1)";
+    case model::RotationEnd::Kind::kSpring:
+      return "known spring (declared, r = " + Fixed(r, 3) + ")";
+    case model::RotationEnd::Kind::kElastic:
+      break;
+  }
+  return "";
+}
+
+void PrintTable(std::ostream& out, const model::Member& member, const std::string& member_label,
+                const estimation::Record& record, const estimation::Estimate& e) {
+  out << "member " << member_label << ", " << model::ToString(e.direction) << " plane, channels";
+  for (const auto& c : e.channels) out << " " << c;
+  out << "\nrecord " << Fixed(record.duration_s(), 1) << " s at " << Sig(record.sample_rate_hz) << " Hz";
+  if (!record.recorded_at.empty()) out << ", recorded " << record.recorded_at;
+  if (record.temperature_c) out << ", " << Fixed(*record.temperature_c, 1) << " C";
+  out << "\n\n";
+  PrintQuantity(out, "axial force", e.axial_force_n, 1000.0, 2, "kN", "");
+  out << "  " << std::setw(19) << ""
+      << "(tension > 0; interval: " << e.fit.axial_force_interval << ")\n";
+  PrintQuantity(out, "bending stiffness", e.bending_stiffness_nm2, 1.0, 0, "N m^2", "");
+  PrintQuantity(out, "fixity left", e.fixity_left, 1.0, 3, "",
+                FixedEndText(member.left, e.fixity_left.value));
+  PrintQuantity(out, "fixity right", e.fixity_right, 1.0, 3, "",
+                FixedEndText(member.right, e.fixity_right.value));
+  out << "\n  " << std::setw(6) << "order" << std::setw(14) << "measured_hz" << std::setw(10) << "std_hz"
+      << std::setw(12) << "model_hz" << std::setw(8) << "MAC"
+      << "\n";
+  for (const auto& m : e.modes) {
+    out << "  " << std::setw(6) << (m.paired && m.measured.order ? std::to_string(*m.measured.order) : "-")
+        << std::setw(14) << Fixed(m.measured.frequency_hz, 4) << std::setw(10)
+        << Fixed(m.measured.frequency_std_hz, 4);
+    if (m.paired) {
+      out << std::setw(12) << Fixed(m.model_frequency_hz, 4) << std::setw(8) << Fixed(m.mac, 3);
+    } else {
+      out << "    unpaired";
+    }
+    out << "\n";
+  }
+  out << "\n  fit: " << (e.fit.converged ? "converged" : "NOT converged") << ", reduced chi-square "
+      << Sig(e.fit.reduced_chi2, 3) << ", " << e.fit.starts << " starts (" << e.fit.starts_at_best
+      << " at the best), " << e.fit.forward_model_calls << " model solves, " << Fixed(e.fit.seconds, 3)
+      << " s\n  " << e.identifiability << "\n";
+  if (!e.cautions.empty()) {
+    out << "\ncautions:\n";
+    for (const auto& c : e.cautions) out << "  - " << c.code << ": " << c.message << "\n";
+  }
+  out << "\n" << e.notice << "\n";
+}
+
+int RunIdentify(const IdentifyCliOptions& o, std::ostream& out, std::ostream& err) {
+  model::Member member;
+  if (Status s = LoadMemberFile(o.member_path, &member); !s.ok()) {
+    err << "taut identify: " << s.message << "\n";
+    return 1;
+  }
+  estimation::RecordReadOptions ro;
+  ro.member = &member;
+  ro.units = o.units;
+  ro.temperature_c = o.temperature_c;
+  estimation::Record record;
+  if (Status s = estimation::ReadRecordCsv(o.record_path, ro, &record); !s.ok()) {
+    err << "taut identify: " << s.message << "\n";
+    return 1;
+  }
+  estimation::ModalIdentification modes;
+  if (Status s = estimation::IdentifyModes(record, estimation::ModalIdOptions{}, &modes); !s.ok()) {
+    err << "taut identify: " << o.record_path << ": " << s.message << "\n";
+    return 1;
+  }
+  estimation::Estimate estimate;
+  if (Status s = estimation::IdentifyFromModes(member, modes, estimation::IdentifyOptions{}, &estimate);
+      !s.ok()) {
+    err << "taut identify: " << o.record_path << ": " << s.message << "\n";
+    return 1;
+  }
+  if (o.json) {
+    nlohmann::json j = EstimateToJson(estimate);
+    // Record context beside the contract keys (FORMATS.md: "at least").
+    j["member"] = member.id;
+    j["record"] = {{"recorded_at", record.recorded_at},
+                   {"temperature_c",
+                    record.temperature_c ? nlohmann::json(*record.temperature_c) : nlohmann::json(nullptr)},
+                   {"duration_s", record.duration_s()},
+                   {"sample_rate_hz", record.sample_rate_hz}};
+    out << j.dump(2) << "\n";
+    return 0;
+  }
+  PrintTable(out, member, member.id.empty() ? o.member_path : member.id, record, estimate);
+  return 0;
+}
+
+}  // namespace
+
+void RegisterIdentifyCommand(CLI::App& app, CliContext* ctx) {
+  auto o = std::make_shared<IdentifyCliOptions>();
+  CLI::App* cmd = app.add_subcommand(
+      "identify", "Axial force, bending stiffness and end fixity of a member from an acceleration record");
+  cmd->add_option("--member", o->member_path, "member description (JSON, FORMATS.md section 1)")
+      ->required()
+      ->check(CLI::ExistingFile);
+  cmd->add_option("--record", o->record_path, "acceleration record (CSV, FORMATS.md section 2)")
+      ->required()
+      ->check(CLI::ExistingFile);
+  cmd->add_option("--units", o->units, "units of the record samples, overriding the file (m/s2 or g)")
+      ->check(CLI::IsMember({"m/s2", "g"}));
+  cmd->add_option("--temperature", o->temperature_c, "member temperature [C], overriding the file");
+  cmd->add_flag("--json", o->json, "print the JSON result (FORMATS.md section 3) instead of a table");
+  cmd->callback([o, ctx] { ctx->exit_code = RunIdentify(*o, *ctx->out, *ctx->err); });
+}
+
+}  // namespace taut::server

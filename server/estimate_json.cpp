@@ -1,0 +1,76 @@
+#include "server/estimate_json.h"
+
+#include <cmath>
+
+namespace taut::server {
+
+namespace {
+
+// JSON has no Inf/NaN (nlohmann writes null); a non-finite number here is
+// a bug upstream, and null is the honest rendering of "no number".
+nlohmann::json Number(double v) { return std::isfinite(v) ? nlohmann::json(v) : nlohmann::json(nullptr); }
+
+nlohmann::json Quantity(const estimation::EstimatedQuantity& q) {
+  if (q.fixed) return {{"value", Number(q.value)}, {"fixed", true}};
+  return {{"value", Number(q.value)},
+          {"std", Number(q.std)},
+          {"ci95", nlohmann::json::array({Number(q.ci95_low), Number(q.ci95_high)})}};
+}
+
+nlohmann::json Shape(const estimation::Estimate& e, const estimation::IdentifiedMode& m) {
+  nlohmann::json shape = nlohmann::json::object();
+  for (size_t c = 0; c < e.shape_channels.size() && c < m.shape.size(); ++c) {
+    shape[e.shape_channels[c]] = Number(m.shape[c]);
+  }
+  return shape;
+}
+
+}  // namespace
+
+nlohmann::json EstimateToJson(const estimation::Estimate& e) {
+  nlohmann::json j;
+  j["axial_force_n"] = Quantity(e.axial_force_n);
+  j["bending_stiffness_nm2"] = Quantity(e.bending_stiffness_nm2);
+  j["end_fixity"] = {{"left", Quantity(e.fixity_left)}, {"right", Quantity(e.fixity_right)}};
+  j["modes"] = nlohmann::json::array();
+  j["unpaired_modes"] = nlohmann::json::array();
+  for (const auto& m : e.modes) {
+    const auto& id = m.measured;
+    if (m.paired && id.order) {
+      j["modes"].push_back({{"order", *id.order},
+                            {"frequency_hz", Number(id.frequency_hz)},
+                            {"frequency_std_hz", Number(id.frequency_std_hz)},
+                            {"damping_ratio", Number(id.damping_ratio)},
+                            {"shape", Shape(e, id)},
+                            {"model_frequency_hz", Number(m.model_frequency_hz)},
+                            {"mac", Number(m.mac)}});
+    } else {
+      j["unpaired_modes"].push_back({{"frequency_hz", Number(id.frequency_hz)},
+                                     {"frequency_std_hz", Number(id.frequency_std_hz)},
+                                     {"damping_ratio", Number(id.damping_ratio)},
+                                     {"shape", Shape(e, id)}});
+    }
+  }
+  j["fit"] = {{"model", "modal"},
+              {"converged", e.fit.converged},
+              {"cost", Number(e.fit.cost)},
+              {"reduced_chi2", Number(e.fit.reduced_chi2)},
+              {"iterations", e.fit.iterations},
+              {"starts", e.fit.starts},
+              {"seconds", Number(e.fit.seconds)},
+              {"starts_at_best", e.fit.starts_at_best},
+              {"forward_model_calls", e.fit.forward_model_calls},
+              {"profile_model_calls", e.fit.profile_model_calls},
+              {"elements", e.fit.elements},
+              {"degrees_of_freedom", e.fit.degrees_of_freedom},
+              {"axial_force_interval", e.fit.axial_force_interval}};
+  j["plane"] = model::ToString(e.direction);
+  j["identifiability"] = e.identifiability;
+  j["critical_compression_n"] = Number(e.critical_compression_n);
+  j["cautions"] = nlohmann::json::array();
+  for (const auto& c : e.cautions) j["cautions"].push_back({{"code", c.code}, {"message", c.message}});
+  j["notice"] = e.notice;
+  return j;
+}
+
+}  // namespace taut::server

@@ -1,0 +1,25 @@
+// The identification result as JSON (FORMATS.md section 3, a contract).
+//
+// Keys of the contract: axial_force_n, bending_stiffness_nm2,
+// end_fixity.{left,right}, modes[], fit, cautions, notice. An identified
+// quantity is {"value", "std", "ci95": [low, high]}; a quantity fixed by the
+// member description is {"value", "fixed": true} with no interval. SI units;
+// axial force N > 0 in tension.
+//
+// Keys beyond the contract (FORMATS.md: "at least these keys"): "plane",
+// "identifiability", "critical_compression_n", "unpaired_modes" (measured
+// modes that pair with no model mode; no order, no model values), and in
+// "fit": "starts_at_best", "forward_model_calls", "elements",
+// "degrees_of_freedom", "axial_force_interval" ("wald" or "profile": which
+// interval was the wider and is reported).
+#pragma once
+
+#include <nlohmann/json.hpp>
+
+#include "estimation/identify.h"
+
+namespace taut::server {
+
+nlohmann::json EstimateToJson(const estimation::Estimate& estimate);
+
+}  // namespace taut::server

@@ -1,0 +1,146 @@
+// `taut identify` end to end: member JSON + record CSV -> result.
+//
+// Truth: records synthesised from the forward model with known N, EI and
+// fixities (synthetic_record.h); the invented member is the example
+// examples/maltings-east-tie-2.json (5.8 m, 28 mm, elastic ends, sensors at
+// the quarter points). Contract: FORMATS.md sections 1-3 and DESIGN.md
+// "Interfaces" (exit 0 on a result, non-zero and one stderr line on bad
+// input).
+#include <gtest/gtest.h>
+
+#include <algorithm>
+#include <filesystem>
+#include <fstream>
+#include <nlohmann/json.hpp>
+#include <sstream>
+
+#include "estimation/cautions.h"
+#include "server/cli.h"
+#include "server/member_json.h"
+#include "synthetic_record.h"
+
+namespace taut::server {
+namespace {
+
+namespace fs = std::filesystem;
+
+class CliIdentify : public ::testing::Test {
+ protected:
+  void SetUp() override {
+    dir_ = fs::temp_directory_path() /
+           ("taut-cli-identify-" + std::to_string(::testing::UnitTest::GetInstance()->random_seed()) + "-" +
+            ::testing::UnitTest::GetInstance()->current_test_info()->name());
+    fs::create_directories(dir_);
+    member_path_ = std::string(TAUT_EXAMPLES_DIR) + "/maltings-east-tie-2.json";
+    ASSERT_TRUE(LoadMemberFile(member_path_, &member_).ok());
+    truth_.axial_force_n = 35000.0;
+    truth_.fixity_left = 0.4;
+    truth_.fixity_right = 0.6;
+  }
+  void TearDown() override { fs::remove_all(dir_); }
+
+  int Run(std::vector<std::string> args, std::string* out, std::string* err) {
+    args.insert(args.begin(), "taut");
+    std::vector<const char*> argv;
+    for (const auto& a : args) argv.push_back(a.c_str());
+    std::ostringstream o, e;
+    const int code = Main(static_cast<int>(argv.size()), argv.data(), o, e);
+    *out = o.str();
+    *err = e.str();
+    return code;
+  }
+
+  fs::path dir_;
+  std::string member_path_;
+  model::Member member_;
+  model::ModalParameters truth_;
+};
+
+TEST_F(CliIdentify, JsonResultRecoversForceFromSyntheticRecord) {
+  // 120 s at 256 Hz, five modes, 1 % damping, 2 % sensor noise. The modal
+  // identification's frequency error on such a record is a few 0.1 % (its
+  // own stated std), the force error about twice that plus the fixity
+  // trade-off: the truth must lie inside the reported 95 % interval, and
+  // within 3 % (a bound, not a golden value: 10 x a 0.15 % frequency error).
+  const std::string record = (dir_ / "tie.csv").string();
+  ASSERT_TRUE(testing::WriteSyntheticRecord(record, member_, model::Direction::kVertical, truth_, {}));
+  std::string out, err;
+  ASSERT_EQ(Run({"identify", "--member", member_path_, "--record", record, "--json"}, &out, &err), 0) << err;
+  const nlohmann::json j = nlohmann::json::parse(out);
+  const double n = j["axial_force_n"]["value"];
+  const double lo = j["axial_force_n"]["ci95"][0], hi = j["axial_force_n"]["ci95"][1];
+  std::printf("[ cli ] N %.6g (truth %.6g, %.2f %%), ci95 [%.6g, %.6g], %zu paired modes, cautions %s\n", n,
+              truth_.axial_force_n, 100 * (n / truth_.axial_force_n - 1), lo, hi, j["modes"].size(),
+              j["cautions"].dump().c_str());
+  EXPECT_NEAR(n / truth_.axial_force_n, 1.0, 0.03);
+  EXPECT_LE(lo, truth_.axial_force_n);
+  EXPECT_GE(hi, truth_.axial_force_n);
+  EXPECT_GE(j["modes"].size(), 2u);
+  EXPECT_EQ(j["fit"]["model"], "modal");
+  EXPECT_EQ(j["notice"], estimation::StandingNotice());
+  EXPECT_EQ(j["record"]["temperature_c"], 12.5);
+  EXPECT_TRUE(err.empty()) << err;
+}
+
+TEST_F(CliIdentify, TableNamesForceIntervalModesAndNotice) {
+  const std::string record = (dir_ / "tie.csv").string();
+  ASSERT_TRUE(testing::WriteSyntheticRecord(record, member_, model::Direction::kVertical, truth_, {}));
+  std::string out, err;
+  ASSERT_EQ(
+      Run({"identify", "--member", member_path_, "--record", record, "--temperature", "3.5"}, &out, &err), 0)
+      << err;
+  EXPECT_NE(out.find("axial force"), std::string::npos) << out;
+  EXPECT_NE(out.find("kN"), std::string::npos) << out;
+  EXPECT_NE(out.find("95 %"), std::string::npos) << out;
+  EXPECT_NE(out.find("measured_hz"), std::string::npos) << out;
+  EXPECT_NE(out.find("3.5 C"), std::string::npos) << out;  // the flag overrides the file's 12.5
+  EXPECT_NE(out.find(estimation::StandingNotice()), std::string::npos) << out;
+}
+
+TEST_F(CliIdentify, ChannelNotInMemberIsOneClearError) {
+  testing::RecordSpec spec;
+  spec.duration_s = 20.0;
+  spec.channel_override = {"v1", "x9", "v3"};
+  const std::string record = (dir_ / "bad-channel.csv").string();
+  ASSERT_TRUE(testing::WriteSyntheticRecord(record, member_, model::Direction::kVertical, truth_, spec));
+  std::string out, err;
+  EXPECT_EQ(Run({"identify", "--member", member_path_, "--record", record}, &out, &err), 1);
+  EXPECT_NE(err.find("x9"), std::string::npos) << err;
+  EXPECT_EQ(std::count(err.begin(), err.end(), '\n'), 1) << err;
+  EXPECT_TRUE(out.empty());
+}
+
+TEST_F(CliIdentify, SensorOutsideSpanIsOneClearError) {
+  nlohmann::json m = MemberToJson(member_);
+  m["sensors"][1]["position_m"] = 7.3;  // the member is 5.8 m long
+  const std::string member = (dir_ / "bad-member.json").string();
+  std::ofstream(member) << m.dump();
+  const std::string record = (dir_ / "tie.csv").string();
+  testing::RecordSpec spec;
+  spec.duration_s = 20.0;
+  ASSERT_TRUE(testing::WriteSyntheticRecord(record, member_, model::Direction::kVertical, truth_, spec));
+  std::string out, err;
+  EXPECT_EQ(Run({"identify", "--member", member, "--record", record}, &out, &err), 1);
+  EXPECT_NE(err.find("sensors[1].position_m"), std::string::npos) << err;
+  EXPECT_EQ(std::count(err.begin(), err.end(), '\n'), 1) << err;
+}
+
+TEST_F(CliIdentify, RecordWithoutModeIsOneClearError) {
+  // A record that carries no signal (every channel zero): the modal
+  // identification returns no mode, and there is nothing to fit.
+  const std::string record = (dir_ / "flat.csv").string();
+  {
+    std::ofstream f(record);
+    f.precision(12);
+    f << "time_s,v1,v2,v3\n";
+    for (int k = 0; k < 256 * 20; ++k) f << k / 256.0 << ",0,0,0\n";
+  }
+  std::string out, err;
+  EXPECT_EQ(Run({"identify", "--member", member_path_, "--record", record}, &out, &err), 1);
+  EXPECT_NE(err.find("no mode"), std::string::npos) << err;
+  EXPECT_EQ(std::count(err.begin(), err.end(), '\n'), 1) << err;
+  EXPECT_TRUE(out.empty());
+}
+
+}  // namespace
+}  // namespace taut::server

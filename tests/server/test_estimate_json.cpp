@@ -1,0 +1,83 @@
+// The identification result JSON against the FORMATS.md section 3 contract
+// (the project's published format: key names, units in the names,
+// {"value", "std", "ci95"} or {"value", "fixed": true}, modes with order,
+// frequency_hz, frequency_std_hz, damping_ratio, shape keyed by channel,
+// model_frequency_hz and mac; fit with model "modal"; cautions; notice).
+#include <gtest/gtest.h>
+
+#include "server/estimate_json.h"
+
+namespace taut::server {
+namespace {
+
+estimation::Estimate Example() {
+  estimation::Estimate e;
+  e.direction = model::Direction::kVertical;
+  e.shape_channels = {"a1", "a2", "a3"};
+  e.channels = e.shape_channels;
+  e.axial_force_n = {30125.0, 210.0, 29713.0, 30537.0, false, true};
+  e.bending_stiffness_nm2 = {7950.0, 120.0, 7715.0, 8185.0, false, true};
+  e.fixity_left = {0.0, 0.0, 0.0, 0.0, true, true};  // declared pinned
+  e.fixity_right = {0.38, 0.05, 0.28, 0.48, false, true};
+  estimation::EstimatedMode paired;
+  paired.paired = true;
+  paired.measured.order = 1;
+  paired.measured.frequency_hz = 6.812;
+  paired.measured.frequency_std_hz = 0.004;
+  paired.measured.damping_ratio = 0.004;
+  paired.measured.shape = {0.71, 1.0, 0.70};
+  paired.model_frequency_hz = 6.809;
+  paired.mac = 0.999;
+  estimation::EstimatedMode stranger;
+  stranger.measured.frequency_hz = 9.5;
+  stranger.measured.frequency_std_hz = 0.01;
+  stranger.measured.shape = {1.0, 0.2, -0.3};
+  e.modes = {paired, stranger};
+  e.fit.converged = true;
+  e.fit.cost = 3.1;
+  e.fit.reduced_chi2 = 0.9;
+  e.fit.iterations = 14;
+  e.fit.starts = 3;
+  e.fit.seconds = 0.04;
+  e.cautions = {{"unpaired-mode", "The mode at 9.5 Hz pairs with no bending mode."}};
+  e.notice = estimation::StandingNotice();
+  return e;
+}
+
+TEST(EstimateJson, FollowsFormatsSection3) {
+  const nlohmann::json j = EstimateToJson(Example());
+  // Identified quantity: value, std, ci95 = [low, high].
+  EXPECT_EQ(j["axial_force_n"]["value"], 30125.0);
+  EXPECT_EQ(j["axial_force_n"]["std"], 210.0);
+  ASSERT_TRUE(j["axial_force_n"]["ci95"].is_array());
+  EXPECT_EQ(j["axial_force_n"]["ci95"], nlohmann::json::array({29713.0, 30537.0}));
+  EXPECT_EQ(j["bending_stiffness_nm2"]["ci95"][1], 8185.0);
+  // Fixed quantity: "fixed": true and no interval.
+  EXPECT_EQ(j["end_fixity"]["left"], nlohmann::json({{"value", 0.0}, {"fixed", true}}));
+  EXPECT_FALSE(j["end_fixity"]["left"].contains("ci95"));
+  EXPECT_EQ(j["end_fixity"]["right"]["ci95"], nlohmann::json::array({0.28, 0.48}));
+  // Modes: only paired ones, keys of the contract, shape keyed by channel.
+  ASSERT_EQ(j["modes"].size(), 1u);
+  const auto& m = j["modes"][0];
+  for (const char* key :
+       {"order", "frequency_hz", "frequency_std_hz", "damping_ratio", "shape", "model_frequency_hz", "mac"}) {
+    EXPECT_TRUE(m.contains(key)) << key;
+  }
+  EXPECT_EQ(m["order"], 1);
+  EXPECT_EQ(m["shape"], nlohmann::json({{"a1", 0.71}, {"a2", 1.0}, {"a3", 0.70}}));
+  ASSERT_EQ(j["unpaired_modes"].size(), 1u);
+  EXPECT_FALSE(j["unpaired_modes"][0].contains("order"));
+  // Fit.
+  EXPECT_EQ(j["fit"]["model"], "modal");
+  EXPECT_EQ(j["fit"]["converged"], true);
+  for (const char* key : {"cost", "reduced_chi2", "iterations", "starts", "seconds"}) {
+    EXPECT_TRUE(j["fit"].contains(key)) << key;
+  }
+  // Cautions and the standing notice.
+  ASSERT_EQ(j["cautions"].size(), 1u);
+  EXPECT_EQ(j["cautions"][0]["code"], "unpaired-mode");
+  EXPECT_EQ(j["notice"], estimation::StandingNotice());
+}
+
+}  // namespace
+}  // namespace taut::server
