@@ -71,7 +71,7 @@ TEST(ModalId, ThreeDofFrequenciesDampingShapes) {
   EXPECT_EQ(id.channels, (std::vector<std::string>{"a1", "a2", "a3"}));
 }
 
-// The reported frequency std against the scatter over 30 independent
+// The reported frequency (and damping) std against the scatter over 30 independent
 // replications (fixed seeds). With s_r the reported std of replication r,
 // S = sum_r (f_r - mean f)^2 / mean_r(s_r^2) is chi-square with 29 degrees
 // of freedom when the reported std is right; the two-sided 99 % interval is
@@ -83,7 +83,7 @@ TEST(ModalId, ThreeDofStdMatchesReplicationScatter) {
   const auto sys = ThreeDof();
   constexpr int kReps = 30;
   constexpr double kChi2Lo = 13.12, kChi2Hi = 52.34;
-  Eigen::MatrixXd f(kReps, 3), sf(kReps, 3);
+  Eigen::MatrixXd f(kReps, 3), sf(kReps, 3), z(kReps, 3), sz(kReps, 3);
   for (int rep = 0; rep < kReps; ++rep) {
     const Eigen::MatrixXd y = testing::SimulateAmbient(sys, kFs3Dof_hz, 40000, 100 + rep);
     ModalIdentification id;
@@ -92,13 +92,22 @@ TEST(ModalId, ThreeDofStdMatchesReplicationScatter) {
     for (int k = 0; k < 3; ++k) {
       f(rep, k) = id.modes[static_cast<std::size_t>(k)].frequency_hz;
       sf(rep, k) = id.modes[static_cast<std::size_t>(k)].frequency_std_hz;
+      z(rep, k) = id.modes[static_cast<std::size_t>(k)].damping_ratio;
+      sz(rep, k) = id.modes[static_cast<std::size_t>(k)].damping_std;
     }
   }
   for (int k = 0; k < 3; ++k) {
     const double ss = (f.col(k).array() - f.col(k).mean()).square().sum();
     const double chi2 = ss / sf.col(k).array().square().mean();
+    const double chi2z =
+        (z.col(k).array() - z.col(k).mean()).square().sum() / sz.col(k).array().square().mean();
+    std::cout << "mode " << k + 1 << ": frequency chi2 " << chi2 << ", damping chi2 " << chi2z << ", f sd "
+              << std::sqrt(ss / (kReps - 1)) / sys.frequency_hz[k] * 100 << " %\n";
     EXPECT_GT(chi2, kChi2Lo) << "mode " << k + 1 << ": reported std too large";
     EXPECT_LT(chi2, kChi2Hi) << "mode " << k + 1 << ": reported std too small";
+    // The same check for the damping std.
+    EXPECT_GT(chi2z, kChi2Lo) << "mode " << k + 1 << ": reported damping std too large";
+    EXPECT_LT(chi2z, kChi2Hi) << "mode " << k + 1 << ": reported damping std too small";
     // And no bias beyond the random error of the mean of 30 (3 sigma).
     EXPECT_NEAR(f.col(k).mean(), sys.frequency_hz[k], 3.0 * std::sqrt(ss / (kReps - 1) / kReps))
         << "mode " << k + 1;
