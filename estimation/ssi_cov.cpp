@@ -252,14 +252,17 @@ Status RunSsiCov(const Eigen::MatrixXd& y, double fs, const SsiOptions& o, SsiRe
   }
 
   // Segment scatter. Each segment's estimate of a mode is the median over
-  // the orders within kSegmentOrderSpan of the mode's representative order
-  // (one order alone is sometimes a poor realisation on a short segment,
-  // which inflated the damping scatter).
+  // the kSegmentOrders highest orders of the diagram (spaced by
+  // kSegmentOrderSpacing), where every well excited mode is present; one
+  // order alone is sometimes a poor realisation on a short segment, which
+  // inflates the damping scatter.
   if (n_seg > 0 && !out->modes.empty()) {
-    int top_needed = 0;
-    for (const auto& m : out->modes)
-      top_needed = std::max(top_needed, m.representative_order + kSegmentOrderSpan);
-    top_needed = std::min(top_needed, std::min(o.max_order, l * i));
+    const int top_needed = std::min(o.max_order, l * i);
+    std::vector<int> seg_orders;
+    for (int j = 0; j < kSegmentOrders; ++j) {
+      const int ord = top_needed - j * kSegmentOrderSpacing;
+      if (ord >= o.min_order) seg_orders.push_back(ord);
+    }
     std::vector<std::vector<double>> fs_seg(out->modes.size()), zs_seg(out->modes.size());
     for (int s = 0; s < n_seg; ++s) {
       const Eigen::MatrixXd Os = Observability(Rseg[static_cast<std::size_t>(s)], l, i, top_needed);
@@ -267,8 +270,7 @@ Status RunSsiCov(const Eigen::MatrixXd& y, double fs, const SsiOptions& o, SsiRe
       for (std::size_t k = 0; k < out->modes.size(); ++k) {
         const SsiMode& m = out->modes[k];
         std::vector<double> f_k, z_k;
-        for (int ord = std::max(o.min_order, m.representative_order - kSegmentOrderSpan);
-             ord <= std::min(top_needed, m.representative_order + kSegmentOrderSpan); ord += o.order_step) {
+        for (int ord : seg_orders) {
           auto it = cache.find(ord);
           if (it == cache.end()) {
             std::vector<SsiPole> poles;
