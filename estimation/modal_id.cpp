@@ -220,6 +220,31 @@ Status IdentifyModes(const Record& record, const ModalIdOptions& o, ModalIdentif
   std::sort(cand.begin(), cand.end(),
             [](const Candidate& a, const Candidate& b) { return a.mode.frequency_hz < b.mode.frequency_hz; });
 
+  // A free decay of a hardening member sweeps its frequency; SSI-COV then
+  // splits one mode into close pole clusters. Clusters within
+  // kBackboneMergeShare with alike shapes are one mode: the lowest
+  // frequency (the small-amplitude limit a linear model describes) is kept
+  // and the sweep is cautioned; the backbone describes it.
+  if (impact) {
+    for (std::size_t k = 0; k + 1 < cand.size();) {
+      const IdentifiedMode& a = cand[k].mode;
+      const IdentifiedMode& b = cand[k + 1].mode;
+      const Eigen::Map<const Eigen::VectorXd> sa(a.shape.data(), static_cast<Eigen::Index>(a.shape.size()));
+      const Eigen::Map<const Eigen::VectorXd> sb(b.shape.data(), static_cast<Eigen::Index>(b.shape.size()));
+      const bool alike = nch == 1 || Mac(Eigen::VectorXd(sa), Eigen::VectorXd(sb)) > kClusterMinMac;
+      if (b.frequency_hz - a.frequency_hz < kBackboneMergeShare * a.frequency_hz && alike) {
+        out->cautions.push_back(
+            {"amplitude-dependent-frequency",
+             "the free decay of the mode near " + Fmt(a.frequency_hz) + " Hz sweeps up to " +
+                 Fmt(b.frequency_hz) +
+                 " Hz with amplitude: the small-amplitude value is reported; a linear model "
+                 "is biased at the large amplitudes (see the backbone)."});
+        cand.erase(cand.begin() + static_cast<long>(k) + 1);
+      } else {
+        ++k;
+      }
+    }
+  }
   bool any_cluster_std = false;
   for (auto& c : cand) {
     // A std of exactly zero (a cluster of identical poles) is not a

@@ -39,6 +39,7 @@ class LineReader {
         pos_ += len + 1;
         ++line_number_;
         *line = Trim(std::string_view(begin, len));
+        if (line_number_ == 1) SkipBom(line);
         return true;
       }
       if (end_ - pos_ > kMaxLineBytes) {
@@ -51,6 +52,7 @@ class LineReader {
         pos_ = end_;
         ++line_number_;
         *line = Trim(std::string_view(begin, len));
+        if (line_number_ == 1) SkipBom(line);
         return true;
       }
       // Compact and refill.
@@ -68,6 +70,11 @@ class LineReader {
   bool too_long() const { return too_long_; }
 
  private:
+  // A UTF-8 byte order mark (spreadsheet exports write one) is not part of
+  // the first line's text.
+  static void SkipBom(std::string_view* s) {
+    if (s->size() >= 3 && s->substr(0, 3) == "\xEF\xBB\xBF") s->remove_prefix(3);
+  }
   static std::string_view Trim(std::string_view s) {
     if (!s.empty() && s.back() == '\r') s.remove_suffix(1);
     return s;

@@ -5,6 +5,7 @@
 #include <Eigen/SVD>
 #include <algorithm>
 #include <cmath>
+#include <map>
 #include <numbers>
 
 #include "estimation/fdd.h"
@@ -250,24 +251,35 @@ Status RunSsiCov(const Eigen::MatrixXd& y, double fs, const SsiOptions& o, SsiRe
     a = b;
   }
 
-  // Segment scatter.
+  // Segment scatter. Each segment's estimate of a mode is the median over
+  // the kSegmentOrders highest orders of the diagram (spaced by
+  // kSegmentOrderSpacing), where every well excited mode is present; one
+  // order alone is sometimes a poor realisation on a short segment, which
+  // inflates the damping scatter.
   if (n_seg > 0 && !out->modes.empty()) {
-    std::vector<int> orders;
-    for (const auto& m : out->modes) orders.push_back(m.representative_order);
-    std::sort(orders.begin(), orders.end());
-    orders.erase(std::unique(orders.begin(), orders.end()), orders.end());
+    const int top_needed = std::min(o.max_order, l * i);
+    std::vector<int> seg_orders;
+    for (int j = 0; j < kSegmentOrders; ++j) {
+      const int ord = top_needed - j * kSegmentOrderSpacing;
+      if (ord >= o.min_order) seg_orders.push_back(ord);
+    }
     std::vector<std::vector<double>> fs_seg(out->modes.size()), zs_seg(out->modes.size());
     for (int s = 0; s < n_seg; ++s) {
-      const Eigen::MatrixXd Os = Observability(Rseg[static_cast<std::size_t>(s)], l, i, orders.back());
-      for (int ord : orders) {
-        std::vector<SsiPole> poles;
-        PolesAtOrder(Os, l, ord, fs, &poles, nullptr);
-        for (std::size_t k = 0; k < out->modes.size(); ++k) {
-          const SsiMode& m = out->modes[k];
-          if (m.representative_order != ord) continue;
+      const Eigen::MatrixXd Os = Observability(Rseg[static_cast<std::size_t>(s)], l, i, top_needed);
+      std::map<int, std::vector<SsiPole>> cache;
+      for (std::size_t k = 0; k < out->modes.size(); ++k) {
+        const SsiMode& m = out->modes[k];
+        std::vector<double> f_k, z_k;
+        for (int ord : seg_orders) {
+          auto it = cache.find(ord);
+          if (it == cache.end()) {
+            std::vector<SsiPole> poles;
+            PolesAtOrder(Os, l, ord, fs, &poles, nullptr);
+            it = cache.emplace(ord, std::move(poles)).first;
+          }
           const SsiPole* best = nullptr;
           double best_d = kSegmentMatchTol;
-          for (const auto& p : poles) {
+          for (const auto& p : it->second) {
             const double d = std::abs(p.frequency_hz - m.frequency_hz) / m.frequency_hz;
             if (d < best_d && p.damping_ratio > 0 &&
                 (l == 1 || Mac(p.shape, m.complex_shape) >= kSegmentMinMac)) {
@@ -276,9 +288,13 @@ Status RunSsiCov(const Eigen::MatrixXd& y, double fs, const SsiOptions& o, SsiRe
             }
           }
           if (best) {
-            fs_seg[k].push_back(best->frequency_hz);
-            zs_seg[k].push_back(best->damping_ratio);
+            f_k.push_back(best->frequency_hz);
+            z_k.push_back(best->damping_ratio);
           }
+        }
+        if (!f_k.empty()) {
+          fs_seg[k].push_back(Median(f_k));
+          zs_seg[k].push_back(Median(z_k));
         }
       }
     }

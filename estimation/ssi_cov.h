@@ -26,14 +26,13 @@
 //
 // Uncertainty: the record is split into `uncertainty_segments` contiguous,
 // non-overlapping segments; their correlations average to those of the
-// whole record, so each segment gives an independent estimate at the
-// cluster's order, and the standard deviation of the whole-record estimate
-// is the scatter of the segment estimates divided by sqrt(segments found)
-// (the batch-means idea of the segment approach in E. Reynders, R. Pintelon,
-// G. De Roeck, Uncertainty bounds on modal parameters obtained from
-// stochastic subspace identification, MSSP 22, 2008). When fewer than
-// kMinSegmentsForStd segments find a mode its std falls back to the cluster
-// scatter (which understates it) and `std_from_segments` is false.
+// whole record, so each segment gives an independent estimate (median over
+// the highest orders of the diagram), and the standard deviation of the whole-record
+// estimate is the scatter of the segment estimates divided by sqrt(segments found) (the batch-means idea of
+// the segment approach in E. Reynders, R. Pintelon, G. De Roeck, Uncertainty bounds on modal parameters
+// obtained from stochastic subspace identification, MSSP 22, 2008). When fewer than kMinSegmentsForStd
+// segments find a mode its std falls back to the cluster scatter (which understates it) and
+// `std_from_segments` is false.
 #pragma once
 
 #include <Eigen/Core>
@@ -74,6 +73,9 @@ inline constexpr int kMinSamplesPerLag = 20;
 // above this MAC.
 inline constexpr double kSegmentMatchTol = 0.05;
 inline constexpr double kSegmentMinMac = 0.8;
+// Orders used per segment: the highest order and the next ones below it.
+inline constexpr int kSegmentOrders = 5;
+inline constexpr int kSegmentOrderSpacing = 2;
 
 struct SsiOptions {
   int min_order = 2;

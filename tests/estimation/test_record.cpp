@@ -102,6 +102,15 @@ TEST(RecordReader, CrLfAndTrailingBlankLinesAccepted) {
   EXPECT_EQ(r.samples.rows(), kRows);
 }
 
+// A UTF-8 byte order mark before the first line (spreadsheet exports) is
+// not part of the text.
+TEST(RecordReader, ByteOrderMarkIgnored) {
+  Record r;
+  const Status s = Parse("\xEF\xBB\xBF" + ValidCsv(), &r);
+  ASSERT_TRUE(s.ok()) << s.message;
+  EXPECT_EQ(r.recorded_at, "2026-11-20T10:00:00Z");
+}
+
 // units=g: samples scaled by the standard gravity 9.80665 m/s^2 (CGPM 1901,
 // ISO 80000-3), exactly.
 TEST(RecordReader, UnitsGConverted) {

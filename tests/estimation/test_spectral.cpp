@@ -117,6 +117,8 @@ TEST(Fdd, SinusoidPeakWithinInterpolationAccuracy) {
     ASSERT_TRUE(WelchCsd(x, fs, wo, &csd).ok());
     const FddResult r = RunFdd(csd, 1.0, 60.0, 1);
     ASSERT_EQ(r.peaks.size(), 1u);
+    std::cout << "offset " << offset << " lines: peak error " << (r.peaks[0].frequency_hz - f0) / df
+              << " lines\n";
     EXPECT_NEAR(r.peaks[0].frequency_hz, f0, kSinusoidInterpolationError_lines * df) << "offset " << offset;
     EXPECT_TRUE(r.peaks[0].resolution_limited);  // a line has no damping width
   }
