@@ -153,6 +153,10 @@ Status FitTransient(const Member& member, Direction direction, const Eigen::Matr
                                    std::to_string(kMaxTransientModes) + "]");
   }
   if (options.target_elements < 1) return Status::InvalidArgument("target_elements must be >= 1");
+  if (options.steps_per_period < 10) {
+    return Status::InvalidArgument("steps_per_period = " + std::to_string(options.steps_per_period) +
+                                   ": must be >= 10");
+  }
   if (options.max_iterations < 1) return Status::InvalidArgument("max_iterations must be >= 1");
   if (!std::isfinite(start.axial_force_n)) return Status::InvalidArgument("start axial force is not finite");
   std::vector<double> sensor_x;
@@ -234,7 +238,7 @@ Status FitTransient(const Member& member, Direction direction, const Eigen::Matr
   const double f1 = modal.modes[0].frequency_hz;
   // Amplitude raises frequencies: a margin of 1.5 on the highest one.
   const double f_high = 1.5 * modal.modes[options.modes - 1].frequency_hz;
-  s.substeps = std::max(1, static_cast<int>(std::ceil(kStepsPerPeriod * f_high / sample_rate_hz)));
+  s.substeps = std::max(1, static_cast<int>(std::ceil(options.steps_per_period * f_high / sample_rate_hz)));
 
   // Initial modal amplitudes: linear projection of the first samples.
   std::vector<double> x(L.size, 0.0);
@@ -298,7 +302,9 @@ Status FitTransient(const Member& member, Direction direction, const Eigen::Matr
 
   std::unique_ptr<ceres::Problem> problem;
   ceres::Solver::Summary summary;
-  for (int stage_rows : stages) {
+  for (size_t stage = 0; stage < stages.size(); ++stage) {
+    const int stage_rows = stages[stage];
+    const bool last = stage + 1 == stages.size();
     auto* cost =
         new ceres::DynamicNumericDiffCostFunction<Misfit, ceres::CENTRAL>(new Misfit{&s, stage_rows});
     cost->AddParameterBlock(L.size);
@@ -321,6 +327,9 @@ Status FitTransient(const Member& member, Direction direction, const Eigen::Matr
     so.trust_region_strategy_type = ceres::LEVENBERG_MARQUARDT;
     so.linear_solver_type = ceres::DENSE_QR;
     so.max_num_iterations = options.max_iterations;
+    // Intermediate stages only need to bring the phase within reach of the
+    // next, longer window.
+    if (!last) so.function_tolerance = kStageFunctionTolerance;
     so.logging_type = ceres::SILENT;
     so.minimizer_progress_to_stdout = false;
     so.num_threads = 1;

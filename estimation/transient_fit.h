@@ -69,9 +69,14 @@ inline constexpr double kMaxDampingRatio = 0.2;
 // periods of linear mode 1 at the start parameters.
 inline constexpr double kProjectionPeriods = 1.0;
 inline constexpr double kContinuationPeriods = 2.0;
-// Integration steps per period of the highest fitted mode: the midpoint
-// rule's period error is (w h)^2 / 12 (Hairer, Lubich and Wanner, Geometric
-// Numerical Integration, 2006, sec. I.1), 3.3e-4 at 100 steps.
+// Relative cost decrease that ends an intermediate continuation stage (the
+// last stage uses Ceres' default, 1e-6).
+inline constexpr double kStageFunctionTolerance = 1e-4;
+// Default integration steps per period of the highest fitted mode (taken
+// at 1.5 times its linear start frequency): the midpoint rule's period
+// error is (w h)^2 / 12 (Hairer, Lubich and Wanner, Geometric Numerical
+// Integration, 2006, sec. I.1), 3.3e-4 at 100 steps, and less for the lower
+// modes, which carry N.
 inline constexpr int kStepsPerPeriod = 100;
 // Cautions: "large-amplitude" when the dynamic axial force swing exceeds
 // this share of |N_s| + pi^2 EI / L^2 (frequency shift of order half of it);
@@ -90,12 +95,13 @@ struct TransientFitStart {
 };
 
 struct TransientFitOptions {
-  int modes = 1;                      // 1..kMaxTransientModes modes in the initial state
-  int target_elements = 10;           // fit mesh (model/beam_fe.h BuildMesh)
-  bool fit_bending_stiffness = true;  // false: EI held at the start value
-  double gravity_m_s2 = 9.80665;      // as model/parameters.h (0 switches sag off)
-  int max_iterations = 50;            // LM iterations per continuation stage
-  bool continuation = true;           // growing windows (see the file comment)
+  int modes = 1;                           // 1..kMaxTransientModes modes in the initial state
+  int target_elements = 10;                // fit mesh (model/beam_fe.h BuildMesh)
+  bool fit_bending_stiffness = true;       // false: EI held at the start value
+  double gravity_m_s2 = 9.80665;           // as model/parameters.h (0 switches sag off)
+  int max_iterations = 50;                 // LM iterations per continuation stage
+  bool continuation = true;                // growing windows (see the file comment)
+  int steps_per_period = kStepsPerPeriod;  // >= 10; more = smaller time-step bias, slower
 };
 
 // A fitted quantity with its uncertainty.
