@@ -297,7 +297,7 @@ Status FitTransient(const Member& member, Direction direction, const Eigen::Matr
     int n = std::max(4 * L.size, static_cast<int>(std::ceil(kContinuationPeriods * sample_rate_hz / f1)) + 1);
     while (n < rows) {
       stages.push_back(n);
-      n *= 2;
+      n *= kContinuationGrowth;
     }
   }
   stages.push_back(rows);

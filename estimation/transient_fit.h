@@ -29,7 +29,7 @@
 // Because the time-domain misfit is many-valued in the frequency (a phase
 // error of a half period over the window is a local minimum), the fit is
 // continued over growing windows: kContinuationPeriods periods of mode 1
-// first, then doubled, each stage starting from the previous result.
+// first, then kContinuationGrowth times longer, each stage starting from the previous result.
 //
 // Uncertainty: the covariance of the unknowns is (J^T J)^{-1} s^2 at the
 // solution (ceres::Covariance, dense SVD), with the reduced chi-square
@@ -69,6 +69,8 @@ inline constexpr double kMaxDampingRatio = 0.2;
 // periods of linear mode 1 at the start parameters.
 inline constexpr double kProjectionPeriods = 1.0;
 inline constexpr double kContinuationPeriods = 2.0;
+// Each continuation stage is this many times longer than the previous one.
+inline constexpr int kContinuationGrowth = 4;
 // Relative cost decrease that ends an intermediate continuation stage (the
 // last stage uses Ceres' default, 1e-6).
 inline constexpr double kStageFunctionTolerance = 1e-4;
