@@ -73,7 +73,7 @@ inline constexpr double kContinuationPeriods = 2.0;
 inline constexpr int kContinuationGrowth = 4;
 // Relative cost decrease that ends an intermediate continuation stage (the
 // last stage uses Ceres' default, 1e-6).
-inline constexpr double kStageFunctionTolerance = 1e-4;
+inline constexpr double kStageFunctionTolerance = 1e-3;
 // Default integration steps per period of the highest fitted mode (taken
 // at 1.5 times its linear start frequency): the midpoint rule's period
 // error is (w h)^2 / 12 (Hairer, Lubich and Wanner, Geometric Numerical
