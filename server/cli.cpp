@@ -5,6 +5,14 @@
 
 namespace taut::server {
 
+model::Direction ChooseDirection(const model::Member& member, const std::string& flag) {
+  if (flag == "vertical") return model::Direction::kVertical;
+  if (flag == "lateral") return model::Direction::kLateral;
+  return member.SensorCount(model::Direction::kLateral) > member.SensorCount(model::Direction::kVertical)
+             ? model::Direction::kLateral
+             : model::Direction::kVertical;
+}
+
 int Main(int argc, const char* const* argv, std::ostream& out, std::ostream& err) {
   CLI::App app{"taut: axial force, bending stiffness and end restraint of slender members from vibration"};
   app.require_subcommand(1);

@@ -8,6 +8,9 @@
 
 #include <CLI/CLI.hpp>
 #include <iosfwd>
+#include <string>
+
+#include "model/member.h"
 
 namespace taut::server {
 
@@ -21,6 +24,11 @@ void RegisterModesCommand(CLI::App& app, CliContext* ctx);
 void RegisterSimulateCommand(CLI::App& app, CliContext* ctx);
 void RegisterIdentifyCommand(CLI::App& app, CliContext* ctx);
 void RegisterModalCommand(CLI::App& app, CliContext* ctx);
+
+// The plane a command analyses: `flag` ("vertical" or "lateral") when
+// given, else the plane of most of the member's sensors (vertical on a tie,
+// and when there are none).
+model::Direction ChooseDirection(const model::Member& member, const std::string& flag);
 
 // Parses argv and runs the chosen subcommand; returns the exit code.
 int Main(int argc, const char* const* argv, std::ostream& out, std::ostream& err);

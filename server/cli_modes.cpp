@@ -30,14 +30,7 @@ int RunModes(const ModesOptions& o, std::ostream& out, std::ostream& err) {
     err << "taut modes: " << s.message << "\n";
     return 1;
   }
-  // Default plane: the one most of the member's sensors sense (vertical when
-  // there are none or it is a tie).
-  model::Direction direction =
-      member.SensorCount(model::Direction::kLateral) > member.SensorCount(model::Direction::kVertical)
-          ? model::Direction::kLateral
-          : model::Direction::kVertical;
-  if (o.direction == "vertical") direction = model::Direction::kVertical;
-  if (o.direction == "lateral") direction = model::Direction::kLateral;
+  const model::Direction direction = ChooseDirection(member, o.direction);
 
   model::ModalParameters p;
   p.axial_force_n = o.axial_force_n;

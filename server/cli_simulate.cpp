@@ -65,12 +65,7 @@ int RunSimulate(const SimulateOptions& o, std::ostream& out, std::ostream& err) 
   };
   model::Member member;
   if (Status s = LoadMemberFile(o.member_path, &member); !s.ok()) return fail(s.message);
-  model::Direction direction =
-      member.SensorCount(model::Direction::kLateral) > member.SensorCount(model::Direction::kVertical)
-          ? model::Direction::kLateral
-          : model::Direction::kVertical;
-  if (o.direction == "vertical") direction = model::Direction::kVertical;
-  if (o.direction == "lateral") direction = model::Direction::kLateral;
+  const model::Direction direction = ChooseDirection(member, o.direction);
   if (member.SensorCount(direction) == 0) {
     return fail(std::string("the member has no sensors in the ") + model::ToString(direction) +
                 " plane: nothing to record");

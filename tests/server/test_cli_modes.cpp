@@ -10,23 +10,13 @@
 #include <sstream>
 
 #include "server/cli.h"
+#include "tests/server/cli_test_support.h"
 
 namespace taut::server {
 namespace {
 
-struct CliRun {
-  int code;
-  std::string out, err;
-};
-
-CliRun Taut(std::vector<std::string> args) {
-  args.insert(args.begin(), "taut");
-  std::vector<const char*> argv;
-  for (const auto& a : args) argv.push_back(a.c_str());
-  std::ostringstream out, err;
-  const int code = Main(static_cast<int>(argv.size()), argv.data(), out, err);
-  return {code, out.str(), err.str()};
-}
+using testing::CliRun;
+using testing::Taut;
 
 class CliModes : public ::testing::Test {
  protected:
