@@ -295,7 +295,11 @@ Status TransientModel::Run(const TransientLoads& loads, TransientResult* result)
   // Accelerations: M a = f - K w - N G w - C v, i.e. in coordinates
   // m_hat a_hat = phi^T f - k_hat y - N y - c_hat z, and a at the sensors
   // is phi_sensors a_hat = R (...), R = phi_sensors m_hat^{-1}.
-  const Eigen::MatrixXd accel_rows = b0.m_hat.ldlt().solve(phi_sensors.transpose()).transpose();
+  // (No solve with an empty right-hand side when the plane has no sensors:
+  // Eigen's triangular solve indexes element (0, 0) of it.)
+  const Eigen::MatrixXd accel_rows =
+      channels > 0 ? Eigen::MatrixXd(b0.m_hat.ldlt().solve(phi_sensors.transpose()).transpose())
+                   : Eigen::MatrixXd(0, n);
   const Eigen::MatrixXd accel_k = accel_rows * b0.k_hat;  // R k_hat
   const Eigen::MatrixXd accel_c = accel_rows * b0.c_hat;  // R c_hat
   const Eigen::VectorXd accel_g = accel_rows * b0.fg_hat;
