@@ -142,25 +142,8 @@ double Gather(const Eigen::VectorXd& q, int dof) { return dof >= 0 ? q[dof] : 0.
 
 }  // namespace
 
-double FullVonKarman::Energy(const Eigen::VectorXd& q, const Eigen::VectorXd& v) const {
-  double membrane = 0.0;
-  for (int e = 0; e < mesh_.Elements(); ++e) {
-    const double h = mesh_.x_m[e + 1] - mesh_.x_m[e];
-    int wd[4], ud[3];
-    ElementDofs(e, wd, ud);
-    for (size_t g = 0; g < kGaussX.size(); ++g) {
-      const Shapes s = ShapesAt(kGaussX[g], h);
-      double du = 0.0, dw = 0.0;
-      for (int a = 0; a < 3; ++a) du += s.dl[a] * Gather(q, ud[a]);
-      for (int a = 0; a < 4; ++a) dw += s.dn[a] * Gather(q, wd[a]);
-      const double eps = du + 0.5 * dw * dw + prestrain_;
-      membrane += kGaussW[g] * h * 0.5 * ea_ * eps * eps;
-    }
-  }
-  return 0.5 * v.dot(M_ * v) + 0.5 * q.dot(K_ * q) + membrane;
-}
-
-double FullVonKarman::MeanAxialForce(const Eigen::VectorXd& q) const {
+double FullVonKarman::IntegrateStrain(const Eigen::VectorXd& q,
+                                      const std::function<double(double)>& f) const {
   double integral = 0.0;
   for (int e = 0; e < mesh_.Elements(); ++e) {
     const double h = mesh_.x_m[e + 1] - mesh_.x_m[e];
@@ -171,10 +154,19 @@ double FullVonKarman::MeanAxialForce(const Eigen::VectorXd& q) const {
       double du = 0.0, dw = 0.0;
       for (int a = 0; a < 3; ++a) du += s.dl[a] * Gather(q, ud[a]);
       for (int a = 0; a < 4; ++a) dw += s.dn[a] * Gather(q, wd[a]);
-      integral += kGaussW[g] * h * ea_ * (du + 0.5 * dw * dw + prestrain_);
+      integral += kGaussW[g] * h * f(du + 0.5 * dw * dw + prestrain_);
     }
   }
-  return integral / member_.length_m;
+  return integral;
+}
+
+double FullVonKarman::Energy(const Eigen::VectorXd& q, const Eigen::VectorXd& v) const {
+  const double membrane = IntegrateStrain(q, [this](double eps) { return 0.5 * ea_ * eps * eps; });
+  return 0.5 * v.dot(M_ * v) + 0.5 * q.dot(K_ * q) + membrane;
+}
+
+double FullVonKarman::MeanAxialForce(const Eigen::VectorXd& q) const {
+  return IntegrateStrain(q, [this](double eps) { return ea_ * eps; }) / member_.length_m;
 }
 
 double FullVonKarman::W(const Eigen::VectorXd& q, double x_m) const {

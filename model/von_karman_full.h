@@ -81,6 +81,9 @@ class FullVonKarman {
   // -1 marks a constrained DOF.
   void ElementDofs(int e, int w_dofs[4], int u_dofs[3]) const;
   Eigen::VectorXd LoadVector(double t, const BodyForce& force) const;
+  // int f(e(x)) dx over the member, e the membrane strain of q, by the
+  // 5-point Gauss rule per element.
+  double IntegrateStrain(const Eigen::VectorXd& q, const std::function<double(double)>& f) const;
 
   Member member_;
   Status status_;
