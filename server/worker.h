@@ -1,0 +1,70 @@
+// The job worker pool and the alert dispatch of `taut serve`.
+//
+// Workers take queued jobs from the database (storage::Repository::
+// ClaimNextJob), load the record and the member version it was uploaded
+// against, run the identification (record -> modes -> model updating),
+// store the FORMATS.md section 3 result with the job (CompleteJobWithEstimate),
+// run drift detection (estimation/drift.h) over the member's estimates and
+// raise the alerts that fire at the new estimate. A job whose inputs cannot
+// be identified fails with the reason (the estimation's message); a job is
+// never lost: jobs left running by a stopped process are requeued at Start.
+//
+// Webhooks: every new alert is POSTed to each active subscription of its
+// organisation (docs/API.md "Alerts and webhooks"); failed deliveries are
+// retried with exponential back-off, every attempt is logged.
+//
+// Threads: `workers` job threads plus one webhook thread, each with its own
+// database connection (storage/database.h: one connection per thread).
+#pragma once
+
+#include <atomic>
+#include <chrono>
+#include <condition_variable>
+#include <memory>
+#include <mutex>
+#include <string>
+#include <thread>
+#include <vector>
+
+#include "model/status.h"
+#include "server/metrics.h"
+
+namespace taut::server {
+
+struct WorkerOptions {
+  std::string db_path;  // the service's SQLite file (migrated by the caller)
+  int workers = 2;      // job threads, >= 1
+  // Workers sleep at most this long between queue polls when nobody calls
+  // Notify() (a job queued by another process is still picked up).
+  std::chrono::milliseconds poll_interval{500};
+  // Webhook delivery: attempts per (subscription, alert), first back-off
+  // (doubled each attempt) and the HTTP timeout of one attempt.
+  int webhook_max_attempts = 5;
+  std::chrono::milliseconds webhook_first_backoff{500};
+  std::chrono::milliseconds webhook_timeout{5000};
+};
+
+class WorkerPool {
+ public:
+  // metrics: not owned, may be null; must outlive the pool.
+  WorkerPool(WorkerOptions options, Metrics* metrics);
+  ~WorkerPool();  // Stop()
+  WorkerPool(const WorkerPool&) = delete;
+  WorkerPool& operator=(const WorkerPool&) = delete;
+
+  // Requeues jobs left running by a stopped process, then starts the
+  // threads. Fails when the database cannot be opened.
+  Status Start();
+  // Wakes an idle worker: a job has been queued.
+  void Notify();
+  // Graceful stop: no new job is claimed, running jobs finish (an
+  // identification takes well under a second), threads are joined. Pending
+  // webhook retries stay in the log and are resumed by the next Start.
+  void Stop();
+
+ private:
+  struct Impl;
+  std::unique_ptr<Impl> impl_;
+};
+
+}  // namespace taut::server
