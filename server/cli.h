@@ -24,6 +24,7 @@ void RegisterModesCommand(CLI::App& app, CliContext* ctx);
 void RegisterSimulateCommand(CLI::App& app, CliContext* ctx);
 void RegisterIdentifyCommand(CLI::App& app, CliContext* ctx);
 void RegisterModalCommand(CLI::App& app, CliContext* ctx);
+void RegisterServeCommand(CLI::App& app, CliContext* ctx);  // serve, token create
 
 // The plane a command analyses: `flag` ("vertical" or "lateral") when
 // given, else the plane of most of the member's sensors (vertical on a tie,

@@ -22,6 +22,7 @@
 #include <condition_variable>
 #include <memory>
 #include <mutex>
+#include <ostream>
 #include <string>
 #include <thread>
 #include <vector>
@@ -42,6 +43,11 @@ struct WorkerOptions {
   int webhook_max_attempts = 5;
   std::chrono::milliseconds webhook_first_backoff{500};
   std::chrono::milliseconds webhook_timeout{5000};
+  // A job claimed this many times without finishing (the process stopped
+  // during it each time) fails instead of running again.
+  int max_job_attempts = 3;
+  // One key=value line per job, alert and delivery. Not owned; may be null.
+  std::ostream* log = nullptr;
 };
 
 class WorkerPool {

@@ -225,10 +225,36 @@ CREATE TABLE webhook_delivery (
 );
 )sql";
 
-constexpr std::array<Migration, 3> kMigrations = {{
+// Step 4: what the service's workers need to be restartable at any point.
+// - estimate.drift_checked_at_unix_ms: NULL until the drift rules have run
+//   on the estimate and its alerts are stored, so a process stopped between
+//   storing an estimate and raising its alerts finishes the check at the
+//   next start (estimates stored before this step count as checked).
+// - alert_once: a drift rule fires at most once per estimate, so that
+//   re-running a check never raises an alert twice.
+// - member_drift_settings: per-member thresholds of the drift rules (JSON
+//   text written by server/; absent row = the defaults).
+constexpr const char* kV4 = R"sql(
+ALTER TABLE estimate ADD COLUMN drift_checked_at_unix_ms INTEGER;
+UPDATE estimate SET drift_checked_at_unix_ms = created_at_unix_ms;
+CREATE INDEX estimate_drift_pending ON estimate(id) WHERE drift_checked_at_unix_ms IS NULL;
+CREATE UNIQUE INDEX alert_once ON alert(organisation_id, member_id, rule, estimate_id)
+  WHERE estimate_id IS NOT NULL;
+CREATE TABLE member_drift_settings (
+  organisation_id     INTEGER NOT NULL,
+  member_id           INTEGER NOT NULL,
+  settings_json       TEXT NOT NULL,
+  updated_at_unix_ms  INTEGER NOT NULL,
+  PRIMARY KEY (organisation_id, member_id),
+  FOREIGN KEY (organisation_id, member_id) REFERENCES member(organisation_id, id)
+) WITHOUT ROWID;
+)sql";
+
+constexpr std::array<Migration, 4> kMigrations = {{
     {1, "initial schema", kV1},
     {2, "estimate: member version, temperature, standard deviations, history index", kV2},
     {3, "alerts and webhooks", kV3},
+    {4, "drift checks that survive a restart, alert once per rule and estimate, drift settings", kV4},
 }};
 
 constexpr const char* kMigrationTable = R"sql(

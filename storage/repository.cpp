@@ -1066,4 +1066,184 @@ StorageStatus Repository::ListDeliveries(Id organisation_id, Id alert_id, std::v
   });
 }
 
+// ------------------------------------------------ HTTP layer lookups ---
+
+StorageStatus Repository::FindOrganisationByName(std::string_view name, Organisation* out) {
+  Statement s(db_.handle(), "SELECT id, name, created_at_unix_ms FROM organisation WHERE name = ?1");
+  s.Bind(1, name);
+  return ReadOne(s, "organisation \"" + std::string(name) + "\"", [&](const Statement& r) {
+    *out = {r.Int64(0), r.Text(1), r.Int64(2)};
+  });
+}
+
+StorageStatus Repository::EstimateForRecord(Id organisation_id, Id record_id, Estimate* out) {
+  // Index estimate_record; one estimate per record (its job stores it once).
+  Statement s(db_.handle(), std::string("SELECT ") + kEstimateColumns +
+                                ", result_json FROM estimate WHERE record_id = ?1 AND organisation_id = ?2 "
+                                "ORDER BY id DESC LIMIT 1");
+  s.Bind(1, record_id).Bind(2, organisation_id);
+  return ReadOne(s, "estimate of " + IdText("record", record_id), [&](const Statement& r) {
+    *out = ReadEstimate(r);
+    out->result_json = r.Text(15);
+  });
+}
+
+StorageStatus Repository::CountJobsByState(std::map<std::string, std::int64_t>* out) {
+  std::map<std::string, std::int64_t> counts;
+  for (JobState st : {JobState::kQueued, JobState::kRunning, JobState::kDone, JobState::kFailed}) {
+    counts[JobStateName(st)] = 0;
+  }
+  Statement s(db_.handle(), "SELECT state, count(*) FROM job GROUP BY state");
+  std::vector<std::pair<std::string, std::int64_t>> rows;
+  if (StorageStatus st =
+          ReadAll(s, &rows, [](const Statement& r) { return std::make_pair(r.Text(0), r.Int64(1)); });
+      !st.ok()) {
+    return st;
+  }
+  for (const auto& [state, n] : rows) counts[state] = n;
+  *out = std::move(counts);
+  return {};
+}
+
+StorageStatus Repository::LatestRecordTime(Id organisation_id, Id member_id,
+                                           std::int64_t* recorded_at_unix_ms) {
+  // An aggregate always yields one row: NULL when the member has no record.
+  Statement s(db_.handle(),
+              "SELECT max(recorded_at_unix_ms) FROM record WHERE member_id = ?1 AND organisation_id = ?2");
+  s.Bind(1, member_id).Bind(2, organisation_id);
+  std::optional<std::int64_t> latest;
+  StorageStatus st = ReadOne(s, "records of " + IdText("member", member_id),
+                             [&](const Statement& r) { latest = r.OptionalInt64(0); });
+  if (!st.ok()) return st;
+  if (!latest) return StorageStatus::NotFound("member " + std::to_string(member_id) + " has no record");
+  *recorded_at_unix_ms = *latest;
+  return {};
+}
+
+// ------------------------------------------ worker side (schema step 4) ---
+
+StorageStatus Repository::PendingDriftChecks(std::size_t limit, std::vector<Estimate>* out) {
+  // Partial index estimate_drift_pending holds exactly these rows.
+  Statement s(db_.handle(), std::string("SELECT ") + kEstimateColumns +
+                                " FROM estimate WHERE drift_checked_at_unix_ms IS NULL ORDER BY id LIMIT ?1");
+  s.Bind(1, static_cast<std::int64_t>(limit));
+  return ReadAll(s, out, ReadEstimate);
+}
+
+StorageStatus Repository::MarkDriftChecked(Id organisation_id, Id estimate_id, std::int64_t now_unix_ms) {
+  return Write([&]() -> StorageStatus {
+    if (StorageStatus f = Fault(); !f.ok()) return f;
+    Statement s(db_.handle(),
+                "UPDATE estimate SET drift_checked_at_unix_ms = ?3 WHERE id = ?1 AND organisation_id = ?2");
+    s.Bind(1, estimate_id).Bind(2, organisation_id).Bind(3, now_unix_ms);
+    return RunOneRow(db_, s, IdText("estimate", estimate_id));
+  });
+}
+
+StorageStatus Repository::RaiseAlertOnce(Id organisation_id, const NewAlert& alert, std::int64_t now_unix_ms,
+                                         Id* id, bool* created) {
+  if (!alert.estimate_id) return Misuse("RaiseAlertOnce needs the alert's estimate_id");
+  return Write([&]() -> StorageStatus {
+    if (StorageStatus f = Fault(); !f.ok()) return f;
+    Statement existing(db_.handle(),
+                       "SELECT id FROM alert WHERE organisation_id = ?1 AND member_id = ?2 AND rule = ?3 AND "
+                       "estimate_id = ?4");
+    existing.Bind(1, organisation_id)
+        .Bind(2, alert.member_id)
+        .Bind(3, alert.rule)
+        .Bind(4, *alert.estimate_id);
+    const int rc = existing.Step();
+    if (rc == SQLITE_ROW) {
+      *id = existing.Int64(0);
+      *created = false;
+      return {};
+    }
+    if (rc != SQLITE_DONE) return existing.status();
+    if (StorageStatus f = Fault(); !f.ok()) return f;
+    Statement s(db_.handle(),
+                "INSERT INTO alert (organisation_id, member_id, estimate_id, rule, state, message, evidence, "
+                "raised_at_unix_ms) VALUES (?1, ?2, ?3, ?4, 'open', ?5, ?6, ?7)");
+    s.Bind(1, organisation_id)
+        .Bind(2, alert.member_id)
+        .Bind(3, alert.estimate_id)
+        .Bind(4, alert.rule)
+        .Bind(5, alert.message)
+        .Bind(6, alert.evidence)
+        .Bind(7, now_unix_ms);
+    StorageStatus r = s.Run();
+    // The composite foreign keys fail for another organisation's member or
+    // estimate: not found, like every foreign id.
+    if (r.sqlite_code == SQLITE_CONSTRAINT_FOREIGNKEY) {
+      return StorageStatus::NotFound(IdText("member", alert.member_id) + " or " +
+                                     IdText("estimate", *alert.estimate_id) + " not found");
+    }
+    if (!r.ok()) return r;
+    *id = sqlite3_last_insert_rowid(db_.handle());
+    *created = true;
+    return {};
+  });
+}
+
+StorageStatus Repository::GetDriftSettings(Id organisation_id, Id member_id, std::string* settings_json) {
+  Statement s(
+      db_.handle(),
+      "SELECT settings_json FROM member_drift_settings WHERE organisation_id = ?1 AND member_id = ?2");
+  s.Bind(1, organisation_id).Bind(2, member_id);
+  return ReadOne(s, "drift settings of " + IdText("member", member_id),
+                 [&](const Statement& r) { *settings_json = r.Text(0); });
+}
+
+StorageStatus Repository::SetDriftSettings(Id organisation_id, Id member_id, std::string_view settings_json,
+                                           std::int64_t now_unix_ms) {
+  return Write([&]() -> StorageStatus {
+    if (StorageStatus f = Fault(); !f.ok()) return f;
+    Statement member(
+        db_.handle(),
+        "SELECT 1 FROM member WHERE id = ?1 AND organisation_id = ?2 AND deleted_at_unix_ms IS NULL");
+    member.Bind(1, member_id).Bind(2, organisation_id);
+    const int rc = member.Step();
+    if (rc == SQLITE_DONE) return StorageStatus::NotFound(IdText("member", member_id) + " not found");
+    if (rc != SQLITE_ROW) return member.status();
+    if (StorageStatus f = Fault(); !f.ok()) return f;
+    Statement s(db_.handle(),
+                "INSERT INTO member_drift_settings (organisation_id, member_id, settings_json, "
+                "updated_at_unix_ms) VALUES (?1, ?2, ?3, ?4) ON CONFLICT (organisation_id, member_id) DO "
+                "UPDATE SET settings_json = excluded.settings_json, updated_at_unix_ms = "
+                "excluded.updated_at_unix_ms");
+    s.Bind(1, organisation_id).Bind(2, member_id).Bind(3, settings_json).Bind(4, now_unix_ms);
+    return s.Run();
+  });
+}
+
+StorageStatus Repository::DueDeliveries(std::int64_t now_unix_ms, std::size_t limit,
+                                        std::vector<DueDelivery>* out) {
+  // One row per (subscription, alert) pair; `last` is its latest attempt
+  // (NULL columns when there is none). Alerts are few (a handful per member
+  // and year), so the join over every pair is cheap.
+  Statement s(db_.handle(),
+              "SELECT w.organisation_id, w.id, w.url, w.secret, a.id, coalesce(last.attempt, 0) + 1, "
+              "       coalesce(last.next_attempt_at_unix_ms, a.raised_at_unix_ms) AS due "
+              "FROM alert a "
+              "JOIN webhook_subscription w ON w.organisation_id = a.organisation_id AND w.active = 1 "
+              "     AND a.raised_at_unix_ms >= w.created_at_unix_ms "
+              "LEFT JOIN webhook_delivery last ON last.subscription_id = w.id AND last.alert_id = a.id "
+              "     AND last.attempt = (SELECT max(attempt) FROM webhook_delivery d "
+              "                         WHERE d.subscription_id = w.id AND d.alert_id = a.id) "
+              "WHERE (last.id IS NULL OR (last.succeeded = 0 AND last.next_attempt_at_unix_ms IS NOT NULL)) "
+              "  AND due <= ?1 "
+              "ORDER BY due, a.id, w.id LIMIT ?2");
+  s.Bind(1, now_unix_ms).Bind(2, static_cast<std::int64_t>(limit));
+  return ReadAll(s, out, [](const Statement& r) {
+    DueDelivery d;
+    d.organisation_id = r.Int64(0);
+    d.subscription_id = r.Int64(1);
+    d.url = r.Text(2);
+    d.secret = r.Blob(3);
+    d.alert_id = r.Int64(4);
+    d.attempt = static_cast<int>(r.Int64(5));
+    d.due_at_unix_ms = r.Int64(6);
+    return d;
+  });
+}
+
 }  // namespace taut::storage

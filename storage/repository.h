@@ -25,6 +25,7 @@
 
 #include <cstdint>
 #include <functional>
+#include <map>
 #include <optional>
 #include <string>
 #include <string_view>
@@ -325,6 +326,50 @@ class Repository {
   StorageStatus DeactivateWebhook(Id organisation_id, Id webhook_id);
   StorageStatus RecordDelivery(Id organisation_id, const DeliveryAttempt& attempt, Id* id);
   StorageStatus ListDeliveries(Id organisation_id, Id alert_id, std::vector<DeliveryAttempt>* out);
+
+  // --- lookups of the HTTP layer ---------------------------------------
+  // Unscoped by design: `taut token create --org NAME` finds the
+  // organisation by its unique name before any token exists.
+  StorageStatus FindOrganisationByName(std::string_view name, Organisation* out);
+  // The estimate stored for a record (with result_json); not_found() until
+  // the record's job is done.
+  StorageStatus EstimateForRecord(Id organisation_id, Id record_id, Estimate* out);
+  // Jobs per state name ("queued", "running", "done", "failed"; every state
+  // present, 0 when none) over all organisations: the /metrics gauge.
+  StorageStatus CountJobsByState(std::map<std::string, std::int64_t>* out);
+  // recorded_at of the member's newest record; not_found() without records.
+  StorageStatus LatestRecordTime(Id organisation_id, Id member_id, std::int64_t* recorded_at_unix_ms);
+
+  // --- worker side: drift checks and webhook deliveries -----------------
+  // Estimates whose drift check has not run yet (oldest first, at most
+  // `limit`). Unscoped: the workers serve every organisation.
+  StorageStatus PendingDriftChecks(std::size_t limit, std::vector<Estimate>* out);
+  // Marks the estimate's drift check done (after its alerts are stored).
+  StorageStatus MarkDriftChecked(Id organisation_id, Id estimate_id, std::int64_t now_unix_ms);
+  // As RaiseAlert, but at most once per (member, rule, estimate): when such
+  // an alert exists already, *id is its id, *created = false and nothing is
+  // written. alert.estimate_id must be set.
+  StorageStatus RaiseAlertOnce(Id organisation_id, const NewAlert& alert, std::int64_t now_unix_ms, Id* id,
+                               bool* created);
+  // Per-member drift settings as JSON text (server/ parses it);
+  // not_found() when the member uses the defaults.
+  StorageStatus GetDriftSettings(Id organisation_id, Id member_id, std::string* settings_json);
+  StorageStatus SetDriftSettings(Id organisation_id, Id member_id, std::string_view settings_json,
+                                 std::int64_t now_unix_ms);
+  // Deliveries due at `now_unix_ms` (unscoped, for the webhook thread):
+  // every (active subscription, alert raised after the subscription was
+  // created) of one organisation without a successful attempt, whose last
+  // attempt asked for another (next_attempt_at <= now) or that has none.
+  // At most `limit`, earliest due first.
+  struct DueDelivery {
+    Id organisation_id = 0;
+    Id subscription_id = 0;
+    std::string url, secret;
+    Id alert_id = 0;
+    int attempt = 1;  // the number of the attempt to make
+    std::int64_t due_at_unix_ms = 0;
+  };
+  StorageStatus DueDeliveries(std::int64_t now_unix_ms, std::size_t limit, std::vector<DueDelivery>* out);
 
   // Test hook (STYLE.md item 13, fail-at-step-N): called with a running
   // step number (1, 2, ...) before each SQL statement executed inside a

@@ -1,0 +1,155 @@
+// `taut serve` (the HTTP API with its job workers) and `taut token create`.
+#include <signal.h>
+
+#include <iostream>
+#include <ostream>
+
+#include "server/auth.h"
+#include "server/cli.h"
+#include "server/http_api.h"
+#include "server/iso_time.h"
+#include "server/worker.h"
+#include "storage/migrations.h"
+#include "storage/repository.h"
+
+namespace taut::server {
+
+namespace {
+
+struct ServeCliOptions {
+  std::string db_path;
+  std::string listen = "127.0.0.1:8080";
+  int workers = kDefaultWorkers;
+  std::size_t max_body_mib = kDefaultMaxBody_mib;
+  bool quiet = false;
+};
+
+// "HOST:PORT" -> host, port (0..65535). The last colon splits, so an IPv6
+// literal in brackets ("[::1]:8080") works.
+bool SplitListen(const std::string& listen, std::string* host, int* port) {
+  const auto colon = listen.rfind(':');
+  if (colon == std::string::npos || colon == 0 || colon + 1 == listen.size()) return false;
+  *host = listen.substr(0, colon);
+  if (host->size() > 2 && host->front() == '[' && host->back() == ']')
+    *host = host->substr(1, host->size() - 2);
+  const std::string p = listen.substr(colon + 1);
+  if (p.size() > 5 || p.find_first_not_of("0123456789") != std::string::npos) return false;
+  *port = std::stoi(p);
+  return *port <= 65535;
+}
+
+int RunServe(const ServeCliOptions& o, std::ostream& out, std::ostream& err) {
+  ServeOptions so;
+  so.db_path = o.db_path;
+  if (!SplitListen(o.listen, &so.host, &so.port)) {
+    err << "taut serve: --listen \"" << o.listen << "\": expected HOST:PORT (port 0 picks a free one)\n";
+    return 2;
+  }
+  so.max_body_bytes = o.max_body_mib << 20;
+  so.access_log = o.quiet ? nullptr : &std::cerr;
+  Metrics metrics;
+  so.metrics = &metrics;
+
+  // SIGINT and SIGTERM are blocked in every thread (the threads started
+  // below inherit the mask) and taken by sigwait in this one, so a stop
+  // request never interrupts a database write.
+  sigset_t stop_signals;
+  sigemptyset(&stop_signals);
+  sigaddset(&stop_signals, SIGINT);
+  sigaddset(&stop_signals, SIGTERM);
+  pthread_sigmask(SIG_BLOCK, &stop_signals, nullptr);
+
+  WorkerOptions wo;
+  wo.db_path = o.db_path;
+  wo.workers = o.workers;
+  wo.log = o.quiet ? nullptr : &std::cerr;
+  WorkerPool workers(wo, &metrics);
+  so.on_job_queued = [&workers] { workers.Notify(); };
+  ApiServer api(so);
+  // The API migrates the database before the workers open it.
+  if (Status s = api.Start(); !s.ok()) {
+    err << "taut serve: " << s.message << "\n";
+    return 1;
+  }
+  if (Status s = workers.Start(); !s.ok()) {
+    err << "taut serve: " << s.message << "\n";
+    return 1;
+  }
+  out << "taut serve: listening on http://" << so.host << ":" << api.port() << std::endl;
+  int signal_number = 0;
+  sigwait(&stop_signals, &signal_number);
+  if (!o.quiet) err << "taut serve: signal " << signal_number << ", finishing requests and running jobs\n";
+  // Graceful order: no new requests, then running jobs finish (queued ones
+  // stay queued for the next start).
+  api.Stop();
+  workers.Stop();
+  out << "taut serve: stopped" << std::endl;
+  return 0;
+}
+
+struct TokenCliOptions {
+  std::string db_path, org, role, label;
+};
+
+int RunTokenCreate(const TokenCliOptions& o, std::ostream& out, std::ostream& err) {
+  storage::Database db;
+  if (storage::StorageStatus s = storage::OpenAndMigrate(db, o.db_path); !s.ok()) {
+    err << "taut token create: " << o.db_path << ": " << s.message << "\n";
+    return 1;
+  }
+  storage::Repository repo(db);
+  storage::Organisation org;
+  if (storage::StorageStatus s = repo.FindOrganisationByName(o.org, &org); s.not_found()) {
+    if (storage::StorageStatus c = repo.CreateOrganisation(o.org, NowUnixMs(), &org.id); !c.ok()) {
+      err << "taut token create: organisation \"" << o.org << "\": " << c.message << "\n";
+      return 1;
+    }
+  } else if (!s.ok()) {
+    err << "taut token create: " << s.message << "\n";
+    return 1;
+  }
+  const storage::Role role = o.role == "admin"    ? storage::Role::kAdmin
+                             : o.role == "upload" ? storage::Role::kUpload
+                                                  : storage::Role::kRead;
+  std::string token;
+  if (storage::StorageStatus s = IssueToken(repo, org.id, role, o.label, NowUnixMs(), &token); !s.ok()) {
+    err << "taut token create: " << s.message << "\n";
+    return 1;
+  }
+  out << token << "\n";
+  return 0;
+}
+
+}  // namespace
+
+void RegisterServeCommand(CLI::App& app, CliContext* ctx) {
+  auto o = std::make_shared<ServeCliOptions>();
+  CLI::App* cmd =
+      app.add_subcommand("serve", "Run the HTTP API and the identification workers (docs/API.md)");
+  cmd->add_option("--db", o->db_path, "SQLite database file (created and migrated if needed)")->required();
+  cmd->add_option("--listen", o->listen, "HOST:PORT to listen on; port 0 picks a free port")
+      ->capture_default_str();
+  cmd->add_option("--workers", o->workers, "identification worker threads")
+      ->check(CLI::Range(1, 64))
+      ->capture_default_str();
+  cmd->add_option("--max-body", o->max_body_mib, "largest request body [MiB] (larger uploads get 413)")
+      ->check(CLI::Range(1, 4096))
+      ->capture_default_str();
+  cmd->add_flag("--quiet", o->quiet, "no access log on stderr");
+  cmd->callback([o, ctx] { ctx->exit_code = RunServe(*o, *ctx->out, *ctx->err); });
+
+  auto t = std::make_shared<TokenCliOptions>();
+  CLI::App* token = app.add_subcommand("token", "API tokens");
+  token->require_subcommand(1);
+  CLI::App* create = token->add_subcommand(
+      "create", "Create an API token (printed once; the database keeps only a salted hash)");
+  create->add_option("--db", t->db_path, "SQLite database file")->required();
+  create->add_option("--org", t->org, "organisation name (created if it does not exist)")->required();
+  create->add_option("--role", t->role, "read, upload or admin")
+      ->required()
+      ->check(CLI::IsMember({"read", "upload", "admin"}));
+  create->add_option("--label", t->label, "free text to recognise the token by");
+  create->callback([t, ctx] { ctx->exit_code = RunTokenCreate(*t, *ctx->out, *ctx->err); });
+}
+
+}  // namespace taut::server

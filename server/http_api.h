@@ -1,0 +1,70 @@
+// The v1 HTTP API of `taut serve` (docs/API.md is the contract).
+//
+// Request flow, in the manner of cpp-httplib's handler diagram:
+//
+//   socket -> httplib (body read, size limit -> 413) -> Dispatch:
+//     route table lookup (unknown path 404, known path with another method
+//     405 + Allow) -> bearer token check (401) -> role check (403) ->
+//     handler (organisation-scoped repository calls; another organisation's
+//     id is 404) -> JSON response -> access log line + metrics.
+//
+// Every error body is {"error": {"code", "message"}}. Handlers throw
+// ApiError internally; Dispatch is the one place that catches (and turns an
+// unexpected exception into a logged 500 that keeps the cause).
+//
+// Threads: cpp-httplib answers requests on kHttpThreads threads; each
+// request borrows a database connection from a pool (one connection per
+// thread at a time, storage/database.h). Uploads are stored and queued in
+// one transaction; the job workers (worker.h) are started by the caller and
+// woken through ServeOptions::on_job_queued.
+#pragma once
+
+#include <cstddef>
+#include <functional>
+#include <iosfwd>
+#include <memory>
+#include <string>
+
+#include "model/status.h"
+#include "server/metrics.h"
+#include "server/service_limits.h"
+
+namespace taut::server {
+
+struct ServeOptions {
+  std::string db_path;             // SQLite file; created and migrated at Start
+  std::string host = "127.0.0.1";  // listen address
+  int port = 0;                    // 0: an ephemeral port (see ApiServer::port)
+  std::size_t max_body_bytes = kDefaultMaxBody_mib << 20;
+  // Called after a new record and its job are committed (not for a
+  // duplicate upload). May be empty.
+  std::function<void()> on_job_queued;
+  // Access log: one key=value line per request. Not owned; may be null.
+  std::ostream* access_log = nullptr;
+  // Shared with the workers; not owned; may be null (a private one is used).
+  Metrics* metrics = nullptr;
+};
+
+class ApiServer {
+ public:
+  explicit ApiServer(ServeOptions options);
+  ~ApiServer();  // Stop()
+  ApiServer(const ApiServer&) = delete;
+  ApiServer& operator=(const ApiServer&) = delete;
+
+  // Opens and migrates the database, binds the socket and starts serving on
+  // a background thread. Connections are accepted (queued by the kernel)
+  // from the moment Start returns ok. Fails with a message naming the file
+  // or the address.
+  Status Start();
+  int port() const;  // the bound port (after a successful Start)
+  // Stops accepting, lets requests in flight finish, joins the thread.
+  // Idempotent.
+  void Stop();
+
+ private:
+  struct Impl;
+  std::unique_ptr<Impl> impl_;
+};
+
+}  // namespace taut::server

@@ -1,0 +1,477 @@
+// The v1 HTTP API (docs/API.md) against a real server on loopback and a real
+// SQLite file: routing, authentication, organisation scoping, roles, record
+// uploads (CSV and JSON, idempotency, concurrency), the error contract and
+// the read side. Fixture in the manner of cpp-httplib's test/test.cc: an
+// ephemeral port, the server ready when Start returns (the socket listens),
+// stopped and joined in TearDown.
+//
+// The job workers are not started here (test_service.cpp runs the whole
+// chain); estimates for the read-side tests are stored through the worker's
+// own repository calls (ClaimNextJob + CompleteJobWithEstimate).
+#include <gtest/gtest.h>
+
+#include <atomic>
+#include <cmath>
+#include <filesystem>
+#include <fstream>
+#include <nlohmann/json.hpp>
+#include <set>
+#include <sstream>
+#include <thread>
+
+#include "server/auth.h"
+#include "server/http_api.h"
+#include "server/iso_time.h"
+#include "server/member_json.h"
+#include "storage/migrations.h"
+#include "storage/repository.h"
+#include "synthetic_record.h"
+
+// After Eigen (synthetic_record.h): <resolv.h> defines _res.
+#include <httplib.h>
+
+namespace taut::server {
+namespace {
+
+using nlohmann::json;
+
+std::string ReadFile(const std::string& path) {
+  std::ifstream in(path);
+  std::stringstream ss;
+  ss << in.rdbuf();
+  return ss.str();
+}
+
+// A short ambient record of the example tie (modal superposition of the
+// model, tests/server/synthetic_record.h); `seed` makes distinct records.
+std::string SyntheticCsv(const std::string& dir, unsigned seed, double duration_s = 20.0) {
+  model::Member member;
+  EXPECT_TRUE(LoadMemberFile(std::string(TAUT_EXAMPLES_DIR) + "/maltings-east-tie-2.json", &member).ok());
+  model::ModalParameters truth;
+  truth.axial_force_n = 30000;
+  truth.bending_stiffness_nm2 = member.NominalBendingStiffness_nm2(model::Direction::kVertical);
+  truth.fixity_left = truth.fixity_right = 0.5;
+  taut::testing::RecordSpec spec;
+  spec.duration_s = duration_s;
+  spec.sample_rate_hz = 256;
+  spec.modes = 3;
+  spec.seed = seed;
+  const std::string path = dir + "/record-" + std::to_string(seed) + ".csv";
+  EXPECT_TRUE(taut::testing::WriteSyntheticRecord(path, member, model::Direction::kVertical, truth, spec));
+  return ReadFile(path);
+}
+
+class HttpApiTest : public ::testing::Test {
+ protected:
+  void SetUp() override {
+    dir_ = std::filesystem::temp_directory_path() /
+           ("taut-http-" + std::to_string(::getpid()) + "-" +
+            ::testing::UnitTest::GetInstance()->current_test_info()->name());
+    std::filesystem::remove_all(dir_);
+    std::filesystem::create_directories(dir_);
+    db_path_ = (dir_ / "taut.db").string();
+    StartServer(64u << 20);
+    storage::Database db;
+    ASSERT_TRUE(storage::OpenAndMigrate(db, db_path_).ok());
+    storage::Repository repo(db);
+    const std::int64_t now = NowUnixMs();
+    ASSERT_TRUE(repo.CreateOrganisation("org-a", now, &org_a_).ok());
+    ASSERT_TRUE(repo.CreateOrganisation("org-b", now, &org_b_).ok());
+    ASSERT_TRUE(IssueToken(repo, org_a_, storage::Role::kAdmin, "a admin", now, &admin_a_).ok());
+    ASSERT_TRUE(IssueToken(repo, org_a_, storage::Role::kUpload, "a gateway", now, &upload_a_).ok());
+    ASSERT_TRUE(IssueToken(repo, org_a_, storage::Role::kRead, "a viewer", now, &read_a_).ok());
+    ASSERT_TRUE(IssueToken(repo, org_b_, storage::Role::kAdmin, "b admin", now, &admin_b_).ok());
+    member_text_ = ReadFile(std::string(TAUT_EXAMPLES_DIR) + "/maltings-east-tie-2.json");
+  }
+  void TearDown() override {
+    server_.reset();
+    std::filesystem::remove_all(dir_);
+  }
+
+  void StartServer(std::size_t max_body) {
+    server_.reset();
+    ServeOptions o;
+    o.db_path = db_path_;
+    o.max_body_bytes = max_body;
+    o.on_job_queued = [this] { ++queued_; };
+    server_ = std::make_unique<ApiServer>(o);
+    ASSERT_TRUE(server_->Start().ok());
+  }
+
+  httplib::Client Client(const std::string& token) const {
+    httplib::Client c("127.0.0.1", server_->port());
+    if (!token.empty()) c.set_default_headers({{"Authorization", "Bearer " + token}});
+    c.set_read_timeout(30, 0);
+    return c;
+  }
+
+  // Structure + the example member in org A; returns the member id.
+  std::int64_t CreateMember() {
+    auto c = Client(admin_a_);
+    auto s = c.Post("/v1/structures", R"({"name": "Old maltings hall"})", "application/json");
+    EXPECT_TRUE(s) << httplib::to_string(s.error());
+    EXPECT_EQ(s->status, 201) << s->body;
+    structure_id_ = json::parse(s->body)["id"].get<std::int64_t>();
+    auto m = c.Post("/v1/structures/" + std::to_string(structure_id_) + "/members", member_text_,
+                    "application/json");
+    EXPECT_EQ(m->status, 201) << m->body;
+    return json::parse(m->body)["id"].get<std::int64_t>();
+  }
+
+  std::filesystem::path dir_;
+  std::string db_path_;
+  std::unique_ptr<ApiServer> server_;
+  std::atomic<int> queued_{0};
+  storage::Id org_a_ = 0, org_b_ = 0;
+  std::string admin_a_, upload_a_, read_a_, admin_b_;
+  std::string member_text_;
+  std::int64_t structure_id_ = 0;
+};
+
+TEST_F(HttpApiTest, HealthNeedsNoTokenAndReportsTheSchema) {
+  auto r = Client("").Get("/v1/health");
+  ASSERT_TRUE(r);
+  EXPECT_EQ(r->status, 200);
+  const json j = json::parse(r->body);
+  EXPECT_EQ(j["status"], "ok");
+  EXPECT_EQ(j["schema_version"].get<int>(), storage::LatestSchemaVersion());
+}
+
+TEST_F(HttpApiTest, MissingMalformedOrWrongTokensAre401WithTheErrorBody) {
+  auto none = Client("").Get("/v1/structures");
+  EXPECT_EQ(none->status, 401);
+  EXPECT_EQ(json::parse(none->body)["error"]["code"], "unauthorized");
+  EXPECT_EQ(Client("not-a-token").Get("/v1/structures")->status, 401);
+  // Right shape, wrong secret (last hex digit changed).
+  std::string forged = admin_a_;
+  forged.back() = forged.back() == '0' ? '1' : '0';
+  EXPECT_EQ(Client(forged).Get("/v1/structures")->status, 401);
+  EXPECT_EQ(Client(admin_a_).Get("/v1/structures")->status, 200);
+}
+
+TEST_F(HttpApiTest, RolesAreEnforcedReadBelowUploadBelowAdmin) {
+  const auto member = CreateMember();
+  const std::string csv = SyntheticCsv(dir_.string(), 1);
+  const std::string path = "/v1/members/" + std::to_string(member) + "/records";
+  auto denied = Client(read_a_).Post(path, csv, "text/csv");
+  EXPECT_EQ(denied->status, 403);
+  EXPECT_EQ(json::parse(denied->body)["error"]["code"], "forbidden");
+  EXPECT_EQ(Client(upload_a_).Post("/v1/structures", R"({"name": "x"})", "application/json")->status, 403);
+  EXPECT_EQ(Client(upload_a_).Post(path, csv, "text/csv")->status, 202);
+  EXPECT_EQ(Client(read_a_).Get("/v1/members/" + std::to_string(member))->status, 200);
+}
+
+TEST_F(HttpApiTest, AnotherOrganisationsIdsAre404NotForbidden) {
+  const auto member = CreateMember();
+  auto up = Client(upload_a_).Post("/v1/members/" + std::to_string(member) + "/records",
+                                   SyntheticCsv(dir_.string(), 2), "text/csv");
+  ASSERT_EQ(up->status, 202) << up->body;
+  const json ids = json::parse(up->body);
+  const std::string m = std::to_string(member), s = std::to_string(structure_id_),
+                    rec = std::to_string(ids["record_id"].get<std::int64_t>()),
+                    job = std::to_string(ids["job_id"].get<std::int64_t>());
+  auto b = Client(admin_b_);
+  for (const std::string& path :
+       {"/v1/structures/" + s, "/v1/structures/" + s + "/members", "/v1/structures/" + s + "/portfolio",
+        "/v1/members/" + m, "/v1/members/" + m + "/versions/1", "/v1/members/" + m + "/force",
+        "/v1/members/" + m + "/force/history", "/v1/records/" + rec, "/v1/records/" + rec + "/csv",
+        "/v1/jobs/" + job}) {
+    auto r = b.Get(path);
+    ASSERT_TRUE(r) << path;
+    EXPECT_EQ(r->status, 404) << path << ": " << r->body;
+    EXPECT_EQ(json::parse(r->body)["error"]["code"], "not-found") << path;
+  }
+  EXPECT_EQ(b.Post("/v1/members/" + m + "/records", SyntheticCsv(dir_.string(), 3), "text/csv")->status, 404);
+  EXPECT_EQ(b.Delete("/v1/members/" + m)->status, 404);
+  // And organisation B's list does not show A's structure.
+  EXPECT_EQ(json::parse(b.Get("/v1/structures")->body)["structures"].size(), 0u);
+}
+
+TEST_F(HttpApiTest, UnknownRoutes404WrongMethods405WithAllow) {
+  auto c = Client(admin_a_);
+  EXPECT_EQ(c.Get("/v1/nothing-here")->status, 404);
+  auto r = c.Put("/v1/structures", "{}", "application/json");
+  EXPECT_EQ(r->status, 405);
+  EXPECT_EQ(json::parse(r->body)["error"]["code"], "method-not-allowed");
+  EXPECT_NE(r->get_header_value("Allow").find("POST"), std::string::npos);
+  EXPECT_NE(r->get_header_value("Allow").find("GET"), std::string::npos);
+}
+
+TEST_F(HttpApiTest, OversizedBodiesAre413) {
+  StartServer(1u << 20);  // 1 MiB
+  const auto member = CreateMember();
+  const std::string big(2u << 20, 'x');
+  auto r = Client(upload_a_).Post("/v1/members/" + std::to_string(member) + "/records", big, "text/csv");
+  ASSERT_TRUE(r);
+  EXPECT_EQ(r->status, 413);
+  EXPECT_EQ(json::parse(r->body)["error"]["code"], "payload-too-large");
+}
+
+TEST_F(HttpApiTest, MembersAreVersionedAndSoftDeleted) {
+  const auto member = CreateMember();
+  const std::string path = "/v1/members/" + std::to_string(member);
+  auto c = Client(admin_a_);
+  json edited = json::parse(member_text_);
+  edited["design_axial_force_n"] = 38000;
+  auto put = c.Put(path, edited.dump(), "application/json");
+  ASSERT_EQ(put->status, 200) << put->body;
+  EXPECT_EQ(json::parse(put->body)["version"], 2);
+  EXPECT_EQ(json::parse(c.Get(path + "/versions/1")->body)["description"]["design_axial_force_n"], 35000);
+  EXPECT_EQ(json::parse(c.Get(path)->body)["description"]["design_axial_force_n"], 38000);
+  // A description that breaks a FORMATS.md rule: 422 naming the JSON path.
+  edited["sensors"][0]["position_m"] = 9.0;
+  auto bad = c.Put(path, edited.dump(), "application/json");
+  EXPECT_EQ(bad->status, 422);
+  EXPECT_NE(json::parse(bad->body)["error"]["message"].get<std::string>().find("$.sensors[0].position_m"),
+            std::string::npos)
+      << bad->body;
+  EXPECT_EQ(c.Delete(path)->status, 204);
+  EXPECT_EQ(c.Get(path)->status, 404);
+  EXPECT_EQ(c.Get(path + "/versions/2")->status, 200);  // history stays readable
+}
+
+TEST_F(HttpApiTest, UploadIsIdempotentAndTheStoredSamplesRoundTrip) {
+  const auto member = CreateMember();
+  const std::string path = "/v1/members/" + std::to_string(member) + "/records";
+  const std::string csv = SyntheticCsv(dir_.string(), 4);
+  auto c = Client(upload_a_);
+  auto first = c.Post(path, {{"Idempotency-Key", "gw7-0001"}}, csv, "text/csv");
+  ASSERT_EQ(first->status, 202) << first->body;
+  EXPECT_EQ(queued_.load(), 1);
+  const json a = json::parse(first->body);
+  EXPECT_FALSE(a["duplicate"].get<bool>());
+  // Same content again (no key): the original ids, no second job.
+  auto again = c.Post(path, csv, "text/csv");
+  ASSERT_EQ(again->status, 200);
+  const json b = json::parse(again->body);
+  EXPECT_TRUE(b["duplicate"].get<bool>());
+  EXPECT_EQ(a["record_id"], b["record_id"]);
+  EXPECT_EQ(a["job_id"], b["job_id"]);
+  EXPECT_EQ(queued_.load(), 1);
+  // The same key with other content is a client bug: 409.
+  auto reused = c.Post(path, {{"Idempotency-Key", "gw7-0001"}}, SyntheticCsv(dir_.string(), 5), "text/csv");
+  EXPECT_EQ(reused->status, 409) << reused->body;
+
+  // Download: the samples come back within binary32 precision (relative
+  // 2^-24 = 6e-8, IEEE 754; the CSV has 7 significant digits, so compare
+  // with the CSV's own rounding, 5e-7 relative).
+  const std::string rec = std::to_string(a["record_id"].get<std::int64_t>());
+  auto meta = Client(read_a_).Get("/v1/records/" + rec);
+  const json m = json::parse(meta->body);
+  EXPECT_EQ(m["sample_count"], 20 * 256);
+  EXPECT_EQ(m["recorded_at"], "2026-11-20T10:00:00Z");
+  EXPECT_DOUBLE_EQ(m["temperature_c"].get<double>(), 12.5);
+  EXPECT_EQ(m["content_sha256"], Sha256Hex(csv));
+  auto down = Client(read_a_).Get("/v1/records/" + rec + "/csv");
+  ASSERT_EQ(down->status, 200);
+  std::istringstream orig(csv), back(down->body);
+  std::string lo, lb;
+  auto skip_meta = [](std::istringstream& in, std::string& line) {
+    while (std::getline(in, line) && line.rfind("#", 0) == 0) {
+    }
+  };
+  skip_meta(orig, lo);
+  skip_meta(back, lb);
+  EXPECT_EQ(lo, lb);  // header
+  int rows = 0;
+  double worst = 0;
+  while (std::getline(orig, lo) && std::getline(back, lb)) {
+    std::istringstream so(lo), sb(lb);
+    std::string co, cb;
+    std::getline(so, co, ',');
+    std::getline(sb, cb, ',');
+    EXPECT_NEAR(std::stod(co), std::stod(cb), 1e-6);
+    while (std::getline(so, co, ',') && std::getline(sb, cb, ',')) {
+      const double x = std::stod(co), y = std::stod(cb);
+      worst = std::max(worst, std::abs(x - y) / std::max(std::abs(x), 1e-30));
+    }
+    ++rows;
+  }
+  EXPECT_EQ(rows, 20 * 256);
+  EXPECT_LT(worst, 1e-6);
+}
+
+TEST_F(HttpApiTest, EveryReaderErrorIsA4xxWithItsMessage) {
+  const auto member = CreateMember();
+  const std::string path = "/v1/members/" + std::to_string(member) + "/records";
+  auto c = Client(upload_a_);
+  std::string csv = SyntheticCsv(dir_.string(), 6);
+  // A non-finite cell on data line 3 (file line 7: 3 metadata lines + header).
+  std::string broken = csv;
+  std::size_t pos = 0;
+  for (int i = 0; i < 6; ++i) pos = broken.find('\n', pos) + 1;
+  const std::size_t comma = broken.find(',', pos);
+  broken.replace(comma + 1, broken.find(',', comma + 1) - comma - 1, "nan");
+  auto r = c.Post(path, broken, "text/csv");
+  EXPECT_EQ(r->status, 400);
+  EXPECT_NE(json::parse(r->body)["error"]["message"].get<std::string>().find("line 7"), std::string::npos)
+      << r->body;
+  // A channel that is not a sensor of the member.
+  std::string renamed = csv;
+  renamed.replace(renamed.find(",v2"), 3, ",v9");
+  r = c.Post(path, renamed, "text/csv");
+  EXPECT_EQ(r->status, 400);
+  EXPECT_NE(r->body.find("v9"), std::string::npos) << r->body;
+  // Too short (FORMATS.md: at least 10 s).
+  r = c.Post(path, SyntheticCsv(dir_.string(), 7, 5.0), "text/csv");
+  EXPECT_EQ(r->status, 400);
+  EXPECT_NE(r->body.find("10"), std::string::npos) << r->body;
+  // Garbage, an unsupported media type, a bad override.
+  EXPECT_EQ(c.Post(path, "hello", "text/csv")->status, 400);
+  EXPECT_EQ(c.Post(path, csv, "image/png")->status, 415);
+  EXPECT_EQ(c.Post(path + "?recorded_at=yesterday", csv, "text/csv")->status, 422);
+  EXPECT_EQ(queued_.load(), 0);
+}
+
+TEST_F(HttpApiTest, JsonUploadsFollowTheSameRules) {
+  const auto member = CreateMember();
+  const std::string path = "/v1/members/" + std::to_string(member) + "/records";
+  json body = {{"recorded_at", "2026-11-21T08:00:00Z"},
+               {"temperature_c", 4.0},
+               {"sample_rate_hz", 128.0},
+               {"channels", {"v1", "v2"}}};
+  json rows = json::array();
+  for (int i = 0; i < 128 * 12; ++i) rows.push_back({std::sin(0.3 * i), std::cos(0.17 * i)});
+  body["samples"] = rows;
+  auto c = Client(upload_a_);
+  auto r = c.Post(path, body.dump(), "application/json");
+  ASSERT_EQ(r->status, 202) << r->body;
+  body["channels"] = {"v1", "x7"};
+  r = c.Post(path, body.dump(), "application/json");
+  EXPECT_EQ(r->status, 422);
+  EXPECT_NE(r->body.find("$.channels[1]"), std::string::npos) << r->body;
+  body["channels"] = {"v1", "v2"};
+  body["samples"][5] = {1.0};
+  r = c.Post(path, body.dump(), "application/json");
+  EXPECT_EQ(r->status, 422);
+  EXPECT_NE(r->body.find("$.samples[5]"), std::string::npos) << r->body;
+}
+
+TEST_F(HttpApiTest, ConcurrentUploadsLoseNothingAndDuplicateNothing) {
+  const auto member = CreateMember();
+  const std::string path = "/v1/members/" + std::to_string(member) + "/records";
+  // 8 threads x 3 distinct records, each sent twice (a gateway retry).
+  std::vector<std::string> csv;
+  for (unsigned i = 0; i < 24; ++i) csv.push_back(SyntheticCsv(dir_.string(), 100 + i, 12.0));
+  std::vector<std::thread> threads;
+  std::mutex mu;
+  std::vector<int> statuses;
+  std::set<std::int64_t> record_ids;
+  for (int t = 0; t < 8; ++t) {
+    threads.emplace_back([&, t] {
+      auto c = Client(upload_a_);
+      for (int k = 0; k < 6; ++k) {
+        const auto& body = csv[static_cast<std::size_t>(t * 3 + k / 2)];
+        auto r = c.Post(path, body, "text/csv");
+        std::lock_guard<std::mutex> lock(mu);
+        statuses.push_back(r ? r->status : -1);
+        if (r && (r->status == 202 || r->status == 200)) {
+          record_ids.insert(json::parse(r->body)["record_id"].get<std::int64_t>());
+        }
+      }
+    });
+  }
+  for (auto& t : threads) t.join();
+  EXPECT_EQ(std::count(statuses.begin(), statuses.end(), 202), 24);  // one new record per body
+  EXPECT_EQ(std::count(statuses.begin(), statuses.end(), 200), 24);  // the retries: duplicates
+  EXPECT_EQ(record_ids.size(), 24u);
+  EXPECT_EQ(queued_.load(), 24);
+  auto metrics = Client("").Get("/metrics");
+  EXPECT_NE(metrics->body.find("taut_jobs{state=\"queued\"} 24"), std::string::npos) << metrics->body;
+}
+
+// The read side: estimates stored by the worker's repository calls come
+// back unchanged through force, history (ordered by record time, not by
+// upload order), portfolio (utilisation = force / design force) and alerts.
+TEST_F(HttpApiTest, ForceHistoryPortfolioAndAlerts) {
+  const auto member = CreateMember();
+  const std::string path = "/v1/members/" + std::to_string(member) + "/records";
+  auto c = Client(upload_a_);
+  // Uploaded out of time order: 22nd, 20th, 21st November.
+  const std::vector<std::string> days = {"2026-11-22T06:00:00Z", "2026-11-20T06:00:00Z",
+                                         "2026-11-21T06:00:00Z"};
+  const std::vector<double> force = {31000, 29000, 30000};
+  for (std::size_t i = 0; i < days.size(); ++i) {
+    auto r = c.Post(path + "?recorded_at=" + days[i], SyntheticCsv(dir_.string(), 200 + i), "text/csv");
+    ASSERT_EQ(r->status, 202) << r->body;
+  }
+  {
+    storage::Database db;
+    ASSERT_TRUE(db.Open(db_path_).ok());
+    storage::Repository repo(db);
+    for (std::size_t i = 0; i < days.size(); ++i) {
+      storage::Job job;
+      bool claimed = false;
+      ASSERT_TRUE(repo.ClaimNextJob(NowUnixMs(), &job, &claimed).ok());
+      ASSERT_TRUE(claimed);
+      storage::NewEstimate e;
+      e.record_id = job.record_id;
+      e.axial_force_n = force[i];
+      e.force_std_n = 400;
+      e.force_ci95_low_n = force[i] - 800;
+      e.force_ci95_high_n = force[i] + 800;
+      e.result_json = json{{"axial_force_n", {{"value", force[i]}}}, {"cautions", json::array()}}.dump();
+      storage::Id id = 0;
+      ASSERT_TRUE(repo.CompleteJobWithEstimate(job.id, e, NowUnixMs(), &id).ok());
+    }
+    storage::NewAlert alert;
+    alert.member_id = member;
+    alert.rule = "force-residual";
+    alert.message = "inspect the anchorages";
+    alert.evidence = R"({"points": []})";
+    storage::Id alert_id = 0;
+    ASSERT_TRUE(repo.RaiseAlert(org_a_, alert, NowUnixMs(), &alert_id).ok());
+  }
+  auto r = Client(read_a_);
+  const std::string m = std::to_string(member);
+  const json latest = json::parse(r.Get("/v1/members/" + m + "/force")->body);
+  EXPECT_EQ(latest["measured_at"], "2026-11-22T06:00:00Z");
+  EXPECT_DOUBLE_EQ(latest["result"]["axial_force_n"]["value"].get<double>(), 31000);
+  const json h = json::parse(
+      r.Get("/v1/members/" + m + "/force/history?from=2026-11-01T00:00:00Z&to=2026-12-01T00:00:00Z")->body);
+  ASSERT_EQ(h["points"].size(), 3u);
+  EXPECT_EQ(h["points"][0]["measured_at"], "2026-11-20T06:00:00Z");
+  EXPECT_EQ(h["points"][2]["measured_at"], "2026-11-22T06:00:00Z");
+  EXPECT_DOUBLE_EQ(h["points"][0]["axial_force_n"].get<double>(), 29000);
+  EXPECT_DOUBLE_EQ(h["points"][1]["ci95_n"][0].get<double>(), 29200);
+  EXPECT_EQ(r.Get("/v1/members/" + m + "/force/history?from=last-week")->status, 400);
+  const json p = json::parse(r.Get("/v1/structures/" + std::to_string(structure_id_) + "/portfolio")->body);
+  ASSERT_EQ(p["members"].size(), 1u);
+  EXPECT_NEAR(p["members"][0]["utilisation"].get<double>(), 31000.0 / 35000.0, 1e-12);
+  EXPECT_EQ(p["members"][0]["open_alerts"], 1);
+  EXPECT_EQ(p["members"][0]["last_record_at"], "2026-11-22T06:00:00Z");
+  // Alerts: list, a read token cannot acknowledge, an upload token can; a
+  // second acknowledge is a state conflict.
+  const json alerts = json::parse(r.Get("/v1/alerts?state=open")->body);
+  ASSERT_EQ(alerts["alerts"].size(), 1u);
+  const std::string a = std::to_string(alerts["alerts"][0]["id"].get<std::int64_t>());
+  EXPECT_EQ(alerts["alerts"][0]["evidence"]["points"].size(), 0u);
+  EXPECT_EQ(r.Post("/v1/alerts/" + a + "/acknowledge", "", "application/json")->status, 403);
+  auto ack = c.Post("/v1/alerts/" + a + "/acknowledge", "", "application/json");
+  ASSERT_EQ(ack->status, 200) << ack->body;
+  EXPECT_EQ(json::parse(ack->body)["state"], "acknowledged");
+  EXPECT_EQ(c.Post("/v1/alerts/" + a + "/acknowledge", "", "application/json")->status, 409);
+  EXPECT_EQ(json::parse(c.Post("/v1/alerts/" + a + "/resolve", "", "application/json")->body)["state"],
+            "resolved");
+  EXPECT_EQ(Client(admin_b_).Get("/v1/alerts/" + a)->status, 404);
+}
+
+TEST(IsoTime, RoundTripsAndRefusesWhatIsNotUtc) {
+  // 2026-11-20 is 20777 days after 1970-01-01 (reference: Python's
+  // datetime, (date(2026, 11, 20) - date(1970, 1, 1)).days), plus 10 h.
+  std::int64_t ms = 0;
+  ASSERT_TRUE(ParseIsoUtc("2026-11-20T10:00:00Z", &ms));
+  EXPECT_EQ(ms, (20777LL * 86400 + 36000) * 1000);
+  EXPECT_EQ(FormatIsoUtc(ms), "2026-11-20T10:00:00Z");
+  ASSERT_TRUE(ParseIsoUtc("2026-11-20T10:00:00.25+00:00", &ms));
+  EXPECT_EQ(FormatIsoUtc(ms), "2026-11-20T10:00:00.250Z");
+  ASSERT_TRUE(ParseIsoUtc("1970-01-01", &ms));
+  EXPECT_EQ(ms, 0);
+  for (const char* bad : {"2026-02-30T00:00:00Z", "2026-11-20T24:00:00Z", "2026-11-20T10:00:00+01:00",
+                          "20261120", "2026-11-20T10:00Z", ""}) {
+    EXPECT_FALSE(ParseIsoUtc(bad, &ms)) << bad;
+  }
+}
+
+}  // namespace
+}  // namespace taut::server
