@@ -310,13 +310,20 @@ export function plot(spec) {
   fig.append(svg);
   const legend = h('ul', {class: 'legend'});
   for (const L of layers) {
-    if (!L.name || L.legend === false) continue;
+    if (!L.name || L.legend === false || !hasData(L)) continue;
     legend.append(h('li', null, sample(L), ' ', L.name));
   }
   fig.append(legend);
   if (spec.cursor) attachCursor(svg, fig, spec, drawn, WIDTH, py0, py1);
   if (spec.table) fig.append(lazyTable(spec));
   return fig;
+}
+
+// A legend entry only for what is drawn (no "baseline" before there is one).
+function hasData(L) {
+  if (L.kind === 'hline') return true;
+  const ok = (v) => v !== null && v !== undefined && isFinite(v);
+  return (L.data || []).some((p) => (L.kind === 'band' || L.kind === 'bars' ? ok(p.lo) && ok(p.hi) : L.kind === 'events' ? ok(p.x) : ok(p.y)));
 }
 
 function axisTitle(axis) {
