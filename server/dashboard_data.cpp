@@ -501,4 +501,24 @@ json FixityPointJson(const storage::Estimate& estimate) {
           {"right", right}};
 }
 
+json FixityCache::Point(const storage::Estimate& row, const std::function<void(storage::Estimate*)>& load) {
+  {
+    std::lock_guard<std::mutex> lock(mu_);
+    auto it = entries_.find(row.id);
+    if (it != entries_.end() && it->second.created_at_unix_ms == row.created_at_unix_ms) {
+      return {{"estimate_id", row.id},
+              {"measured_at", FormatIsoUtc(row.measured_at_unix_ms)},
+              {"left", it->second.left},
+              {"right", it->second.right}};
+    }
+  }
+  storage::Estimate full;
+  load(&full);
+  json point = FixityPointJson(full);
+  std::lock_guard<std::mutex> lock(mu_);
+  if (entries_.size() >= kFixityCacheEntries) entries_.clear();
+  entries_[row.id] = Entry{full.created_at_unix_ms, point["left"], point["right"]};
+  return point;
+}
+
 }  // namespace taut::server

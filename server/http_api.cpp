@@ -1,9 +1,11 @@
 #include "server/http_api.h"
 
+#include <algorithm>
 #include <chrono>
 #include <cmath>
 #include <iomanip>
 #include <limits>
+#include <memory>
 #include <mutex>
 #include <nlohmann/json.hpp>
 #include <optional>
@@ -67,9 +69,26 @@ json ErrorBody(const std::string& code, const std::string& message) {
   return {{"error", {{"code", code}, {"message", message}}}};
 }
 
-void SendJson(httplib::Response& res, int status, const json& body) {
+// Sends `text` without cpp-httplib's automatic compression. cpp-httplib
+// 0.11 compresses every set_content body of a text-like type when the
+// client accepts it, preferring Brotli at the library's default quality
+// (11, its slowest): bench_dashboard measured about 0.5 s for a 200 kB
+// force history fetched by Chromium (browsers always send
+// "Accept-Encoding: br"), against 9 ms uncompressed. A sized content
+// provider is sent as it is. Errors keep set_content (small, and the error
+// handler looks at res.body).
+void SendUncompressed(httplib::Response& res, int status, std::string text, const char* type) {
   res.status = status;
-  res.set_content(body.dump(), "application/json");
+  if (status >= 400 || text.empty()) return res.set_content(std::move(text), type);
+  auto shared = std::make_shared<const std::string>(std::move(text));
+  res.set_content_provider(shared->size(), type,
+                           [shared](std::size_t offset, std::size_t length, httplib::DataSink& sink) {
+                             return sink.write(shared->data() + offset, length);
+                           });
+}
+
+void SendJson(httplib::Response& res, int status, const json& body) {
+  SendUncompressed(res, status, body.dump(), "application/json");
 }
 
 // --------------------------------------------------------- connection pool
@@ -375,11 +394,18 @@ struct ApiServer::Impl {
   int port = 0;
   bool started = false;
   std::vector<Route> routes;
+  FixityCache fixity_cache;  // the fixity history's parsed results (dashboard_data.h)
 
   void Add(const char* method, const std::string& pattern, Role role, Handler h, bool auth = true) {
     // "{id}" and "{version}" capture digits; everything else is literal.
-    const std::string re = std::regex_replace(pattern, std::regex(R"(\{[a-z_]+\})"), R"((\d{1,18}))");
-    routes.push_back({method, pattern, std::regex(re), auth, role, h});
+    AddRegex(method, pattern, std::regex_replace(pattern, std::regex(R"(\{[a-z_]+\})"), R"((\d{1,18}))"),
+             role, h, auth);
+  }
+  // A route whose path is the regular expression `re` (its capture groups
+  // are the numeric ids); `label` names it in the metrics.
+  void AddRegex(const char* method, const std::string& label, const std::string& re, Role role, Handler h,
+                bool auth) {
+    routes.push_back({method, label, std::regex(re), auth, role, h});
   }
 
   void AddRoutes() {
@@ -422,7 +448,7 @@ struct ApiServer::Impl {
     Add("GET", "/v1/members/{id}/drift", Role::kRead, &Impl::MemberDrift);
     Add("GET", "/v1/members/{id}/fixity/history", Role::kRead, &Impl::FixityHistory);
     Add("GET", "/", Role::kRead, &Impl::UiRedirect, /*auth=*/false);
-    routes.push_back({"GET", "/ui/", std::regex("/ui(?:/.*)?"), false, Role::kRead, &Impl::UiFile});
+    AddRegex("GET", "/ui/", "/ui(?:/.*)?", Role::kRead, &Impl::UiFile, /*auth=*/false);
   }
 
   // The one entry point of every request (see the header's diagram).
@@ -495,7 +521,8 @@ struct ApiServer::Impl {
       line << "time=" << FormatIsoUtc(NowUnixMs()) << " remote=" << req.remote_addr
            << " method=" << req.method << " path=" << req.path << " route=" << route_label
            << " status=" << res.status << " ms=" << std::fixed << std::setprecision(2) << seconds * 1e3
-           << " org=" << organisation << " in=" << req.body.size() << " out=" << res.body.size() << "\n";
+           << " org=" << organisation << " in=" << req.body.size()
+           << " out=" << std::max(res.body.size(), res.content_length_) << "\n";
       std::lock_guard<std::mutex> lock(log_mu);
       *options.access_log << line.str() << std::flush;
     }
@@ -773,7 +800,7 @@ struct ApiServer::Impl {
     c.res.status = 200;
     c.res.set_header("Content-Disposition",
                      "attachment; filename=\"record-" + std::to_string(r.id) + ".csv\"");
-    c.res.set_content(std::move(out), "text/csv");
+    SendUncompressed(c.res, 200, std::move(out), "text/csv");
   }
   void GetRecordEstimate(Call& c) {
     storage::Record r;
@@ -928,10 +955,10 @@ struct ApiServer::Impl {
     SendJson(c.res, 200, out);
   }
   void FixityHistory(Call& c) {
-    SendHistory(c, [&c](const storage::Estimate& row) {
-      storage::Estimate e;  // with result_json, which ForceHistory leaves out
-      Check(c.repo.GetEstimate(c.who.organisation_id, row.id, &e));
-      return FixityPointJson(e);
+    SendHistory(c, [&](const storage::Estimate& row) {
+      return fixity_cache.Point(row, [&](storage::Estimate* e) {
+        Check(c.repo.GetEstimate(c.who.organisation_id, row.id, e));  // with result_json
+      });
     });
   }
   void UiRedirect(Call& c) {
@@ -962,8 +989,7 @@ struct ApiServer::Impl {
       c.res.status = 304;
       return;
     }
-    c.res.status = 200;
-    c.res.set_content(asset->body.data(), asset->body.size(), std::string(asset->content_type).c_str());
+    SendUncompressed(c.res, 200, std::string(asset->body), std::string(asset->content_type).c_str());
   }
 
   // ---- alerts and webhooks

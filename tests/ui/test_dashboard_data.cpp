@@ -336,5 +336,36 @@ TEST(FixityHistory, SaxReadEqualsTheFullParse) {
   EXPECT_TRUE(FixityPointJson(row)["left"].is_null());
 }
 
+// The cache gives the uncached point (FixityPointJson, checked above)
+// without reading the estimate again, and reads again when the row's
+// created_at differs (an id reused by another estimate).
+TEST(FixityHistory, CacheServesTheSamePointAndRereadsAChangedRow) {
+  storage::Estimate row;
+  row.id = 8;
+  row.measured_at_unix_ms = 1'800'000'000'000;
+  row.created_at_unix_ms = 1'800'000'100'000;
+  storage::Estimate full = row;
+  full.result_json = R"({"end_fixity": {"left": {"value": 0.3, "std": 0.1, "ci95": [0.1, 0.5]},
+                                        "right": {"value": 1.0, "fixed": true}}})";
+  int loads = 0;
+  auto load = [&](storage::Estimate* e) {
+    ++loads;
+    *e = full;
+  };
+  FixityCache cache;
+  const json first = cache.Point(row, load);
+  EXPECT_EQ(first, FixityPointJson(full));
+  EXPECT_EQ(cache.Point(row, load), first);
+  EXPECT_EQ(loads, 1);
+  row.created_at_unix_ms += 1;
+  full.created_at_unix_ms = row.created_at_unix_ms;
+  full.result_json =
+      R"({"end_fixity": {"left": {"value": 0.7, "std": 0.1, "ci95": [0.5, 0.9]}, "right": null}})";
+  const json again = cache.Point(row, load);
+  EXPECT_EQ(loads, 2);
+  EXPECT_DOUBLE_EQ(again["left"]["value"].get<double>(), 0.7);
+  EXPECT_TRUE(again["right"].is_null());
+}
+
 }  // namespace
 }  // namespace taut::server

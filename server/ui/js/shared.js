@@ -65,7 +65,12 @@ export function pageReady() {
   const page = document.documentElement.dataset.page;
   requestAnimationFrame(() => requestAnimationFrame(() => {
     if (document.documentElement.dataset.page !== page) return;
-    if (window.tautTiming) window.tautTiming.drawn_ms = performance.now() - started;
+    if (window.tautTiming) {
+      window.tautTiming.drawn_ms = performance.now() - started;
+      // From the start of the document's navigation (a full load: modules,
+      // /v1/me, data, drawing).
+      window.tautTiming.since_navigation_ms = performance.now();
+    }
     document.documentElement.dataset.state = 'ready';
   }));
 }
