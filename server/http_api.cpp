@@ -17,6 +17,7 @@
 #include "server/auth.h"
 #include "server/iso_time.h"
 #include "server/member_json.h"
+#include "server/record_csv.h"
 #include "storage/migrations.h"
 #include "storage/repository.h"
 
@@ -740,25 +741,15 @@ struct ApiServer::Impl {
     if (Sha256Hex(storage::EncodeSamples(r.samples)) != r.samples_sha256) {
       Fail(500, "internal", "record " + std::to_string(r.id) + ": stored samples do not match their SHA-256");
     }
-    std::string out;
-    out.reserve(r.samples.size() * 14 + 256);
-    out += "# recorded_at=" + FormatIsoUtc(r.recorded_at_unix_ms) + "\n";
-    if (r.temperature_c) out += "# temperature_c=" + std::to_string(*r.temperature_c) + "\n";
-    out += "# units=" + r.units + "\n# excitation=" + r.excitation + "\ntime_s";
-    for (const auto& ch : r.channels) out += "," + ch;
-    out += "\n";
+    RecordCsvHeader header;
+    header.recorded_at = FormatIsoUtc(r.recorded_at_unix_ms);
+    header.temperature_c = r.temperature_c;
+    header.units = r.units;
+    header.excitation = r.excitation;
     const std::size_t nc = r.channels.size();
-    char buf[40];
-    for (std::int64_t i = 0; i < r.sample_count; ++i) {
-      std::snprintf(buf, sizeof buf, "%.9g", static_cast<double>(i) / r.sample_rate_hz);
-      out += buf;
-      for (std::size_t j = 0; j < nc; ++j) {
-        // 9 significant digits round-trip binary32 (IEEE 754-2008, 5.12.2).
-        std::snprintf(buf, sizeof buf, ",%.9g", r.samples[static_cast<std::size_t>(i) * nc + j]);
-        out += buf;
-      }
-      out += "\n";
-    }
+    std::string out = FormatRecordCsv(
+        header, r.channels, r.sample_rate_hz, r.sample_count,
+        [&](std::int64_t i, std::size_t j) { return r.samples[static_cast<std::size_t>(i) * nc + j]; });
     c.res.status = 200;
     c.res.set_header("Content-Disposition",
                      "attachment; filename=\"record-" + std::to_string(r.id) + ".csv\"");
