@@ -415,5 +415,22 @@ TEST_F(ServiceTest, ForceLossRaisesAnAlertWithinThreeEstimatesAndTheWebhookGetsI
   EXPECT_TRUE(deliveries["deliveries"][0]["succeeded"].get<bool>());
 }
 
+// `taut demo` (the README's first command) on a short run: every record
+// it uploads is identified (no failed job) and the output ends with the
+// standing notice.
+TEST(Demo, RunsTheWholeJobOnItsInventedPortfolio) {
+  const std::string cmd = std::string(TAUT_BINARY_PATH) + " demo --days 3 --record-length 30 2>&1";
+  std::FILE* p = popen(cmd.c_str(), "r");
+  ASSERT_NE(p, nullptr);
+  std::string output;
+  char buf[512];
+  while (std::fgets(buf, sizeof buf, p)) output += buf;
+  const int status = pclose(p);
+  ASSERT_TRUE(WIFEXITED(status) && WEXITSTATUS(status) == 0) << output;
+  // 3 days x 2 records x 10 members (cli_demo.cpp's portfolio).
+  EXPECT_NE(output.find("60 estimates, 0 failed jobs"), std::string::npos) << output;
+  EXPECT_NE(output.find("licensed structural engineer"), std::string::npos) << output;
+}
+
 }  // namespace
 }  // namespace taut::server
