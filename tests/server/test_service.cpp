@@ -14,6 +14,7 @@
 #include <sys/wait.h>
 #include <unistd.h>
 
+#include <atomic>
 #include <chrono>
 #include <cmath>
 #include <cstdio>
@@ -32,6 +33,7 @@
 #include "server/iso_time.h"
 #include "server/member_json.h"
 #include "server/record_csv.h"
+#include "server/worker.h"
 #include "storage/migrations.h"
 #include "storage/repository.h"
 
@@ -413,6 +415,109 @@ TEST_F(ServiceTest, ForceLossRaisesAnAlertWithinThreeEstimatesAndTheWebhookGetsI
   const json deliveries = json::parse(c.Get("/v1/alerts/" + std::to_string(first_id) + "/deliveries")->body);
   ASSERT_FALSE(deliveries["deliveries"].empty());
   EXPECT_TRUE(deliveries["deliveries"][0]["succeeded"].get<bool>());
+}
+
+// SIGTERM while a job runs: the service finishes the running job (or
+// leaves it queued) and exits 0; no job is left "running" in the file.
+TEST_F(ServiceTest, SigtermFinishesRunningJobsAndExitsCleanly) {
+  StartServe(1);
+  const auto member = CreateHanger();
+  std::vector<std::int64_t> jobs;
+  for (unsigned i = 0; i < 4; ++i) {
+    jobs.push_back(Upload(member, HangerCsv(hanger_, 90000, "2026-11-1" + std::to_string(i) + "T06:00:00Z", 8,
+                                            60 + i))["job_id"]);
+  }
+  auto c = Client();
+  bool running = false;
+  for (int k = 0; k < 400 && !running; ++k) {
+    for (std::int64_t id : jobs)
+      running |= json::parse(c.Get("/v1/jobs/" + std::to_string(id))->body)["state"] == "running";
+    if (!running) std::this_thread::sleep_for(5ms);
+  }
+  ASSERT_TRUE(running);
+  const int status = serve_.Kill(SIGTERM);
+  ASSERT_TRUE(WIFEXITED(status)) << "killed by a signal instead of stopping";
+  EXPECT_EQ(WEXITSTATUS(status), 0);
+  storage::Database db;
+  ASSERT_TRUE(db.Open(db_).ok());
+  storage::Repository repo(db);
+  storage::Organisation org;
+  ASSERT_TRUE(repo.FindOrganisationByName("Oskerton bridge works", &org).ok());
+  int done = 0;
+  for (std::int64_t id : jobs) {
+    storage::Job job;
+    ASSERT_TRUE(repo.GetJob(org.id, id, &job).ok());
+    EXPECT_NE(job.state, storage::JobState::kRunning) << "job " << id;
+    done += job.state == storage::JobState::kDone;
+  }
+  EXPECT_GE(done, 1) << "the job running at SIGTERM must have finished";
+}
+
+// Webhook delivery with retries: a receiver that answers 500 twice, then
+// 204, gets three attempts; the log (GET /v1/alerts/{id}/deliveries) has
+// all three, the first two with their HTTP status and a next attempt at
+// least the back-off later (first_backoff * 2^(attempt-1), worker.h).
+TEST(Webhooks, FailedDeliveriesAreRetriedWithBackOffAndLogged) {
+  const auto dir = std::filesystem::temp_directory_path() / ("taut-webhooks-" + std::to_string(::getpid()));
+  std::filesystem::remove_all(dir);
+  std::filesystem::create_directories(dir);
+  const std::string db_path = (dir / "taut.db").string();
+  storage::Database db;
+  ASSERT_TRUE(storage::OpenAndMigrate(db, db_path).ok());
+  storage::Repository repo(db);
+  storage::Id org = 0, structure = 0, member = 0, hook = 0, alert = 0;
+  const std::int64_t now = NowUnixMs();
+  ASSERT_TRUE(repo.CreateOrganisation("Retry works", now, &org).ok());
+  ASSERT_TRUE(repo.CreateStructure(org, "Test footbridge", "", now, &structure).ok());
+  ASSERT_TRUE(repo.CreateMember(org, structure, "h1", Hanger().text, now, &member).ok());
+
+  httplib::Server receiver;
+  std::atomic<int> calls{0};
+  receiver.Post("/hook", [&](const httplib::Request&, httplib::Response& res) {
+    res.status = ++calls <= 2 ? 500 : 204;
+  });
+  const int port = receiver.bind_to_any_port("127.0.0.1");
+  ASSERT_GT(port, 0);
+  std::thread t([&] { receiver.listen_after_bind(); });
+  ASSERT_TRUE(
+      repo.CreateWebhook(org, "http://127.0.0.1:" + std::to_string(port) + "/hook", "s3cret", now, &hook)
+          .ok());
+  storage::NewAlert a;
+  a.member_id = member;
+  a.rule = "force-residual";
+  a.message = "test alert";
+  a.evidence = "{}";
+  ASSERT_TRUE(repo.RaiseAlert(org, a, now + 1, &alert).ok());
+
+  WorkerOptions wo;
+  wo.db_path = db_path;
+  wo.workers = 1;
+  wo.poll_interval = 20ms;
+  wo.webhook_first_backoff = 100ms;
+  WorkerPool pool(wo, nullptr);
+  ASSERT_TRUE(pool.Start().ok());
+  std::vector<storage::DeliveryAttempt> log;
+  for (int k = 0; k < 300; ++k) {
+    ASSERT_TRUE(repo.ListDeliveries(org, alert, &log).ok());
+    if (!log.empty() && log.back().succeeded) break;
+    std::this_thread::sleep_for(10ms);
+  }
+  pool.Stop();
+  receiver.stop();
+  t.join();
+  ASSERT_EQ(log.size(), 3u);
+  for (int i = 0; i < 2; ++i) {
+    EXPECT_FALSE(log[i].succeeded);
+    ASSERT_TRUE(log[i].http_status.has_value());
+    EXPECT_EQ(*log[i].http_status, 500);
+    ASSERT_TRUE(log[i].next_attempt_at_unix_ms.has_value());
+    EXPECT_GE(*log[i].next_attempt_at_unix_ms - log[i].attempted_at_unix_ms, 100 << i) << "attempt " << i + 1;
+    EXPECT_GE(log[i + 1].attempted_at_unix_ms, *log[i].next_attempt_at_unix_ms);
+  }
+  EXPECT_TRUE(log[2].succeeded);
+  EXPECT_EQ(log[2].attempt, 3);
+  EXPECT_EQ(calls.load(), 3);
+  std::filesystem::remove_all(dir);
 }
 
 // `taut demo` (the README's first command) on a short run: every record
