@@ -7,7 +7,6 @@
 #include <nlohmann/json.hpp>
 #include <optional>
 #include <ostream>
-#include <regex>
 #include <sstream>
 #include <thread>
 #include <vector>
@@ -353,8 +352,8 @@ struct ApiServer::Impl {
   using Handler = void (Impl::*)(Call&);
   struct Route {
     std::string method;
-    std::string pattern;  // "/v1/members/{id}": the metrics label
-    std::regex re;
+    std::string pattern;                // "/v1/members/{id}": the metrics label
+    std::vector<std::string> segments;  // "v1", "members", "{id}"
     bool auth;
     Role min_role;
     Handler handler;
@@ -375,9 +374,39 @@ struct ApiServer::Impl {
   std::vector<Route> routes;
 
   void Add(const char* method, const std::string& pattern, Role role, Handler h, bool auth = true) {
-    // "{id}" and "{version}" capture digits; everything else is literal.
-    const std::string re = std::regex_replace(pattern, std::regex(R"(\{[a-z_]+\})"), R"((\d{1,18}))");
-    routes.push_back({method, pattern, std::regex(re), auth, role, h});
+    routes.push_back({method, pattern, Segments(pattern), auth, role, h});
+  }
+
+  // "/v1/members/12" -> {"v1", "members", "12"}.
+  static std::vector<std::string> Segments(const std::string& path) {
+    std::vector<std::string> out;
+    std::size_t start = 1;
+    while (start <= path.size()) {
+      const std::size_t end = std::min(path.find('/', start), path.size());
+      out.push_back(path.substr(start, end - start));
+      start = end + 1;
+    }
+    return out;
+  }
+
+  // A "{name}" segment of the pattern matches 1..18 digits (an id) and is
+  // captured; every other segment matches itself.
+  static bool Match(const Route& r, const std::vector<std::string>& path, std::vector<Id>* ids) {
+    if (path.size() != r.segments.size()) return false;
+    ids->clear();
+    for (std::size_t i = 0; i < path.size(); ++i) {
+      const std::string& want = r.segments[i];
+      if (!want.empty() && want.front() == '{') {
+        const std::string& got = path[i];
+        if (got.empty() || got.size() > 18 || got.find_first_not_of("0123456789") != std::string::npos) {
+          return false;
+        }
+        ids->push_back(std::stoll(got));
+      } else if (want != path[i]) {
+        return false;
+      }
+    }
+    return true;
   }
 
   void AddRoutes() {
@@ -422,10 +451,11 @@ struct ApiServer::Impl {
     Id organisation = 0;
     try {
       const Route* route = nullptr;
-      std::smatch m;
+      std::vector<Id> ids;
       std::string allow;
+      const std::vector<std::string> path = Segments(req.path);
       for (const Route& r : routes) {
-        if (!std::regex_match(req.path, m, r.re)) continue;
+        if (!Match(r, path, &ids)) continue;
         if (r.method == req.method) {
           route = &r;
           break;
@@ -441,8 +471,6 @@ struct ApiServer::Impl {
         Fail(404, "not-found", "no route " + req.path);
       }
       route_label = route->pattern;
-      std::vector<Id> ids;
-      for (std::size_t i = 1; i < m.size(); ++i) ids.push_back(std::stoll(m[i].str()));
       auto lease = pool.Acquire();
       storage::Repository repo(lease.db());
       Call call{req, res, lease.db(), repo, {}, std::move(ids), NowUnixMs()};
