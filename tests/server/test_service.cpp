@@ -135,8 +135,8 @@ std::string HangerCsv(const Hanger& h, double axial_force_n, const std::string& 
   truth.fixity_right = 0.6;
   model::AmbientSpec spec;
   spec.duration_s = duration_s;
-  spec.sample_rate_hz = 256;
-  spec.modes = 5;
+  spec.sample_rate_hz = 128;
+  spec.modes = 4;
   spec.seed = seed;
   spec.rms_m_s2 = 0.02;
   std::vector<std::string> channels;
@@ -304,7 +304,7 @@ TEST_F(ServiceTest, SigkillWithQueuedAndRunningJobsLosesNothing) {
       ASSERT_TRUE(repo.GetRecord(org.id, s.record, &r).ok()) << s.record;
       EXPECT_EQ(r.content_sha256, s.sha);
       EXPECT_EQ(Sha256Hex(storage::EncodeSamples(r.samples)), r.samples_sha256);
-      EXPECT_EQ(r.sample_count, 25600);  // 100 s at 256 Hz
+      EXPECT_EQ(r.sample_count, 12800);  // 100 s at 128 Hz
     }
   }
   // After a restart every job finishes, the interrupted one included.
@@ -524,7 +524,7 @@ TEST(Webhooks, FailedDeliveriesAreRetriedWithBackOffAndLogged) {
 // it uploads is identified (no failed job) and the output ends with the
 // standing notice.
 TEST(Demo, RunsTheWholeJobOnItsInventedPortfolio) {
-  const std::string cmd = std::string(TAUT_BINARY_PATH) + " demo --days 3 --record-length 30 2>&1";
+  const std::string cmd = std::string(TAUT_BINARY_PATH) + " demo --days 1 --record-length 30 2>&1";
   std::FILE* p = popen(cmd.c_str(), "r");
   ASSERT_NE(p, nullptr);
   std::string output;
@@ -532,8 +532,8 @@ TEST(Demo, RunsTheWholeJobOnItsInventedPortfolio) {
   while (std::fgets(buf, sizeof buf, p)) output += buf;
   const int status = pclose(p);
   ASSERT_TRUE(WIFEXITED(status) && WEXITSTATUS(status) == 0) << output;
-  // 3 days x 2 records x 10 members (cli_demo.cpp's portfolio).
-  EXPECT_NE(output.find("60 estimates, 0 failed jobs"), std::string::npos) << output;
+  // 1 day x 2 records x 10 members (cli_demo.cpp's portfolio).
+  EXPECT_NE(output.find("20 estimates, 0 failed jobs"), std::string::npos) << output;
   EXPECT_NE(output.find("licensed structural engineer"), std::string::npos) << output;
 }
 
