@@ -25,6 +25,7 @@
 #include <mutex>
 #include <nlohmann/json.hpp>
 #include <numbers>
+#include <random>
 #include <sstream>
 #include <thread>
 
@@ -257,6 +258,39 @@ TEST_F(ServiceTest, UploadJobEstimateForceQueryReturnsTheTruthWithinItsInterval)
     EXPECT_LE(p["ci95_n"][0].get<double>(), by_time[i]) << i;
     EXPECT_GE(p["ci95_n"][1].get<double>(), by_time[i]) << i;
   }
+}
+
+// A record the estimation cannot use (white noise: no mode stands out) is
+// stored, its job fails with the estimation's reason, and the service's
+// metrics (Prometheus text exposition format) count the outcome, the jobs
+// by state and the requests per route.
+TEST_F(ServiceTest, UnidentifiableRecordFailsItsJobWithTheReasonAndMetricsCountIt) {
+  StartServe(1);
+  const auto member = CreateHanger();
+  std::mt19937_64 rng(5);
+  std::normal_distribution<double> g(0.0, 0.01);
+  RecordCsvHeader header;
+  header.recorded_at = "2026-11-20T06:00:00Z";
+  const std::string noise = FormatRecordCsv(header, {"h1", "h2", "h3"}, 128, 128 * 60,
+                                            [&](std::int64_t, std::size_t) { return g(rng); });
+  const json sent = Upload(member, noise);
+  ASSERT_TRUE(WaitForJobs({sent["job_id"].get<std::int64_t>()}, 120s));
+  auto c = Client();
+  const json job = json::parse(c.Get("/v1/jobs/" + std::to_string(sent["job_id"].get<std::int64_t>()))->body);
+  EXPECT_EQ(job["state"], "failed");
+  EXPECT_FALSE(job["failure_reason"].get<std::string>().empty()) << job.dump();
+  EXPECT_EQ(
+      c.Get("/v1/records/" + std::to_string(sent["record_id"].get<std::int64_t>()) + "/estimate")->status,
+      404);
+  const std::string metrics = httplib::Client("127.0.0.1", port_).Get("/metrics")->body;
+  EXPECT_NE(metrics.find("taut_jobs{state=\"failed\"} 1"), std::string::npos) << metrics;
+  EXPECT_NE(metrics.find("taut_identify_total{outcome=\"failed\"} 1"), std::string::npos) << metrics;
+  EXPECT_NE(metrics.find("taut_identify_duration_seconds_count 1"), std::string::npos) << metrics;
+  EXPECT_NE(
+      metrics.find(
+          "taut_http_requests_total{method=\"POST\",route=\"/v1/members/{id}/records\",status=\"202\"} 1"),
+      std::string::npos)
+      << metrics;
 }
 
 TEST_F(ServiceTest, SigkillWithQueuedAndRunningJobsLosesNothing) {
