@@ -1,31 +1,18 @@
 #!/usr/bin/env bash
-# Sets up a fresh Debian machine, builds taut and runs the main job on an
-# embedded default: an invented 5.8 m wrought-iron tie (examples/) carrying
-# 30 kN. taut first prints the tie's modes from the beam model, then
-# simulates a 5-minute ambient vibration record with the nonlinear model (as a
-# site gateway would upload), identifies the modes from that record, and
-# estimates the axial force, bending stiffness and end fixities with their
-# intervals, cautions and the standing notice.
+# Sets up a fresh Debian machine, builds taut and runs `taut demo`: the whole
+# job on an embedded, invented portfolio. The demo creates a temporary SQLite
+# file, starts the service (HTTP API + identification workers) on a loopback
+# port, registers a covered market hall with six tie-rods and a footbridge
+# with four hangers, simulates 30 days of records with the beam model
+# (temperature cycles; one hanger slowly losing force), uploads them through
+# the API as a site gateway would, waits for the estimates and prints each
+# structure's portfolio (force with its 95 % interval beside the simulated
+# truth), the drift alerts and their webhook deliveries.
+#
+# Arguments are passed to `taut demo` (e.g. --days 10, --db demo.db --serve).
 set -euo pipefail
 cd "$(dirname "$0")/.."
 bash deploy/install-deps.sh
 cmake -S . -B build -G Ninja -DCMAKE_BUILD_TYPE=Release >/dev/null
 cmake --build build -j"${TAUT_JOBS:-2}" --target taut
-MEMBER=examples/maltings-east-tie-2.json
-RECORD="$(mktemp -d)/maltings-east-tie-2.csv"
-
-echo
-echo "== 1. taut modes: the tie at 30 kN, vertical plane (self-weight sag included) =="
-./build/taut modes --member "$MEMBER" --axial-force 30000 --modes 4
-echo
-echo "== 2. taut simulate: a 300 s ambient record at 512 Hz from the nonlinear model -> $RECORD =="
-./build/taut simulate --member "$MEMBER" --axial-force 30000 --ambient 2 --seed 7 \
-  --duration 300 --rate 512 --damping 0.005 --temperature 11.5 \
-  --recorded-at 2026-11-20T10:00:00Z --output "$RECORD"
-echo "written: $(wc -l < "$RECORD") lines"
-echo
-echo "== 3. taut modal: modes identified from the record =="
-./build/taut modal --record "$RECORD" --member "$MEMBER"
-echo
-echo "== 4. taut identify: axial force, bending stiffness and end fixity (truth: 30 kN, r = 0.5 / 0.5) =="
-./build/taut identify --member "$MEMBER" --record "$RECORD"
+exec ./build/taut demo "$@"

@@ -23,6 +23,7 @@ int Main(int argc, const char* const* argv, std::ostream& out, std::ostream& err
   RegisterIdentifyCommand(app, &ctx);
   RegisterModalCommand(app, &ctx);
   RegisterServeCommand(app, &ctx);
+  RegisterDemoCommand(app, &ctx);
   try {
     app.parse(argc, argv);
   } catch (const CLI::CallForHelp&) {

@@ -25,6 +25,14 @@ void RegisterSimulateCommand(CLI::App& app, CliContext* ctx);
 void RegisterIdentifyCommand(CLI::App& app, CliContext* ctx);
 void RegisterModalCommand(CLI::App& app, CliContext* ctx);
 void RegisterServeCommand(CLI::App& app, CliContext* ctx);  // serve, token create
+void RegisterDemoCommand(CLI::App& app, CliContext* ctx);
+
+// SIGINT and SIGTERM for a long-running command: BlockStopSignals() before
+// any thread starts (threads inherit the mask, so a stop request never
+// interrupts one of them mid-write), then WaitForStopSignal() blocks until
+// one arrives and returns its number.
+void BlockStopSignals();
+int WaitForStopSignal();
 
 // The plane a command analyses: `flag` ("vertical" or "lateral") when
 // given, else the plane of most of the member's sensors (vertical on a tie,

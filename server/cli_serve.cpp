@@ -50,14 +50,7 @@ int RunServe(const ServeCliOptions& o, std::ostream& out, std::ostream& err) {
   Metrics metrics;
   so.metrics = &metrics;
 
-  // SIGINT and SIGTERM are blocked in every thread (the threads started
-  // below inherit the mask) and taken by sigwait in this one, so a stop
-  // request never interrupts a database write.
-  sigset_t stop_signals;
-  sigemptyset(&stop_signals);
-  sigaddset(&stop_signals, SIGINT);
-  sigaddset(&stop_signals, SIGTERM);
-  pthread_sigmask(SIG_BLOCK, &stop_signals, nullptr);
+  BlockStopSignals();  // before the threads below start
 
   WorkerOptions wo;
   wo.db_path = o.db_path;
@@ -76,8 +69,7 @@ int RunServe(const ServeCliOptions& o, std::ostream& out, std::ostream& err) {
     return 1;
   }
   out << "taut serve: listening on http://" << so.host << ":" << api.port() << std::endl;
-  int signal_number = 0;
-  sigwait(&stop_signals, &signal_number);
+  const int signal_number = WaitForStopSignal();
   if (!o.quiet) err << "taut serve: signal " << signal_number << ", finishing requests and running jobs\n";
   // Graceful order: no new requests, then running jobs finish (queued ones
   // stay queued for the next start).
@@ -120,7 +112,27 @@ int RunTokenCreate(const TokenCliOptions& o, std::ostream& out, std::ostream& er
   return 0;
 }
 
+sigset_t StopSignals() {
+  sigset_t set;
+  sigemptyset(&set);
+  sigaddset(&set, SIGINT);
+  sigaddset(&set, SIGTERM);
+  return set;
+}
+
 }  // namespace
+
+void BlockStopSignals() {
+  const sigset_t set = StopSignals();
+  pthread_sigmask(SIG_BLOCK, &set, nullptr);
+}
+
+int WaitForStopSignal() {
+  const sigset_t set = StopSignals();
+  int signal_number = 0;
+  sigwait(&set, &signal_number);
+  return signal_number;
+}
 
 void RegisterServeCommand(CLI::App& app, CliContext* ctx) {
   auto o = std::make_shared<ServeCliOptions>();

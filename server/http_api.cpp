@@ -10,7 +10,6 @@
 #include <nlohmann/json.hpp>
 #include <optional>
 #include <ostream>
-#include <regex>
 #include <sstream>
 #include <thread>
 #include <vector>
@@ -21,6 +20,7 @@
 #include "server/dashboard_data.h"
 #include "server/iso_time.h"
 #include "server/member_json.h"
+#include "server/record_csv.h"
 #include "server/ui_assets.h"
 #include "storage/migrations.h"
 #include "storage/repository.h"
@@ -374,8 +374,8 @@ struct ApiServer::Impl {
   using Handler = void (Impl::*)(Call&);
   struct Route {
     std::string method;
-    std::string pattern;  // "/v1/members/{id}": the metrics label
-    std::regex re;
+    std::string pattern;                // "/v1/members/{id}": the metrics label
+    std::vector<std::string> segments;  // "v1", "members", "{id}"
     bool auth;
     Role min_role;
     Handler handler;
@@ -397,15 +397,43 @@ struct ApiServer::Impl {
   FixityCache fixity_cache;  // the fixity history's parsed results (dashboard_data.h)
 
   void Add(const char* method, const std::string& pattern, Role role, Handler h, bool auth = true) {
-    // "{id}" and "{version}" capture digits; everything else is literal.
-    AddRegex(method, pattern, std::regex_replace(pattern, std::regex(R"(\{[a-z_]+\})"), R"((\d{1,18}))"),
-             role, h, auth);
+    routes.push_back({method, pattern, Segments(pattern), auth, role, h});
   }
-  // A route whose path is the regular expression `re` (its capture groups
-  // are the numeric ids); `label` names it in the metrics.
-  void AddRegex(const char* method, const std::string& label, const std::string& re, Role role, Handler h,
-                bool auth) {
-    routes.push_back({method, label, std::regex(re), auth, role, h});
+
+  // "/v1/members/12" -> {"v1", "members", "12"}.
+  static std::vector<std::string> Segments(const std::string& path) {
+    std::vector<std::string> out;
+    std::size_t start = 1;
+    while (start <= path.size()) {
+      const std::size_t end = std::min(path.find('/', start), path.size());
+      out.push_back(path.substr(start, end - start));
+      start = end + 1;
+    }
+    return out;
+  }
+
+  // A "{name}" segment of the pattern matches 1..18 digits (an id) and is
+  // captured; a last segment "**" matches the rest of the path, zero or
+  // more segments (the dashboard's files); every other segment matches
+  // itself.
+  static bool Match(const Route& r, const std::vector<std::string>& path, std::vector<Id>* ids) {
+    const bool rest = !r.segments.empty() && r.segments.back() == "**";
+    const std::size_t fixed = r.segments.size() - (rest ? 1 : 0);
+    if (rest ? path.size() < fixed : path.size() != fixed) return false;
+    ids->clear();
+    for (std::size_t i = 0; i < fixed; ++i) {
+      const std::string& want = r.segments[i];
+      if (!want.empty() && want.front() == '{') {
+        const std::string& got = path[i];
+        if (got.empty() || got.size() > 18 || got.find_first_not_of("0123456789") != std::string::npos) {
+          return false;
+        }
+        ids->push_back(std::stoll(got));
+      } else if (want != path[i]) {
+        return false;
+      }
+    }
+    return true;
   }
 
   void AddRoutes() {
@@ -448,7 +476,7 @@ struct ApiServer::Impl {
     Add("GET", "/v1/members/{id}/drift", Role::kRead, &Impl::MemberDrift);
     Add("GET", "/v1/members/{id}/fixity/history", Role::kRead, &Impl::FixityHistory);
     Add("GET", "/", Role::kRead, &Impl::UiRedirect, /*auth=*/false);
-    AddRegex("GET", "/ui/", "/ui(?:/.*)?", Role::kRead, &Impl::UiFile, /*auth=*/false);
+    Add("GET", "/ui/**", Role::kRead, &Impl::UiFile, /*auth=*/false);
   }
 
   // The one entry point of every request (see the header's diagram).
@@ -458,10 +486,11 @@ struct ApiServer::Impl {
     Id organisation = 0;
     try {
       const Route* route = nullptr;
-      std::smatch m;
+      std::vector<Id> ids;
       std::string allow;
+      const std::vector<std::string> path = Segments(req.path);
       for (const Route& r : routes) {
-        if (!std::regex_match(req.path, m, r.re)) continue;
+        if (!Match(r, path, &ids)) continue;
         if (r.method == req.method) {
           route = &r;
           break;
@@ -477,8 +506,6 @@ struct ApiServer::Impl {
         Fail(404, "not-found", "no route " + req.path);
       }
       route_label = route->pattern;
-      std::vector<Id> ids;
-      for (std::size_t i = 1; i < m.size(); ++i) ids.push_back(std::stoll(m[i].str()));
       auto lease = pool.Acquire();
       storage::Repository repo(lease.db());
       Call call{req, res, lease.db(), repo, {}, std::move(ids), NowUnixMs()};
@@ -778,25 +805,15 @@ struct ApiServer::Impl {
     if (Sha256Hex(storage::EncodeSamples(r.samples)) != r.samples_sha256) {
       Fail(500, "internal", "record " + std::to_string(r.id) + ": stored samples do not match their SHA-256");
     }
-    std::string out;
-    out.reserve(r.samples.size() * 14 + 256);
-    out += "# recorded_at=" + FormatIsoUtc(r.recorded_at_unix_ms) + "\n";
-    if (r.temperature_c) out += "# temperature_c=" + std::to_string(*r.temperature_c) + "\n";
-    out += "# units=" + r.units + "\n# excitation=" + r.excitation + "\ntime_s";
-    for (const auto& ch : r.channels) out += "," + ch;
-    out += "\n";
+    RecordCsvHeader header;
+    header.recorded_at = FormatIsoUtc(r.recorded_at_unix_ms);
+    header.temperature_c = r.temperature_c;
+    header.units = r.units;
+    header.excitation = r.excitation;
     const std::size_t nc = r.channels.size();
-    char buf[40];
-    for (std::int64_t i = 0; i < r.sample_count; ++i) {
-      std::snprintf(buf, sizeof buf, "%.9g", static_cast<double>(i) / r.sample_rate_hz);
-      out += buf;
-      for (std::size_t j = 0; j < nc; ++j) {
-        // 9 significant digits round-trip binary32 (IEEE 754-2008, 5.12.2).
-        std::snprintf(buf, sizeof buf, ",%.9g", r.samples[static_cast<std::size_t>(i) * nc + j]);
-        out += buf;
-      }
-      out += "\n";
-    }
+    std::string out = FormatRecordCsv(
+        header, r.channels, r.sample_rate_hz, r.sample_count,
+        [&](std::int64_t i, std::size_t j) { return r.samples[static_cast<std::size_t>(i) * nc + j]; });
     c.res.status = 200;
     c.res.set_header("Content-Disposition",
                      "attachment; filename=\"record-" + std::to_string(r.id) + ".csv\"");
@@ -1101,6 +1118,11 @@ Status ApiServer::Start() {
   }
   s.http.new_task_queue = [] { return new httplib::ThreadPool(kHttpThreads); };
   s.http.set_payload_max_length(s.options.max_body_bytes);
+  // Responses go out as header and body writes; without TCP_NODELAY the
+  // body waits for the peer's delayed ACK (Nagle's algorithm, RFC 896, with
+  // delayed ACKs of RFC 1122: about 40 ms on Linux) on keep-alive
+  // connections.
+  s.http.set_tcp_nodelay(true);
   s.http.set_read_timeout(kReadTimeout_s, 0);
   s.http.set_write_timeout(kWriteTimeout_s, 0);
   auto dispatch = [&s](const httplib::Request& req, httplib::Response& res) { s.Dispatch(req, res); };

@@ -314,9 +314,28 @@ struct WorkerPool::Impl {
     if (Status s = estimation::DetectDrift(series, settings, &report); !s.ok()) {
       return Log("level=error " + where + ": " + s.message);
     }
+    // A rule whose alert is still open or acknowledged for this member does
+    // not raise another: one alert per condition until someone resolves it
+    // (its evidence names the estimate where the condition started).
+    std::vector<storage::Alert> unresolved, acknowledged;
+    if (StorageStatus s =
+            repo.ListAlerts(organisation_id, {member_id, storage::AlertState::kOpen}, &unresolved);
+        !s.ok()) {
+      return Log("level=error " + where + ": " + s.message);
+    }
+    if (StorageStatus s =
+            repo.ListAlerts(organisation_id, {member_id, storage::AlertState::kAcknowledged}, &acknowledged);
+        !s.ok()) {
+      return Log("level=error " + where + ": " + s.message);
+    }
+    unresolved.insert(unresolved.end(), acknowledged.begin(), acknowledged.end());
     bool raised = false;
     for (const auto& alert : report.alerts) {
       if (!index || alert.index != *index) continue;
+      const bool standing = std::any_of(unresolved.begin(), unresolved.end(), [&](const storage::Alert& a) {
+        return a.rule == alert.rule && a.estimate_id != estimate_id;
+      });
+      if (standing) continue;
       const bool ei_rule = alert.rule.rfind("ei", 0) == 0;
       storage::NewAlert na;
       na.member_id = member_id;

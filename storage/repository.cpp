@@ -894,20 +894,26 @@ StorageStatus Repository::RaiseAlert(Id organisation_id, const NewAlert& alert, 
     if (rc == SQLITE_DONE) return StorageStatus::NotFound(IdText("member", alert.member_id) + " not found");
     if (rc != SQLITE_ROW) return member.status();
     if (StorageStatus f = Fault(); !f.ok()) return f;
-    Statement s(db_.handle(),
-                "INSERT INTO alert (organisation_id, member_id, estimate_id, rule, state, message, evidence, "
-                "raised_at_unix_ms) VALUES (?1, ?2, ?3, ?4, 'open', ?5, ?6, ?7)");
-    s.Bind(1, organisation_id)
-        .Bind(2, alert.member_id)
-        .Bind(3, alert.estimate_id)
-        .Bind(4, alert.rule)
-        .Bind(5, alert.message)
-        .Bind(6, alert.evidence)
-        .Bind(7, now_unix_ms);
-    if (StorageStatus r = s.Run(); !r.ok()) return r;
-    *id = sqlite3_last_insert_rowid(db_.handle());
-    return {};
+    return InsertAlert(organisation_id, alert, now_unix_ms, id);
   });
+}
+
+// The INSERT of RaiseAlert and RaiseAlertOnce, inside their transaction.
+StorageStatus Repository::InsertAlert(Id organisation_id, const NewAlert& alert, std::int64_t now_unix_ms,
+                                      Id* id) {
+  Statement s(db_.handle(),
+              "INSERT INTO alert (organisation_id, member_id, estimate_id, rule, state, message, evidence, "
+              "raised_at_unix_ms) VALUES (?1, ?2, ?3, ?4, 'open', ?5, ?6, ?7)");
+  s.Bind(1, organisation_id)
+      .Bind(2, alert.member_id)
+      .Bind(3, alert.estimate_id)
+      .Bind(4, alert.rule)
+      .Bind(5, alert.message)
+      .Bind(6, alert.evidence)
+      .Bind(7, now_unix_ms);
+  if (StorageStatus r = s.Run(); !r.ok()) return r;
+  *id = sqlite3_last_insert_rowid(db_.handle());
+  return {};
 }
 
 StorageStatus Repository::GetAlert(Id organisation_id, Id alert_id, Alert* out) {
@@ -1160,17 +1166,7 @@ StorageStatus Repository::RaiseAlertOnce(Id organisation_id, const NewAlert& ale
     }
     if (rc != SQLITE_DONE) return existing.status();
     if (StorageStatus f = Fault(); !f.ok()) return f;
-    Statement s(db_.handle(),
-                "INSERT INTO alert (organisation_id, member_id, estimate_id, rule, state, message, evidence, "
-                "raised_at_unix_ms) VALUES (?1, ?2, ?3, ?4, 'open', ?5, ?6, ?7)");
-    s.Bind(1, organisation_id)
-        .Bind(2, alert.member_id)
-        .Bind(3, alert.estimate_id)
-        .Bind(4, alert.rule)
-        .Bind(5, alert.message)
-        .Bind(6, alert.evidence)
-        .Bind(7, now_unix_ms);
-    StorageStatus r = s.Run();
+    StorageStatus r = InsertAlert(organisation_id, alert, now_unix_ms, id);
     // The composite foreign keys fail for another organisation's member or
     // estimate: not found, like every foreign id.
     if (r.sqlite_code == SQLITE_CONSTRAINT_FOREIGNKEY) {
@@ -1178,7 +1174,6 @@ StorageStatus Repository::RaiseAlertOnce(Id organisation_id, const NewAlert& ale
                                      IdText("estimate", *alert.estimate_id) + " not found");
     }
     if (!r.ok()) return r;
-    *id = sqlite3_last_insert_rowid(db_.handle());
     *created = true;
     return {};
   });

@@ -381,6 +381,7 @@ class Repository {
  private:
   StorageStatus Write(const std::function<StorageStatus()>& body);
   StorageStatus Fault();  // consults fault_hook_ for the next step
+  StorageStatus InsertAlert(Id organisation_id, const NewAlert& alert, std::int64_t now_unix_ms, Id* id);
 
   Database& db_;  // not owned; must outlive this
   std::function<int(int)> fault_hook_;

@@ -157,6 +157,25 @@ TEST(Migrations, EveryEarlierVersionUpgradesAndKeepsItsRows) {
     NewAlert a{1, 1, "force-residual", "inspect", "{}"};
     Id alert = 0;
     EXPECT_TRUE(repo.RaiseAlert(1, a, 10, &alert).ok());
+    // Step 4: estimates stored before it count as drift-checked (their
+    // alerts, if any, were the business of the service that stored them),
+    // so an upgrade does not re-run the rules over the whole history.
+    std::vector<Estimate> pending;
+    ASSERT_TRUE(repo.PendingDriftChecks(10, &pending).ok());
+    EXPECT_TRUE(pending.empty());
+    // ... and a rule fires once per estimate: the alert above (rule
+    // force-residual at estimate 1) is found, a new rule is created once.
+    Id first = 0, again = 0;
+    bool created = true;
+    ASSERT_TRUE(repo.RaiseAlertOnce(1, a, 11, &first, &created).ok());
+    EXPECT_FALSE(created);
+    EXPECT_EQ(first, alert);
+    a.rule = "ei-residual";
+    ASSERT_TRUE(repo.RaiseAlertOnce(1, a, 11, &first, &created).ok());
+    EXPECT_TRUE(created);
+    ASSERT_TRUE(repo.RaiseAlertOnce(1, a, 12, &again, &created).ok());
+    EXPECT_FALSE(created);
+    EXPECT_EQ(again, first);
   }
 }
 
