@@ -149,6 +149,12 @@ class DashboardUiTest : public ::testing::Test {
         << driver_->Execute(
                "return document.documentElement.dataset.state + ' ' + document.body.innerText.slice(0, "
                "400);");
+    // A missing value is shown as a dash or a sentence, never as the
+    // script's "null", "undefined" or "NaN".
+    const json stray = driver_->Execute(
+        "const m = document.getElementById('main').innerText.match(/\\b(null|undefined|NaN)\\b/); "
+        "return m ? m[0] : '';");
+    EXPECT_EQ(stray, "") << "page " << page << " shows a stray value";
   }
   int Count(const std::string& css) {
     const json v = driver_->Execute("return document.querySelectorAll(arguments[0]).length;", {css});
@@ -165,7 +171,13 @@ class DashboardUiTest : public ::testing::Test {
   // Opens a dashboard route; the page's own state signal is reset first, so
   // WaitPage cannot see the previous page's "ready".
   void Go(const std::string& hash) {
-    driver_->Execute("document.documentElement.dataset.state = 'navigating'; return true;");
+    // Already there (e.g. sign-out lands on #/signin): no navigation, and
+    // the page's state stays as it is.
+    const json moving = driver_->Execute(
+        "if (location.pathname === '/ui/' && location.hash === arguments[0]) return false;"
+        "document.documentElement.dataset.state = 'navigating'; return true;",
+        {hash});
+    if (moving == false) return;
     ASSERT_TRUE(driver_->Navigate(base_ + "/ui/" + hash)) << driver_->last_error();
   }
   void SignIn(const std::string& token) {

@@ -4,7 +4,7 @@
 // it anyway).
 import {api, qs, roleAtLeast} from './api.js';
 import {h, when, kN, kNm2, num} from './format.js';
-import {pageHeader, errorBox, noticeBox} from './shared.js';
+import {pageHeader, errorBox, noticeBox, fill} from './shared.js';
 
 const STATES = [['open', 'Open'], ['acknowledged', 'Acknowledged'], ['resolved', 'Resolved'], ['all', 'All']];
 
@@ -26,7 +26,7 @@ export async function render(main, args, ctx) {
       STATES.map(([key, label]) => h('a', {href: filter(key), class: 'chip', 'aria-current': key === state ? 'true' : null}, label)));
   const list = data.alerts.slice().sort((a, b) => Date.parse(b.raised_at) - Date.parse(a.raised_at));
   const scope = memberId ? ` for ${names.get(Number(memberId)) || 'member ' + memberId}` : '';
-  main.replaceChildren(
+  fill(main,
       pageHeader('Alerts', [{label: 'Structures', href: '#/'}, {label: 'Alerts'}],
           `${list.length} ${state === 'all' ? '' : state + ' '}${list.length === 1 ? 'alert' : 'alerts'}${scope}` +
           (canAct ? '' : ' · your role may read alerts; acknowledging needs an upload or admin token')),

@@ -6,7 +6,7 @@
 import {api} from './api.js';
 import {h, kN, kNm2, num, sig, hz, when, degC} from './format.js';
 import {plot} from './charts.js';
-import {pageHeader, section, dl, cautionList, noticeBox, errorBox} from './shared.js';
+import {pageHeader, section, dl, cautionList, noticeBox, errorBox, fill} from './shared.js';
 
 // A failed secondary request shows its error in place; the rest of the page stays.
 const soft = (p) => p.catch((err) => ({error: err}));
@@ -26,7 +26,7 @@ export async function render(main, [estimateId], ctx) {
   const r = est.result;
   const name = member.error ? `member ${est.member_id}` : member.external_id;
   ctx.setTitle(`Estimate ${est.id}`);
-  main.replaceChildren(
+  fill(main,
       pageHeader(`Estimate ${est.id}: ${name}`, [{label: 'Structures', href: '#/'},
         member.error ? null : {label: 'Portfolio', href: `#/structures/${member.structure_id}`},
         {label: name, href: `#/members/${est.member_id}`}, {label: `Estimate ${est.id}`}].filter(Boolean),

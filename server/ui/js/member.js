@@ -5,7 +5,7 @@
 import {api, qs} from './api.js';
 import {h, s, kN, kNm2, num, degC, when, ms, pct, sig} from './format.js';
 import {plot} from './charts.js';
-import {pageHeader, section, dl, cautionList, noticeBox} from './shared.js';
+import {pageHeader, section, dl, cautionList, noticeBox, fill} from './shared.js';
 
 const DAY = 86400e3;
 const RANGES = [
@@ -54,7 +54,7 @@ export async function render(main, [memberId], ctx) {
     ])
     : h('p', null, 'No estimate in this range. ', h('a', {href: '#/upload'}, 'Upload a record'), '.');
 
-  main.replaceChildren(
+  fill(main,
       pageHeader(member.external_id, [{label: 'Structures', href: '#/'},
         {label: 'Portfolio', href: `#/structures/${member.structure_id}`}, {label: member.external_id}],
       `Member description version ${member.version}`),

@@ -5,7 +5,7 @@
 import {api} from './api.js';
 import {h, kN, pct, ago, when, ms, num} from './format.js';
 import {sparkline} from './charts.js';
-import {pageHeader, section, noticeBox} from './shared.js';
+import {pageHeader, section, noticeBox, fill} from './shared.js';
 
 const COLUMNS = [
   {key: 'member', label: 'Member', value: (r) => r.external_id, text: true},
@@ -73,7 +73,7 @@ export async function render(main, [structureId], ctx) {
   }
   draw();
 
-  main.replaceChildren(
+  fill(main,
       pageHeader(data.structure.name, [{label: 'Structures', href: '#/'}, {label: data.structure.name}],
           data.structure.description || null),
       section('Portfolio',

@@ -3,6 +3,12 @@
 // (<html data-page=... data-state=loading|ready|error>, window.tautTiming).
 import {h} from './format.js';
 
+// replaceChildren without the pitfall: null and false children are left
+// out (the DOM would insert the text "null").
+export function fill(el, ...children) {
+  el.replaceChildren(...children.flat().filter((c) => c !== null && c !== undefined && c !== false));
+}
+
 export function pageHeader(title, crumbs = [], sub = null) {
   const nav = crumbs.length
     ? h('nav', {class: 'crumbs', 'aria-label': 'Breadcrumb'},

@@ -4,14 +4,14 @@
 // file can be fixed and sent again.
 import {api, qs, roleAtLeast} from './api.js';
 import {h, num} from './format.js';
-import {pageHeader, errorBox, cautionList} from './shared.js';
+import {pageHeader, errorBox, cautionList, fill} from './shared.js';
 
 const POLL_MS = 250;
 
 export async function render(main, args, ctx) {
   ctx.setTitle('Upload a record');
   if (!roleAtLeast(ctx.me.role, 'upload')) {
-    main.replaceChildren(pageHeader('Upload a record'), h('p', null, `Uploading needs an upload or admin token; this one has the ${ctx.me.role} role.`));
+    fill(main, pageHeader('Upload a record'), h('p', null, `Uploading needs an upload or admin token; this one has the ${ctx.me.role} role.`));
     return;
   }
   const structures = (await api.get('/v1/structures')).structures;
@@ -74,7 +74,7 @@ export async function render(main, args, ctx) {
       submit.disabled = false;
     }
   });
-  main.replaceChildren(pageHeader('Upload a record', [{label: 'Structures', href: '#/'}, {label: 'Upload'}],
+  fill(main, pageHeader('Upload a record', [{label: 'Structures', href: '#/'}, {label: 'Upload'}],
       'Ambient or impact acceleration record, CSV with a time_s column and one column per sensor channel.'), form);
 }
 
