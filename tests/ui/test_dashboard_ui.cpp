@@ -326,8 +326,8 @@ TEST_F(DashboardUiTest, SignInPortfolioMemberEstimateAlertsAndUploadInHeadlessCh
   // the single-mode random-error estimate of operational modal analysis,
   // e.g. Brincker and Ventura, Introduction to Operational Modal Analysis,
   // 2015): 0.33 % for the fundamental here (zeta 1 %, f 7.2 Hz, T 20 s);
-  // 2 % is six such errors, and a twentieth of the 1 Hz line spacing of the
-  // chart at mode 3. Seen: 0.5, 0.3 and 0.1 %.
+  // 2 % is six such errors (and at mode 3 half the 1 Hz line spacing of the
+  // chart). Seen: 0.5, 0.3 and 0.1 %.
   model::ModalParameters truth;
   truth.axial_force_n = kTruthForce_n;
   truth.bending_stiffness_nm2 = member_.NominalBendingStiffness_nm2(model::Direction::kVertical);
