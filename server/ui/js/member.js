@@ -289,7 +289,7 @@ export function memberDrawing(d) {
   svg.append(s('path', {d: `M${x0},${H - 18}H${x1}M${x0},${H - 24}V${H - 12}M${x1},${H - 24}V${H - 12}`, class: 'dimension'}));
   svg.append(s('text', {x: (x0 + x1) / 2, y: H - 22, 'text-anchor': 'middle', class: 'dimension-label'}, `L = ${num(d.length_m, 2)} m`));
   const legend = h('p', {class: 'help'}, '↑ sensor measuring vertical vibration, ⊙ lateral (out of the drawing plane). ',
-      'Inclination ', num(d.inclination_deg || 0, 1), '° to the horizontal; ', axialText(d.ends && d.ends.axial), '.');
+      'Drawn along its axis; inclination ', num(d.inclination_deg || 0, 1), '° to the horizontal; ', axialText(d.ends && d.ends.axial), '.');
   return h('figure', {class: 'chart', dataset: {chart: 'member'}}, svg, legend);
 }
 
