@@ -35,6 +35,7 @@
 
 #include "estimation/identify_record.h"
 #include "server/auth.h"
+#include "server/dashboard_data.h"
 #include "server/estimate_json.h"
 #include "server/http_api.h"
 #include "server/iso_time.h"
@@ -69,6 +70,7 @@ struct Fixture {
   std::unique_ptr<taut::server::ApiServer> server;
   std::unique_ptr<taut::testing::WebDriver> driver;
   std::string token, base, from, browser_error, db_path;
+  std::string sample_result;  // one stored result_json
   Id member = 0;
 
   Fixture() {
@@ -193,6 +195,7 @@ struct Fixture {
       e.bending_stiffness_nm2 = ei;
       e.bending_stiffness_std_nm2 = 60;
       e.result_json = result.dump();
+      if (d == 0) sample_result = e.result_json;
       Id id = 0;
       Check(repo.CompleteJobWithEstimate(job.id, e, now, &id), "estimate");
       estimate_ids.push_back(id);
@@ -265,6 +268,19 @@ void API_FixityHistory2yCold(benchmark::State& state) {
     state.ResumeTiming();
   }
 }
+// The share of the cold fixity history spent reading result_json (the
+// rest is the per-row GetEstimate): one SAX pass up to end_fixity over a
+// real identification's result, against a full parse of it.
+void Parse_FixitySax(benchmark::State& state) {
+  taut::storage::Estimate e;
+  e.result_json = F().sample_result;
+  for (auto _ : state) benchmark::DoNotOptimize(taut::server::FixityPointJson(e));
+  state.counters["result_bytes"] = static_cast<double>(e.result_json.size());
+}
+void Parse_FullResult(benchmark::State& state) {
+  const std::string text = F().sample_result;
+  for (auto _ : state) benchmark::DoNotOptimize(json::parse(text));
+}
 void API_MemberAlerts(benchmark::State& s) {
   ApiGet(s, "/v1/alerts?member_id=" + std::to_string(F().member));
 }
@@ -327,6 +343,8 @@ BENCHMARK(API_ForceHistory2y)->Unit(benchmark::kMillisecond)->Repetitions(10);
 BENCHMARK(API_Drift2y)->Unit(benchmark::kMillisecond)->Repetitions(10);
 BENCHMARK(API_FixityHistory2y)->Unit(benchmark::kMillisecond)->Repetitions(10);
 BENCHMARK(API_FixityHistory2yCold)->Unit(benchmark::kMillisecond)->Iterations(5)->Repetitions(10);
+BENCHMARK(Parse_FixitySax)->Unit(benchmark::kMicrosecond)->Repetitions(10);
+BENCHMARK(Parse_FullResult)->Unit(benchmark::kMicrosecond)->Repetitions(10);
 BENCHMARK(API_MemberAlerts)->Unit(benchmark::kMillisecond)->Repetitions(10);
 BENCHMARK(API_Me)->Unit(benchmark::kMillisecond)->Repetitions(10);
 BENCHMARK(Page_MemberRoute)->UseManualTime()->Unit(benchmark::kMillisecond)->Iterations(1)->Repetitions(15);
