@@ -349,16 +349,35 @@ bool CovarianceAt(const FitContext& ctx, Vec4 x, const std::array<bool, 4>& held
   return true;
 }
 
-std::string Fmt(double v, int precision = 4) {
-  std::ostringstream os;
-  os.precision(precision);
-  os << v;
-  return os.str();
-}
-
-std::string Kn(double n) { return Fmt(n / 1000.0, 4) + " kN"; }
-
 }  // namespace
+
+void AppendForceCautions(const model::Member& member, model::Direction plane, double axial_force_n,
+                         double critical_compression_n, Cautions* cautions) {
+  if (axial_force_n < 0.0) {
+    const double share = critical_compression_n > 0.0 ? -axial_force_n / critical_compression_n : 1.0;
+    if (share > kNearBucklingShare) {
+      cautions->push_back({"compression-near-buckling",
+                           "The member is in compression at " + FormatNumber(100 * share, 3) +
+                               " % of its critical load " + FormatKn(critical_compression_n) + "."});
+    } else {
+      cautions->push_back({"compression", "The member is in compression (" + FormatKn(axial_force_n) + ")."});
+    }
+  }
+  if (member.Slenderness(plane) < kStockySlenderness) {
+    cautions->push_back({"stocky-member", "Slenderness L/r = " + FormatNumber(member.Slenderness(plane), 3) +
+                                              " is below " + FormatNumber(kStockySlenderness, 3) +
+                                              ": shear and rotary inertia, ignored by the model, matter."});
+  }
+  if (member.design_axial_force_n && *member.design_axial_force_n != 0.0) {
+    const double d = *member.design_axial_force_n;
+    if (std::abs(axial_force_n - d) > kDesignForceDeviationShare * std::abs(d)) {
+      cautions->push_back(
+          {"far-from-design-force", "The estimate " + FormatKn(axial_force_n) +
+                                        " differs from the design force " + FormatKn(d) + " by more than " +
+                                        FormatNumber(100 * kDesignForceDeviationShare, 2) + " %."});
+    }
+  }
+}
 
 Status IdentifyFromModes(const model::Member& member, const ModalIdentification& ident,
                          const IdentifyOptions& options, Estimate* estimate) {
@@ -403,11 +422,11 @@ Status IdentifyFromModes(const model::Member& member, const ModalIdentification&
     const IdentifiedMode& m = measured[i];
     const std::string where = "mode " + std::to_string(i + 1);
     if (!(std::isfinite(m.frequency_hz) && m.frequency_hz > 0.0)) {
-      return Status::InvalidArgument(where + ": frequency_hz = " + Fmt(m.frequency_hz) +
+      return Status::InvalidArgument(where + ": frequency_hz = " + FormatNumber(m.frequency_hz) +
                                      ": must be finite and > 0");
     }
     if (!(std::isfinite(m.frequency_std_hz) && m.frequency_std_hz > 0.0)) {
-      return Status::InvalidArgument(where + ": frequency_std_hz = " + Fmt(m.frequency_std_hz) +
+      return Status::InvalidArgument(where + ": frequency_std_hz = " + FormatNumber(m.frequency_std_hz) +
                                      ": must be finite and > 0");
     }
     if (m.shape.size() != ident.channels.size()) {
@@ -439,7 +458,7 @@ Status IdentifyFromModes(const model::Member& member, const ModalIdentification&
     if (f_min > 0.0 && (f_max - f_min) / f_min > kLargeAmplitudeFrequencyShift) {
       est.cautions.push_back(
           {"large-amplitude",
-           "The dominant frequency moves by " + Fmt(100.0 * (f_max - f_min) / f_min, 2) +
+           "The dominant frequency moves by " + FormatNumber(100.0 * (f_max - f_min) / f_min, 2) +
                " % over the free decay: the member vibrated at amplitudes where stretching "
                "stiffens it, and the linear model's force is biased high."});
     }
@@ -581,7 +600,7 @@ Status IdentifyFromModes(const model::Member& member, const ModalIdentification&
     if (Status s = model_at(x_reg, &start_modes, pairing_modes); !s.ok()) {
       return Status::InvalidArgument(
           "the member model cannot be evaluated at the pinned-beam regression start (N = " +
-          Fmt(ctx.N(x_reg.data())) + " N): " + s.message);
+          FormatNumber(ctx.N(x_reg.data())) + " N): " + s.message);
     }
   }
   std::vector<double> f_measured;
@@ -595,8 +614,8 @@ Status IdentifyFromModes(const model::Member& member, const ModalIdentification&
     return Status::InvalidArgument(
         "none of the " + std::to_string(measured.size()) +
         " identified modes pairs with a bending mode of the member model (lowest " +
-        Fmt(measured[0].frequency_hz) + " Hz, model fundamental " + Fmt(start_modes.modes[0].frequency_hz) +
-        " Hz at the regression start)");
+        FormatNumber(measured[0].frequency_hz) + " Hz, model fundamental " +
+        FormatNumber(start_modes.modes[0].frequency_hz) + " Hz at the regression start)");
   }
 
   // Mesh check: the frequency change of every paired mode on doubling the
@@ -624,9 +643,10 @@ Status IdentifyFromModes(const model::Member& member, const ModalIdentification&
       if (worst <= options.max_mesh_error_sigma) return changed;
       if (refine == kMaxMeshRefinements) {
         if (!mesh_caution) {
-          est.cautions.push_back({"mesh-error", "The finite-element discretisation error (" + Fmt(worst, 2) +
+          est.cautions.push_back({"mesh-error", "The finite-element discretisation error (" +
+                                                    FormatNumber(worst, 2) +
                                                     " frequency stds) could not be brought below " +
-                                                    Fmt(options.max_mesh_error_sigma, 2) + " std."});
+                                                    FormatNumber(options.max_mesh_error_sigma, 2) + " std."});
         }
         mesh_caution = true;
         return changed;
@@ -900,9 +920,9 @@ Status IdentifyFromModes(const model::Member& member, const ModalIdentification&
                                  false, !unidentified[1]};
     if (s > kPriorDominatedShare * options.ei_prior_sigma_ln) {
       est.cautions.push_back(
-          {"stiffness-from-prior", "The bending stiffness is determined mainly by its prior (nominal " +
-                                       Fmt(ei_nominal) + " N m^2 +- " +
-                                       Fmt(100 * options.ei_prior_sigma_ln, 2) + " %), not by the record."});
+          {"stiffness-from-prior",
+           "The bending stiffness is determined mainly by its prior (nominal " + FormatNumber(ei_nominal) +
+               " N m^2 +- " + FormatNumber(100 * options.ei_prior_sigma_ln, 2) + " %), not by the record."});
     }
   }
 
@@ -983,7 +1003,8 @@ Status IdentifyFromModes(const model::Member& member, const ModalIdentification&
   }
   for (size_t i = 0; i < est.modes.size(); ++i) {
     if (est.modes[i].paired) continue;
-    est.cautions.push_back({"unpaired-mode", "The mode at " + Fmt(est.modes[i].measured.frequency_hz) +
+    est.cautions.push_back({"unpaired-mode", "The mode at " +
+                                                 FormatNumber(est.modes[i].measured.frequency_hz) +
                                                  " Hz pairs with no bending mode of the member model and was "
                                                  "not used."});
   }
@@ -998,14 +1019,14 @@ Status IdentifyFromModes(const model::Member& member, const ModalIdentification&
   at_bound(est.fixity_left, "left");
   at_bound(est.fixity_right, "right");
   if (n_hi - n_lo > kWideIntervalShare * std::abs(n_hat)) {
-    est.cautions.push_back({"wide-interval", "The 95 % interval of the axial force [" + Kn(n_lo) + ", " +
-                                                 Kn(n_hi) + "] is wider than " +
-                                                 Fmt(100 * kWideIntervalShare, 2) + " % of the estimate " +
-                                                 Kn(n_hat) + "."});
+    est.cautions.push_back({"wide-interval", "The 95 % interval of the axial force [" + FormatKn(n_lo) +
+                                                 ", " + FormatKn(n_hi) + "] is wider than " +
+                                                 FormatNumber(100 * kWideIntervalShare, 2) +
+                                                 " % of the estimate " + FormatKn(n_hat) + "."});
   }
   if (reduced_chi2 > kPoorFitReducedChi2) {
     est.cautions.push_back({"poor-fit", "The model reproduces the modes poorly (reduced chi-square " +
-                                            Fmt(reduced_chi2, 3) +
+                                            FormatNumber(reduced_chi2, 3) +
                                             "); the intervals were widened accordingly, "
                                             "but the beam model may not describe this member."});
   }
@@ -1013,30 +1034,7 @@ Status IdentifyFromModes(const model::Member& member, const ModalIdentification&
     est.cautions.push_back(
         {"not-converged", "The best fit stopped at its iteration limit before converging."});
   }
-  if (n_hat < 0.0) {
-    const double share = est.critical_compression_n > 0.0 ? -n_hat / est.critical_compression_n : 1.0;
-    if (share > kNearBucklingShare) {
-      est.cautions.push_back({"compression-near-buckling",
-                              "The member is in compression at " + Fmt(100 * share, 3) +
-                                  " % of its critical load " + Kn(est.critical_compression_n) + "."});
-    } else {
-      est.cautions.push_back({"compression", "The member is in compression (" + Kn(n_hat) + ")."});
-    }
-  }
-  if (member.Slenderness(plane) < kStockySlenderness) {
-    est.cautions.push_back(
-        {"stocky-member", "Slenderness L/r = " + Fmt(member.Slenderness(plane), 3) + " is below " +
-                              Fmt(kStockySlenderness, 3) +
-                              ": shear and rotary inertia, ignored by the model, matter."});
-  }
-  if (member.design_axial_force_n && *member.design_axial_force_n != 0.0) {
-    const double d = *member.design_axial_force_n;
-    if (std::abs(n_hat - d) > kDesignForceDeviationShare * std::abs(d)) {
-      est.cautions.push_back(
-          {"far-from-design-force", "The estimate " + Kn(n_hat) + " differs from the design force " + Kn(d) +
-                                        " by more than " + Fmt(100 * kDesignForceDeviationShare, 2) + " %."});
-    }
-  }
+  AppendForceCautions(member, plane, n_hat, est.critical_compression_n, &est.cautions);
 
   est.fit.forward_model_calls = ctx.calls;
   est.fit.seconds = std::chrono::duration<double>(std::chrono::steady_clock::now() - t0).count();

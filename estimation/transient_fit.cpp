@@ -444,11 +444,11 @@ Status FitTransient(const Member& member, Direction direction, const Eigen::Matr
                   "is not meaningful."});
   }
   if (cov_ok &&
-      kZ95 * result->axial_force_n.std > kWideIntervalShare * std::abs(result->axial_force_n.value)) {
-    cz.push_back(
-        {"wide-interval", "the 95 % interval of the axial force, [" + Fmt(result->axial_force_n.lower95) +
-                              ", " + Fmt(result->axial_force_n.upper95) + "] N, is wider than " +
-                              Fmt(100.0 * kWideIntervalShare, 3) + " % of the estimate either side."});
+      2.0 * kZ95 * result->axial_force_n.std > kWideIntervalShare * std::abs(result->axial_force_n.value)) {
+    cz.push_back({"wide-interval", "the 95 % interval of the axial force, [" +
+                                       Fmt(result->axial_force_n.lower95) + ", " +
+                                       Fmt(result->axial_force_n.upper95) + "] N, is wider than " +
+                                       Fmt(100.0 * kWideIntervalShare, 3) + " % of the estimate."});
   }
   if (!options.fit_bending_stiffness) {
     cz.push_back({"bending-stiffness-held", "the bending stiffness was held at " + Fmt(ei) +
