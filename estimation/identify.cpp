@@ -222,7 +222,66 @@ struct FitOutcome {
   double cost = std::numeric_limits<double>::infinity();
   bool usable = false;
   bool converged = false;
+  // Stopped on arriving at the reference minimum (see ArrivalCallback).
+  bool arrived = false;
   int iterations = 0;
+};
+
+// Watches a Levenberg-Marquardt run (Solver::Options::
+// update_state_every_iteration, so that `x` is the current iterate):
+//  - arrival: a start that has come within half the same-minimum
+//    tolerances of an earlier start's minimum (cost within
+//    kSameMinimumCost / 2 relative, every internal unknown within
+//    kSameMinimumForce / 2; the unknowns are all of order one, see the
+//    parameterisation above) has found that minimum and would only repeat
+//    the earlier start's last iterations: the run stops, counts as converged
+//    to the best (FitSummary::starts_at_best) and never replaces the fully
+//    converged reference;
+//  - a fixity stuck on a bound of [0, 1] for kStuckIterations iterations:
+//    Ceres projects each step onto the box, so along a bound the other
+//    unknowns creep (seen in a profile fit: 20 iterations at trust-region
+//    ratios 0.1-0.2 with the left fixity at 0, still not converged); the run
+//    stops so that RunFit can hold that fixity on its bound (an active set,
+//    Nocedal and Wright, Numerical Optimization, 2006, sec. 16.5).
+constexpr int kStuckIterations = 2;
+constexpr double kAtBound = 1e-9;
+
+class FitMonitor : public ceres::IterationCallback {
+ public:
+  // Not owned; must outlive the solve. reference may be null.
+  FitMonitor(const Vec4* x, const FitOutcome* reference, std::array<bool, 4> watch_bounds)
+      : x_(x), reference_(reference), watch_(watch_bounds) {}
+  ceres::CallbackReturnType operator()(const ceres::IterationSummary& s) override {
+    if (reference_ != nullptr && Arrived(s.cost)) {
+      arrived_ = true;
+      return ceres::SOLVER_TERMINATE_SUCCESSFULLY;
+    }
+    for (int j = 2; j < 4; ++j) {
+      if (!watch_[j]) continue;
+      const double r = (*x_)[j] - kFixityOffset;
+      count_[j] = (r <= kAtBound || r >= 1.0 - kAtBound) ? count_[j] + 1 : 0;
+      if (count_[j] >= kStuckIterations) stuck_[j] = true;
+    }
+    return stuck_[2] || stuck_[3] ? ceres::SOLVER_TERMINATE_SUCCESSFULLY : ceres::SOLVER_CONTINUE;
+  }
+  bool arrived() const { return arrived_; }
+  const std::array<bool, 4>& stuck() const { return stuck_; }
+
+ private:
+  bool Arrived(double cost) const {
+    if (!reference_->usable) return false;
+    if (cost > reference_->cost + 0.5 * kSameMinimumCost * std::max(1.0, reference_->cost)) return false;
+    for (int j = 0; j < 4; ++j) {
+      if (std::abs((*x_)[j] - reference_->x[j]) > 0.5 * kSameMinimumForce) return false;
+    }
+    return true;
+  }
+  const Vec4* x_;
+  const FitOutcome* reference_;
+  std::array<bool, 4> watch_;
+  std::array<int, 4> count_{};
+  std::array<bool, 4> stuck_{};
+  bool arrived_ = false;
 };
 
 ceres::CostFunction* MakeCost(const FitContext& ctx) {
@@ -257,28 +316,77 @@ constexpr double kFitTolerance = 1e-8;
 constexpr double kProfileFitTolerance = 1e-6;
 constexpr int kProfileMaxIterations = 20;
 
-FitOutcome RunFit(const FitContext& ctx, const Vec4& start, bool hold_force, const IdentifyOptions& options) {
+// Cost 1/2 |r|^2 at x (infinity when the model cannot be evaluated).
+double CostAt(const FitContext& ctx, const Vec4& x) {
+  std::vector<double> r(static_cast<size_t>(ctx.NumResiduals()));
+  if (!ctx.Evaluate(ctx.N(x.data()), ctx.EI(x.data()), x[2] - kFixityOffset, x[3] - kFixityOffset, r.data()))
+    return std::numeric_limits<double>::infinity();
+  double c = 0.0;
+  for (double v : r) c += v * v;
+  return 0.5 * c;
+}
+
+// Step into [0, 1] that checks whether a fixity held on a bound belongs
+// there: the first-order condition of the bound-constrained minimum is
+// that the cost does not fall on moving inward (Nocedal and Wright 2006,
+// eq. 12.34). 1e-4 is the central-difference step of the fixities.
+constexpr double kBoundProbe = 1e-4;
+
+// `reference` (optional): an earlier start's minimum; the run stops on
+// arriving there (FitMonitor). A fixity stuck on a bound is held there for
+// a second run; when a step inward from that result lowers the cost, a
+// third run with it free again follows.
+FitOutcome RunFit(const FitContext& ctx, const Vec4& start, bool hold_force, const IdentifyOptions& options,
+                  const FitOutcome* reference = nullptr) {
   FitOutcome out;
   out.x = start;
-  ceres::Problem problem;
-  BuildProblem(ctx, out.x, hold_force, &problem);
-  ceres::Solver::Options so;
-  so.trust_region_strategy_type = ceres::LEVENBERG_MARQUARDT;
-  so.linear_solver_type = ceres::DENSE_QR;
-  so.max_num_iterations =
-      hold_force ? std::min(options.max_iterations, kProfileMaxIterations) : options.max_iterations;
-  so.function_tolerance = hold_force ? kProfileFitTolerance : kFitTolerance;
-  so.parameter_tolerance = hold_force ? kProfileFitTolerance : kFitTolerance;
-  so.gradient_tolerance = 1e-12;
-  so.logging_type = ceres::SILENT;
-  so.minimizer_progress_to_stdout = false;
-  so.num_threads = 1;
+  std::array<bool, 4> held_at_bound{};
+  int iterations = 0;
   ceres::Solver::Summary summary;
-  ceres::Solve(so, &problem, &summary);
+  for (int phase = 0; phase < 3; ++phase) {
+    ceres::Problem problem;
+    BuildProblem(ctx, out.x, hold_force, &problem);
+    for (int j = 2; j < 4; ++j) {
+      if (phase == 1 && held_at_bound[j]) problem.SetParameterBlockConstant(&out.x[j]);
+    }
+    ceres::Solver::Options so;
+    so.trust_region_strategy_type = ceres::LEVENBERG_MARQUARDT;
+    so.linear_solver_type = ceres::DENSE_QR;
+    so.max_num_iterations =
+        hold_force ? std::min(options.max_iterations, kProfileMaxIterations) : options.max_iterations;
+    so.function_tolerance = hold_force ? kProfileFitTolerance : kFitTolerance;
+    so.parameter_tolerance = hold_force ? kProfileFitTolerance : kFitTolerance;
+    so.gradient_tolerance = 1e-12;
+    so.logging_type = ceres::SILENT;
+    so.minimizer_progress_to_stdout = false;
+    so.num_threads = 1;
+    const std::array<bool, 4> watch = {false, false, phase == 0 && ctx.free_left,
+                                       phase == 0 && ctx.free_right};
+    FitMonitor monitor(&out.x, phase == 0 ? reference : nullptr, watch);
+    so.callbacks.push_back(&monitor);
+    so.update_state_every_iteration = true;
+    ceres::Solve(so, &problem, &summary);
+    iterations += static_cast<int>(summary.iterations.size()) - 1;
+    out.arrived = monitor.arrived();
+    if (!summary.IsSolutionUsable()) break;
+    if (phase == 0) {
+      held_at_bound = monitor.stuck();
+      if (out.arrived || !(held_at_bound[2] || held_at_bound[3])) break;
+    } else if (phase == 1) {
+      bool release = false;
+      for (int j = 2; j < 4; ++j) {
+        if (!held_at_bound[j]) continue;
+        Vec4 probe = out.x;
+        probe[j] += (probe[j] - kFixityOffset < 0.5 ? 1.0 : -1.0) * kBoundProbe;
+        release = release || CostAt(ctx, probe) < summary.final_cost * (1.0 - kFitTolerance);
+      }
+      if (!release) break;
+    }
+  }
   out.usable = summary.IsSolutionUsable() && std::isfinite(summary.final_cost);
-  out.converged = summary.termination_type == ceres::CONVERGENCE;
+  out.converged = summary.termination_type == ceres::CONVERGENCE || out.arrived;
   out.cost = out.usable ? summary.final_cost : std::numeric_limits<double>::infinity();
-  out.iterations = static_cast<int>(summary.iterations.size()) - 1;
+  out.iterations = iterations;
   return out;
 }
 
@@ -706,9 +814,9 @@ Status IdentifyFromModes(const model::Member& member, const ModalIdentification&
     outcomes.clear();
     best = FitOutcome{};
     for (const Vec4& s : starts) {
-      FitOutcome o = RunFit(ctx, s, false, options);
+      FitOutcome o = RunFit(ctx, s, false, options, best.usable ? &best : nullptr);
       outcomes.push_back(o);
-      if (o.usable && o.cost < best.cost) best = o;
+      if (o.usable && !o.arrived && o.cost < best.cost) best = o;
     }
   };
   run_starts();
@@ -870,6 +978,17 @@ Status IdentifyFromModes(const model::Member& member, const ModalIdentification&
       for (int it = 0; it < kMaxProfileSteps; ++it) {
         Vec4 xs = xa;
         xs[0] = xa[0] + sign * step;
+        // Start the others at their conditional mean given N under the
+        // Gauss-Newton (Wald) approximation, x_j + cov(j, N) / cov(N, N) dN
+        // (the regression of x_j on N): near the profile's optimum, so the
+        // held-N fit needs few iterations; fixities stay in their range.
+        if (have_cov && cov(0, 0) > 0.0) {
+          for (int j = 1; j < 4; ++j) {
+            if (!free_block[j]) continue;
+            xs[j] += cov(j, 0) / cov(0, 0) * (xs[0] - xa[0]);
+            if (j >= 2) xs[j] = std::clamp(xs[j], kFixityOffset, kFixityOffset + 1.0);
+          }
+        }
         FitOutcome o = RunFit(ctx, xs, true, options);
         if (!o.usable) {
           step *= 0.5;

@@ -1,7 +1,6 @@
 #include "model/modal.h"
 
-#include <Spectra/MatOp/SparseSymMatProd.h>
-#include <Spectra/SymGEigsShiftSolver.h>
+#include <Spectra/SymEigsSolver.h>
 
 #include <Eigen/Dense>
 #include <Eigen/SparseCholesky>
@@ -20,15 +19,18 @@ namespace {
 // the band.
 using BandedLdlt = Eigen::SimplicialLDLT<SparseMatrix, Eigen::Lower, Eigen::NaturalOrdering<int>>;
 
-// y = K_T^{-1} x for K_T = K_0 + c g g^T, by Sherman-Morrison:
-//   K_T^{-1} x = K_0^{-1} x - z (c g^T K_0^{-1} x) / (1 + c g^T z),  z = K_0^{-1} g.
-// Implements the operator interface Spectra's shift-invert mode expects
-// (rows, cols, set_shift, perform_op); the shift is fixed at 0.
-class RankOneUpdatedInverse {
+// y = L^T K_T^{-1} L x for K_T = K_0 + c g g^T (L the Cholesky factor of
+// M), K_T^{-1} by Sherman-Morrison:
+//   K_T^{-1} u = K_0^{-1} u - z (c g^T K_0^{-1} u) / (1 + c g^T z),  z = K_0^{-1} g.
+// Implements the operator interface of Spectra's standard solver (rows,
+// cols, perform_op).
+class InverseStiffnessInMassMetric {
  public:
   using Scalar = double;
   // Not owned; must outlive this object.
-  RankOneUpdatedInverse(const BandedLdlt* k0, const Eigen::VectorXd* g, double c) : k0_(k0), g_(g), c_(c) {
+  InverseStiffnessInMassMetric(const BandedLdlt* k0, const SparseMatrix* l, const Eigen::VectorXd* g,
+                               double c)
+      : k0_(k0), l_(l), g_(g), c_(c), u_(k0->rows()) {
     if (c_ != 0.0) {
       z_ = k0_->solve(*g_);
       denom_ = 1.0 + c_ * g_->dot(z_);
@@ -36,20 +38,23 @@ class RankOneUpdatedInverse {
   }
   Eigen::Index rows() const { return k0_->rows(); }
   Eigen::Index cols() const { return k0_->cols(); }
-  void set_shift(double /*sigma*/) {}
   void perform_op(const double* x_in, double* y_out) const {
     Eigen::Map<const Eigen::VectorXd> x(x_in, rows());
     Eigen::Map<Eigen::VectorXd> y(y_out, rows());
-    y = k0_->solve(x);
-    if (c_ != 0.0) y -= z_ * (c_ * g_->dot(y) / denom_);
+    u_.noalias() = *l_ * x;
+    u_ = k0_->solve(u_);
+    if (c_ != 0.0) u_ -= z_ * (c_ * g_->dot(u_) / denom_);
+    y.noalias() = l_->transpose() * u_;
   }
 
  private:
   const BandedLdlt* k0_;
+  const SparseMatrix* l_;
   const Eigen::VectorXd* g_;
   double c_;
   Eigen::VectorXd z_;
   double denom_ = 1.0;
+  mutable Eigen::VectorXd u_;  // scratch: K_T^{-1} L x
 };
 
 // Below this many DOFs (or when the Krylov space would span most of the
@@ -67,6 +72,10 @@ constexpr int kLanczosMaxRestarts = 1000;
 ModalModel::ModalModel(const Member& member, Direction direction, ModalOptions options)
     : member_(member), direction_(direction), mesh_(BuildMesh(member, options.target_elements)) {
   matrices_ = AssembleBeam(member_, mesh_);
+  // M is symmetric positive definite (consistent mass plus point masses)
+  // and banded like K: its natural-order Cholesky factor has no fill.
+  Eigen::SimplicialLLT<SparseMatrix, Eigen::Lower, Eigen::NaturalOrdering<int>> llt(matrices_.M);
+  if (llt.info() == Eigen::Success) mass_factor_ = llt.matrixL();
 }
 
 Status ModalModel::CriticalCompression(const ModalParameters& params, double* n_cr) const {
@@ -131,20 +140,19 @@ Status ModalModel::Solve(const ModalParameters& params, int num_modes, ModalResu
     eigenvalues = es.eigenvalues().head(num_modes);
     vectors = es.eigenvectors().leftCols(num_modes);
   } else {
-    RankOneUpdatedInverse op(&ldlt, &g, c);
-    Spectra::SparseSymMatProd<double> bop(matrices_.M);
-    Spectra::SymGEigsShiftSolver<RankOneUpdatedInverse, Spectra::SparseSymMatProd<double>,
-                                 Spectra::GEigsMode::ShiftInvert>
-        eigs(op, bop, num_modes, ncv, 0.0);
+    if (mass_factor_.rows() != n) return Status::Numerical("the mass matrix is not positive definite");
+    InverseStiffnessInMassMetric op(&ldlt, &mass_factor_, &g, c);
+    Spectra::SymEigsSolver<InverseStiffnessInMassMetric> eigs(op, num_modes, ncv);
     eigs.init();
-    eigs.compute(Spectra::SortRule::LargestMagn, kLanczosMaxRestarts, kLanczosTolerance,
-                 Spectra::SortRule::SmallestAlge);
+    eigs.compute(Spectra::SortRule::LargestAlge, kLanczosMaxRestarts, kLanczosTolerance,
+                 Spectra::SortRule::LargestAlge);
     if (eigs.info() != Spectra::CompInfo::Successful) {
       return Status::Numerical("Lanczos eigen-solver did not converge for " + std::to_string(num_modes) +
                                " modes");
     }
-    eigenvalues = eigs.eigenvalues();
-    vectors = eigs.eigenvectors();
+    // mu = 1 / omega^2 in descending order = omega^2 ascending; phi = L^{-T} y.
+    eigenvalues = eigs.eigenvalues().cwiseInverse();
+    vectors = mass_factor_.transpose().triangularView<Eigen::Upper>().solve(eigs.eigenvectors());
   }
 
   ModalResult out;

@@ -23,7 +23,13 @@
 // The lowest modes are found by shift-invert Lanczos (Spectra) with shift 0
 // on the banded LDL^T factor of K_0 = K_T - k_ax g g^T and the rank-one term
 // applied by the Sherman-Morrison formula, so a solve costs O(n) rather than
-// the O(n^3) of a dense decomposition. Positive definiteness of K_0 (all
+// the O(n^3) of a dense decomposition. The pencil is brought to standard
+// form with the banded Cholesky factor M = L L^T (computed once per model):
+// the operator is L^T K_T^{-1} L, whose eigenvalues are 1/omega^2 and whose
+// orthonormal eigenvectors y give phi = L^{-T} y with phi^T M phi = 1
+// (Parlett, The Symmetric Eigenvalue Problem, 1998, sec. 15.2). Unlike the
+// generalised Lanczos it needs no M-inner products, which cost most of a
+// solve (two sparse products per Lanczos step). Positive definiteness of K_0 (all
 // pivots of the LDL^T factor > 0) is the stability check: a member at or
 // beyond its buckling load returns Status::kBuckled, never NaN frequencies.
 #pragma once
@@ -98,6 +104,7 @@ class ModalModel {
   Direction direction_;
   Mesh mesh_;
   BeamMatrices matrices_;
+  SparseMatrix mass_factor_;  // L of M = L L^T: lower triangular, natural order
 };
 
 // One-shot convenience: builds a ModalModel and solves it.
