@@ -133,8 +133,15 @@ struct FitContext {
   mutable size_t memo_next = 0;
   mutable size_t memo_used = 0;
 
-  // Clears the memo (after the model or the pairing changed).
-  void Reset() const { memo_used = 0; }
+  // The last model solution (Lanczos start of the next solve).
+  mutable model::ModalResult last;
+  mutable bool last_ok = false;
+
+  // Clears the memo and the last solution (after the model or the pairing changed).
+  void Reset() const {
+    memo_used = 0;
+    last_ok = false;
+  }
 
   // Residuals for fixities inside [0, 1].
   bool EvaluateInside(double n, double ei, double rl, double rr, double* res) const {
@@ -159,7 +166,12 @@ struct FitContext {
   bool EvaluateUncached(double n, double ei, double rl, double rr, double* res) const {
     model::ModalResult r;
     ++calls;
-    if (!model->Solve(Params(n, ei, rl, rr), num_modes, &r).ok()) return false;
+    // Started from the previous evaluation's modes (a nearby point: the
+    // stencil of a numeric Jacobian or the next iterate).
+    const bool near_ok = last_ok && last.modes.size() >= static_cast<size_t>(num_modes);
+    if (!model->Solve(Params(n, ei, rl, rr), num_modes, &r, near_ok ? &last : nullptr).ok()) return false;
+    last = r;
+    last_ok = true;
     int k = 0;
     for (const PairData& p : pairs) {
       const model::Mode& mode = r.modes[p.order - 1];

@@ -35,6 +35,7 @@
 #pragma once
 
 #include <Eigen/Core>
+#include <memory>
 #include <optional>
 #include <string>
 #include <vector>
@@ -60,6 +61,7 @@ struct Mode {
   // is positive.
   std::vector<double> shape_at_sensors;
   Eigen::VectorXd w_nodes;  // w at every mesh node (zeros at the ends), same normalisation
+  Eigen::VectorXd dofs;     // the whole vector on the free DOFs (beam_fe.h order), same normalisation
 };
 
 struct ModalResult {
@@ -89,6 +91,12 @@ class ModalModel {
   // num_modes; kBuckled when K_0 is not positive definite; kNumerical when
   // the eigen-solver does not converge.
   Status Solve(const ModalParameters& params, int num_modes, ModalResult* result) const;
+  // As above, with the Lanczos iteration started from the modes of `near`
+  // (a result of this model at nearby parameters, e.g. the previous point
+  // of a fit; null = the default start). The modes agree with those of a
+  // cold start to the solver tolerance; a near start saves restarts.
+  Status Solve(const ModalParameters& params, int num_modes, ModalResult* result,
+               const ModalResult* near) const;
 
   // Critical compression [N, > 0]: the smallest P for which
   // EI K_b + k_l S_l + k_r S_r - P G is singular (Euler load of the member
@@ -104,7 +112,10 @@ class ModalModel {
   Direction direction_;
   Mesh mesh_;
   BeamMatrices matrices_;
-  SparseMatrix mass_factor_;  // L of M = L L^T: lower triangular, natural order
+  // The unit matrices as bands and the Cholesky factor of M (modal.cpp);
+  // immutable after construction, shared by copies.
+  struct Bands;
+  std::shared_ptr<const Bands> bands_;
 };
 
 // One-shot convenience: builds a ModalModel and solves it.
