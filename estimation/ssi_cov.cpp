@@ -59,6 +59,9 @@ void PolesAtOrder(const Eigen::MatrixXd& O, int l, int n, double fs, std::vector
   const Eigen::MatrixXd C = O.topRows(l).leftCols(n);
   Eigen::EigenSolver<Eigen::MatrixXd> es(A, true);
   if (es.info() != Eigen::Success) return;
+  // eigenvectors() assembles the whole complex matrix on every call: once.
+  const Eigen::MatrixXcd psi = es.eigenvectors();
+  const Eigen::MatrixXcd c_complex = C.cast<std::complex<double>>();
   for (Eigen::Index k = 0; k < n; ++k) {
     const std::complex<double> mu = es.eigenvalues()[k];
     if (mu.imag() <= 0.0 || std::abs(mu) == 0.0) continue;  // one of each pair; real poles are not modes
@@ -67,7 +70,7 @@ void PolesAtOrder(const Eigen::MatrixXd& O, int l, int n, double fs, std::vector
     p.order = n;
     p.frequency_hz = std::abs(lambda) / (2.0 * std::numbers::pi);
     p.damping_ratio = -lambda.real() / std::abs(lambda);
-    p.shape = C.cast<std::complex<double>>() * es.eigenvectors().col(k);
+    p.shape = c_complex * psi.col(k);
     if (all_pairs) all_pairs->push_back(p);
     out->push_back(std::move(p));
   }
