@@ -161,6 +161,23 @@ TEST(IdentifyRecord, LargeAmplitudeImpactGoesThroughTheTransientPath) {
   EXPECT_LE(e.axial_force_n.ci95_low, 12000.0);
   EXPECT_GE(e.axial_force_n.ci95_high, 12000.0);
   EXPECT_EQ(e.notice, StandingNotice());
+
+  // The same record without its excitation label (a gateway that omits the
+  // metadata line): the amplitude check finds the stretching shift above
+  // the frequency std and the record holds a free decay, so the transient
+  // path is taken all the same, to the same 1 % and interval.
+  record.excitation = Excitation::kAmbient;
+  Estimate unlabelled;
+  ASSERT_TRUE(IdentifyRecord(m, record, {}, &unlabelled).ok());
+  std::printf("unlabelled: model %s, N %.1f N [%.1f, %.1f], shift %.4f Hz vs std %.4f Hz (%s)\n",
+              unlabelled.fit.model.c_str(), unlabelled.axial_force_n.value, unlabelled.axial_force_n.ci95_low,
+              unlabelled.axial_force_n.ci95_high, unlabelled.amplitude.frequency_shift_hz,
+              unlabelled.amplitude.frequency_std_hz, unlabelled.amplitude.basis.c_str());
+  EXPECT_TRUE(unlabelled.amplitude.exceeds_std);
+  EXPECT_EQ(unlabelled.fit.model, kFitModelTransient);
+  EXPECT_NEAR(unlabelled.axial_force_n.value / 12000.0, 1.0, 0.01);
+  EXPECT_LE(unlabelled.axial_force_n.ci95_low, 12000.0);
+  EXPECT_GE(unlabelled.axial_force_n.ci95_high, 12000.0);
 }
 
 // A stationary record at an amplitude large enough for stretching to matter
