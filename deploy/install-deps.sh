@@ -25,6 +25,8 @@ PACKAGES=(
   python3-numpy       # reference checks (scipy.signal.welch) in tests
   python3-scipy
   clang-format        # style check
+  chromium            # tests/ui: the dashboard end to end in a headless browser
+  chromium-driver     # tests/ui: WebDriver (plain HTTP + JSON) that drives it
 )
 
 missing=()

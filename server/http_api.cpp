@@ -1,8 +1,11 @@
 #include "server/http_api.h"
 
+#include <algorithm>
 #include <chrono>
 #include <cmath>
 #include <iomanip>
+#include <limits>
+#include <memory>
 #include <mutex>
 #include <nlohmann/json.hpp>
 #include <optional>
@@ -14,9 +17,11 @@
 #include "estimation/record.h"
 #include "server/api_json.h"
 #include "server/auth.h"
+#include "server/dashboard_data.h"
 #include "server/iso_time.h"
 #include "server/member_json.h"
 #include "server/record_csv.h"
+#include "server/ui_assets.h"
 #include "storage/migrations.h"
 #include "storage/repository.h"
 
@@ -64,9 +69,26 @@ json ErrorBody(const std::string& code, const std::string& message) {
   return {{"error", {{"code", code}, {"message", message}}}};
 }
 
-void SendJson(httplib::Response& res, int status, const json& body) {
+// Sends `text` without cpp-httplib's automatic compression. cpp-httplib
+// 0.11 compresses every set_content body of a text-like type when the
+// client accepts it, preferring Brotli at the library's default quality
+// (11, its slowest): bench_dashboard measured about 0.5 s for a 200 kB
+// force history fetched by Chromium (browsers always send
+// "Accept-Encoding: br"), against 9 ms uncompressed. A sized content
+// provider is sent as it is. Errors keep set_content (small, and the error
+// handler looks at res.body).
+void SendUncompressed(httplib::Response& res, int status, std::string text, const char* type) {
   res.status = status;
-  res.set_content(body.dump(), "application/json");
+  if (status >= 400 || text.empty()) return res.set_content(std::move(text), type);
+  auto shared = std::make_shared<const std::string>(std::move(text));
+  res.set_content_provider(shared->size(), type,
+                           [shared](std::size_t offset, std::size_t length, httplib::DataSink& sink) {
+                             return sink.write(shared->data() + offset, length);
+                           });
+}
+
+void SendJson(httplib::Response& res, int status, const json& body) {
+  SendUncompressed(res, status, body.dump(), "application/json");
 }
 
 // --------------------------------------------------------- connection pool
@@ -372,6 +394,7 @@ struct ApiServer::Impl {
   int port = 0;
   bool started = false;
   std::vector<Route> routes;
+  FixityCache fixity_cache;  // the fixity history's parsed results (dashboard_data.h)
 
   void Add(const char* method, const std::string& pattern, Role role, Handler h, bool auth = true) {
     routes.push_back({method, pattern, Segments(pattern), auth, role, h});
@@ -390,11 +413,15 @@ struct ApiServer::Impl {
   }
 
   // A "{name}" segment of the pattern matches 1..18 digits (an id) and is
-  // captured; every other segment matches itself.
+  // captured; a last segment "**" matches the rest of the path, zero or
+  // more segments (the dashboard's files); every other segment matches
+  // itself.
   static bool Match(const Route& r, const std::vector<std::string>& path, std::vector<Id>* ids) {
-    if (path.size() != r.segments.size()) return false;
+    const bool rest = !r.segments.empty() && r.segments.back() == "**";
+    const std::size_t fixed = r.segments.size() - (rest ? 1 : 0);
+    if (rest ? path.size() < fixed : path.size() != fixed) return false;
     ids->clear();
-    for (std::size_t i = 0; i < path.size(); ++i) {
+    for (std::size_t i = 0; i < fixed; ++i) {
       const std::string& want = r.segments[i];
       if (!want.empty() && want.front() == '{') {
         const std::string& got = path[i];
@@ -442,6 +469,14 @@ struct ApiServer::Impl {
     Add("POST", "/v1/webhooks", Role::kAdmin, &Impl::CreateWebhook);
     Add("GET", "/v1/webhooks", Role::kAdmin, &Impl::ListWebhooks);
     Add("DELETE", "/v1/webhooks/{id}", Role::kAdmin, &Impl::DeleteWebhook);
+    // The dashboard's data (docs/API.md "Dashboard") and its static files:
+    // the files need no token (they hold no data; every call they make does).
+    Add("GET", "/v1/estimates/{id}/spectrum", Role::kRead, &Impl::EstimateSpectrum);
+    Add("GET", "/v1/estimates/{id}/model-shapes", Role::kRead, &Impl::EstimateModelShapes);
+    Add("GET", "/v1/members/{id}/drift", Role::kRead, &Impl::MemberDrift);
+    Add("GET", "/v1/members/{id}/fixity/history", Role::kRead, &Impl::FixityHistory);
+    Add("GET", "/", Role::kRead, &Impl::UiRedirect, /*auth=*/false);
+    Add("GET", "/ui/**", Role::kRead, &Impl::UiFile, /*auth=*/false);
   }
 
   // The one entry point of every request (see the header's diagram).
@@ -513,7 +548,8 @@ struct ApiServer::Impl {
       line << "time=" << FormatIsoUtc(NowUnixMs()) << " remote=" << req.remote_addr
            << " method=" << req.method << " path=" << req.path << " route=" << route_label
            << " status=" << res.status << " ms=" << std::fixed << std::setprecision(2) << seconds * 1e3
-           << " org=" << organisation << " in=" << req.body.size() << " out=" << res.body.size() << "\n";
+           << " org=" << organisation << " in=" << req.body.size()
+           << " out=" << std::max(res.body.size(), res.content_length_) << "\n";
       std::lock_guard<std::mutex> lock(log_mu);
       *options.access_log << line.str() << std::flush;
     }
@@ -781,7 +817,7 @@ struct ApiServer::Impl {
     c.res.status = 200;
     c.res.set_header("Content-Disposition",
                      "attachment; filename=\"record-" + std::to_string(r.id) + ".csv\"");
-    c.res.set_content(std::move(out), "text/csv");
+    SendUncompressed(c.res, 200, std::move(out), "text/csv");
   }
   void GetRecordEstimate(Call& c) {
     storage::Record r;
@@ -814,16 +850,23 @@ struct ApiServer::Impl {
     Check(c.repo.LatestEstimate(c.who.organisation_id, c.ids[0], &e));
     SendJson(c.res, 200, EstimateJson(e));
   }
-  void ForceHistory(Call& c) {
-    storage::Member m;
-    Check(c.repo.GetMember(c.who.organisation_id, c.ids[0], &m));
+  // [from, to) of a history query: default the last 30 days.
+  static std::pair<std::int64_t, std::int64_t> HistoryWindow(const Call& c) {
     const std::int64_t to = QueryTime(c.req, "to").value_or(c.now_unix_ms + 1);
     const std::int64_t from = QueryTime(c.req, "from").value_or(to - kDefaultHistoryWindow_ms);
     if (from > to) Fail(400, "bad-request", "from is after to");
+    return {from, to};
+  }
+  // A member's estimates in the query's window, one JSON point per row.
+  template <typename PointFn>
+  void SendHistory(Call& c, PointFn point) {
+    storage::Member m;
+    Check(c.repo.GetMember(c.who.organisation_id, c.ids[0], &m));
+    const auto [from, to] = HistoryWindow(c);
     std::vector<storage::Estimate> rows;
     Check(c.repo.ForceHistory(c.who.organisation_id, c.ids[0], from, to, &rows));
     json points = json::array();
-    for (const auto& e : rows) points.push_back(HistoryPointJson(e));
+    for (const auto& e : rows) points.push_back(point(e));
     SendJson(c.res, 200,
              {{"member_id", m.id},
               {"from", FormatIsoUtc(from)},
@@ -831,6 +874,7 @@ struct ApiServer::Impl {
               {"truncated", rows.size() >= storage::kMaxHistoryRows},
               {"points", points}});
   }
+  void ForceHistory(Call& c) { SendHistory(c, HistoryPointJson); }
   void Portfolio(Call& c) {
     storage::Structure s;
     Check(c.repo.GetStructure(c.who.organisation_id, c.ids[0], &s));
@@ -868,6 +912,101 @@ struct ApiServer::Impl {
       rows.push_back(row);
     }
     SendJson(c.res, 200, {{"structure", StructureJson(s)}, {"members", rows}});
+  }
+
+  // ---- dashboard data (thin: the computations are in dashboard_data.h)
+  model::Member StoredDescription(const storage::Member& m) {
+    model::Member member;
+    if (Status s = ParseMember(m.description_json, &member, MemberReadOptions{.require_id = true}); !s.ok()) {
+      Fail(500, "internal", "stored description of member " + std::to_string(m.id) + ": " + s.message);
+    }
+    return member;
+  }
+  void EstimateSpectrum(Call& c) {
+    storage::Estimate e;
+    Check(c.repo.GetEstimate(c.who.organisation_id, c.ids[0], &e));
+    storage::Record r;
+    Check(c.repo.GetRecord(c.who.organisation_id, e.record_id, &r));
+    const double points = QueryNumber(c.req, "max_points").value_or(kDefaultSpectrumPoints);
+    if (points != std::floor(points) || points < kMinSpectrumPoints || points > kMaxSpectrumPoints) {
+      Fail(400, "bad-request",
+           "max_points must be an integer in " + std::to_string(kMinSpectrumPoints) + ".." +
+               std::to_string(kMaxSpectrumPoints));
+    }
+    json out;
+    if (Status s = EstimateSpectrumJson(e, r, static_cast<int>(points), &out); !s.ok())
+      Fail(422, "unprocessable", s.message);
+    SendJson(c.res, 200, out);
+  }
+  void EstimateModelShapes(Call& c) {
+    storage::Estimate e;
+    Check(c.repo.GetEstimate(c.who.organisation_id, c.ids[0], &e));
+    storage::Member version;
+    Check(c.repo.GetMemberVersion(c.who.organisation_id, e.member_id, e.member_version, &version));
+    json out;
+    if (Status s = ModelShapesJson(e, StoredDescription(version), &out); !s.ok())
+      Fail(422, "unprocessable", s.message);
+    SendJson(c.res, 200, out);
+  }
+  void MemberDrift(Call& c) {
+    storage::Member m;
+    Check(c.repo.GetMember(c.who.organisation_id, c.ids[0], &m));
+    const model::Member member = StoredDescription(m);
+    const auto [from, to] = HistoryWindow(c);
+    std::string text;
+    const StorageStatus st = c.repo.GetDriftSettings(c.who.organisation_id, m.id, &text);
+    if (!st.ok() && !st.not_found()) Check(st);
+    estimation::DriftSettings settings;
+    if (Status s =
+            EffectiveDriftSettings(member, st.ok() ? &text : nullptr, MajorityPlane(member), &settings);
+        !s.ok()) {
+      Fail(500, "internal", "stored drift settings of member " + std::to_string(m.id) + ": " + s.message);
+    }
+    std::vector<storage::Estimate> all;  // the rules run over the whole series, as the workers do
+    Check(c.repo.ForceHistory(c.who.organisation_id, m.id, std::numeric_limits<std::int64_t>::min(),
+                              std::numeric_limits<std::int64_t>::max(), &all));
+    json out;
+    if (Status s = MemberDriftJson(member, settings, DriftSettingsBody(c, m), all, from, to, &out); !s.ok())
+      Fail(500, "internal", "drift of member " + std::to_string(m.id) + ": " + s.message);
+    out["member_id"] = m.id;
+    SendJson(c.res, 200, out);
+  }
+  void FixityHistory(Call& c) {
+    SendHistory(c, [&](const storage::Estimate& row) {
+      return fixity_cache.Point(row, [&](storage::Estimate* e) {
+        Check(c.repo.GetEstimate(c.who.organisation_id, row.id, e));  // with result_json
+      });
+    });
+  }
+  void UiRedirect(Call& c) {
+    c.res.status = 302;
+    c.res.set_header("Location", "/ui/");
+  }
+  // server/ui/ as embedded at build time. Revalidated on every load
+  // (no-cache + ETag) so a new build is picked up at once; the policy
+  // allows scripts, styles and connections to this origin only.
+  void UiFile(Call& c) {
+    if (c.req.path == "/ui") {
+      c.res.status = 301;
+      c.res.set_header("Location", "/ui/");
+      return;
+    }
+    std::string rel = c.req.path.substr(4);  // after "/ui/"
+    if (rel.empty()) rel = "index.html";
+    const UiAsset* asset = FindUiAsset(rel);
+    if (!asset) Fail(404, "not-found", "no dashboard file " + c.req.path);
+    c.res.set_header("ETag", std::string(asset->etag));
+    c.res.set_header("Cache-Control", "no-cache");
+    c.res.set_header("X-Content-Type-Options", "nosniff");
+    c.res.set_header("Referrer-Policy", "no-referrer");
+    c.res.set_header("Content-Security-Policy",
+                     "default-src 'none'; script-src 'self'; style-src 'self'; img-src 'self' data:; "
+                     "connect-src 'self'; base-uri 'none'; form-action 'none'; frame-ancestors 'none'");
+    if (c.req.get_header_value("If-None-Match") == asset->etag) {
+      c.res.status = 304;
+      return;
+    }
+    SendUncompressed(c.res, 200, std::string(asset->body), std::string(asset->content_type).c_str());
   }
 
   // ---- alerts and webhooks
