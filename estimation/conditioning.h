@@ -29,8 +29,23 @@ inline constexpr double kDecimationStopbandDb = 80.0;
 inline constexpr double kDecimationPassbandShare = 0.8;
 inline constexpr int kMaxDecimationFactor = 64;
 
-// Filter taps for decimation by `factor` (sum of taps = 1, symmetric).
+// Filter taps for decimation by `factor` (sum of taps = 1, symmetric):
+// KaiserLowPass(kDecimationPassbandShare pi / factor, pi / factor).
 Eigen::VectorXd DecimationFilter(int factor);
+
+// The Kaiser-windowed low-pass of the file comment for any band edges:
+// pass band up to w_pass, stop band (attenuation >= kDecimationStopbandDb)
+// from w_stop, both in rad/sample (2 pi f / fs), 0 < w_pass < w_stop <= pi.
+// Odd length, symmetric, sum of taps = 1. Length about 5 / (w_stop - w_pass)
+// x 2 pi: a narrow transition band costs a long filter.
+Eigen::VectorXd KaiserLowPass(double w_pass, double w_stop);
+
+// Filters each column with the symmetric `taps` (odd length) and keeps every
+// `factor`-th output whose filter window lies wholly inside the input, as
+// Decimate does (first output at input row (taps - 1) / 2). Errors: factor
+// < 1, even or empty taps, input shorter than the filter.
+Status FilterAndDecimate(const Eigen::MatrixXd& in, const Eigen::VectorXd& taps, int factor,
+                         Eigen::MatrixXd* out);
 
 // Low-pass filters each column with DecimationFilter(factor) and keeps every
 // `factor`-th sample. Only outputs whose filter window lies wholly inside

@@ -133,8 +133,15 @@ struct FitContext {
   mutable size_t memo_next = 0;
   mutable size_t memo_used = 0;
 
-  // Clears the memo (after the model or the pairing changed).
-  void Reset() const { memo_used = 0; }
+  // The last model solution (Lanczos start of the next solve).
+  mutable model::ModalResult last;
+  mutable bool last_ok = false;
+
+  // Clears the memo and the last solution (after the model or the pairing changed).
+  void Reset() const {
+    memo_used = 0;
+    last_ok = false;
+  }
 
   // Residuals for fixities inside [0, 1].
   bool EvaluateInside(double n, double ei, double rl, double rr, double* res) const {
@@ -159,7 +166,12 @@ struct FitContext {
   bool EvaluateUncached(double n, double ei, double rl, double rr, double* res) const {
     model::ModalResult r;
     ++calls;
-    if (!model->Solve(Params(n, ei, rl, rr), num_modes, &r).ok()) return false;
+    // Started from the previous evaluation's modes (a nearby point: the
+    // stencil of a numeric Jacobian or the next iterate).
+    const bool near_ok = last_ok && last.modes.size() >= static_cast<size_t>(num_modes);
+    if (!model->Solve(Params(n, ei, rl, rr), num_modes, &r, near_ok ? &last : nullptr).ok()) return false;
+    last = r;
+    last_ok = true;
     int k = 0;
     for (const PairData& p : pairs) {
       const model::Mode& mode = r.modes[p.order - 1];
@@ -222,7 +234,66 @@ struct FitOutcome {
   double cost = std::numeric_limits<double>::infinity();
   bool usable = false;
   bool converged = false;
+  // Stopped on arriving at the reference minimum (see ArrivalCallback).
+  bool arrived = false;
   int iterations = 0;
+};
+
+// Watches a Levenberg-Marquardt run (Solver::Options::
+// update_state_every_iteration, so that `x` is the current iterate):
+//  - arrival: a start that has come within half the same-minimum
+//    tolerances of an earlier start's minimum (cost within
+//    kSameMinimumCost / 2 relative, every internal unknown within
+//    kSameMinimumForce / 2; the unknowns are all of order one, see the
+//    parameterisation above) has found that minimum and would only repeat
+//    the earlier start's last iterations: the run stops, counts as converged
+//    to the best (FitSummary::starts_at_best) and never replaces the fully
+//    converged reference;
+//  - a fixity stuck on a bound of [0, 1] for kStuckIterations iterations:
+//    Ceres projects each step onto the box, so along a bound the other
+//    unknowns creep (seen in a profile fit: 20 iterations at trust-region
+//    ratios 0.1-0.2 with the left fixity at 0, still not converged); the run
+//    stops so that RunFit can hold that fixity on its bound (an active set,
+//    Nocedal and Wright, Numerical Optimization, 2006, sec. 16.5).
+constexpr int kStuckIterations = 2;
+constexpr double kAtBound = 1e-9;
+
+class FitMonitor : public ceres::IterationCallback {
+ public:
+  // Not owned; must outlive the solve. reference may be null.
+  FitMonitor(const Vec4* x, const FitOutcome* reference, std::array<bool, 4> watch_bounds)
+      : x_(x), reference_(reference), watch_(watch_bounds) {}
+  ceres::CallbackReturnType operator()(const ceres::IterationSummary& s) override {
+    if (reference_ != nullptr && Arrived(s.cost)) {
+      arrived_ = true;
+      return ceres::SOLVER_TERMINATE_SUCCESSFULLY;
+    }
+    for (int j = 2; j < 4; ++j) {
+      if (!watch_[j]) continue;
+      const double r = (*x_)[j] - kFixityOffset;
+      count_[j] = (r <= kAtBound || r >= 1.0 - kAtBound) ? count_[j] + 1 : 0;
+      if (count_[j] >= kStuckIterations) stuck_[j] = true;
+    }
+    return stuck_[2] || stuck_[3] ? ceres::SOLVER_TERMINATE_SUCCESSFULLY : ceres::SOLVER_CONTINUE;
+  }
+  bool arrived() const { return arrived_; }
+  const std::array<bool, 4>& stuck() const { return stuck_; }
+
+ private:
+  bool Arrived(double cost) const {
+    if (!reference_->usable) return false;
+    if (cost > reference_->cost + 0.5 * kSameMinimumCost * std::max(1.0, reference_->cost)) return false;
+    for (int j = 0; j < 4; ++j) {
+      if (std::abs((*x_)[j] - reference_->x[j]) > 0.5 * kSameMinimumForce) return false;
+    }
+    return true;
+  }
+  const Vec4* x_;
+  const FitOutcome* reference_;
+  std::array<bool, 4> watch_;
+  std::array<int, 4> count_{};
+  std::array<bool, 4> stuck_{};
+  bool arrived_ = false;
 };
 
 ceres::CostFunction* MakeCost(const FitContext& ctx) {
@@ -257,28 +328,77 @@ constexpr double kFitTolerance = 1e-8;
 constexpr double kProfileFitTolerance = 1e-6;
 constexpr int kProfileMaxIterations = 20;
 
-FitOutcome RunFit(const FitContext& ctx, const Vec4& start, bool hold_force, const IdentifyOptions& options) {
+// Cost 1/2 |r|^2 at x (infinity when the model cannot be evaluated).
+double CostAt(const FitContext& ctx, const Vec4& x) {
+  std::vector<double> r(static_cast<size_t>(ctx.NumResiduals()));
+  if (!ctx.Evaluate(ctx.N(x.data()), ctx.EI(x.data()), x[2] - kFixityOffset, x[3] - kFixityOffset, r.data()))
+    return std::numeric_limits<double>::infinity();
+  double c = 0.0;
+  for (double v : r) c += v * v;
+  return 0.5 * c;
+}
+
+// Step into [0, 1] that checks whether a fixity held on a bound belongs
+// there: the first-order condition of the bound-constrained minimum is
+// that the cost does not fall on moving inward (Nocedal and Wright 2006,
+// eq. 12.34). 1e-4 is the central-difference step of the fixities.
+constexpr double kBoundProbe = 1e-4;
+
+// `reference` (optional): an earlier start's minimum; the run stops on
+// arriving there (FitMonitor). A fixity stuck on a bound is held there for
+// a second run; when a step inward from that result lowers the cost, a
+// third run with it free again follows.
+FitOutcome RunFit(const FitContext& ctx, const Vec4& start, bool hold_force, const IdentifyOptions& options,
+                  const FitOutcome* reference = nullptr) {
   FitOutcome out;
   out.x = start;
-  ceres::Problem problem;
-  BuildProblem(ctx, out.x, hold_force, &problem);
-  ceres::Solver::Options so;
-  so.trust_region_strategy_type = ceres::LEVENBERG_MARQUARDT;
-  so.linear_solver_type = ceres::DENSE_QR;
-  so.max_num_iterations =
-      hold_force ? std::min(options.max_iterations, kProfileMaxIterations) : options.max_iterations;
-  so.function_tolerance = hold_force ? kProfileFitTolerance : kFitTolerance;
-  so.parameter_tolerance = hold_force ? kProfileFitTolerance : kFitTolerance;
-  so.gradient_tolerance = 1e-12;
-  so.logging_type = ceres::SILENT;
-  so.minimizer_progress_to_stdout = false;
-  so.num_threads = 1;
+  std::array<bool, 4> held_at_bound{};
+  int iterations = 0;
   ceres::Solver::Summary summary;
-  ceres::Solve(so, &problem, &summary);
+  for (int phase = 0; phase < 3; ++phase) {
+    ceres::Problem problem;
+    BuildProblem(ctx, out.x, hold_force, &problem);
+    for (int j = 2; j < 4; ++j) {
+      if (phase == 1 && held_at_bound[j]) problem.SetParameterBlockConstant(&out.x[j]);
+    }
+    ceres::Solver::Options so;
+    so.trust_region_strategy_type = ceres::LEVENBERG_MARQUARDT;
+    so.linear_solver_type = ceres::DENSE_QR;
+    so.max_num_iterations =
+        hold_force ? std::min(options.max_iterations, kProfileMaxIterations) : options.max_iterations;
+    so.function_tolerance = hold_force ? kProfileFitTolerance : kFitTolerance;
+    so.parameter_tolerance = hold_force ? kProfileFitTolerance : kFitTolerance;
+    so.gradient_tolerance = 1e-12;
+    so.logging_type = ceres::SILENT;
+    so.minimizer_progress_to_stdout = false;
+    so.num_threads = 1;
+    const std::array<bool, 4> watch = {false, false, phase == 0 && ctx.free_left,
+                                       phase == 0 && ctx.free_right};
+    FitMonitor monitor(&out.x, phase == 0 ? reference : nullptr, watch);
+    so.callbacks.push_back(&monitor);
+    so.update_state_every_iteration = true;
+    ceres::Solve(so, &problem, &summary);
+    iterations += static_cast<int>(summary.iterations.size()) - 1;
+    out.arrived = monitor.arrived();
+    if (!summary.IsSolutionUsable()) break;
+    if (phase == 0) {
+      held_at_bound = monitor.stuck();
+      if (out.arrived || !(held_at_bound[2] || held_at_bound[3])) break;
+    } else if (phase == 1) {
+      bool release = false;
+      for (int j = 2; j < 4; ++j) {
+        if (!held_at_bound[j]) continue;
+        Vec4 probe = out.x;
+        probe[j] += (probe[j] - kFixityOffset < 0.5 ? 1.0 : -1.0) * kBoundProbe;
+        release = release || CostAt(ctx, probe) < summary.final_cost * (1.0 - kFitTolerance);
+      }
+      if (!release) break;
+    }
+  }
   out.usable = summary.IsSolutionUsable() && std::isfinite(summary.final_cost);
-  out.converged = summary.termination_type == ceres::CONVERGENCE;
+  out.converged = summary.termination_type == ceres::CONVERGENCE || out.arrived;
   out.cost = out.usable ? summary.final_cost : std::numeric_limits<double>::infinity();
-  out.iterations = static_cast<int>(summary.iterations.size()) - 1;
+  out.iterations = iterations;
   return out;
 }
 
@@ -349,16 +469,35 @@ bool CovarianceAt(const FitContext& ctx, Vec4 x, const std::array<bool, 4>& held
   return true;
 }
 
-std::string Fmt(double v, int precision = 4) {
-  std::ostringstream os;
-  os.precision(precision);
-  os << v;
-  return os.str();
-}
-
-std::string Kn(double n) { return Fmt(n / 1000.0, 4) + " kN"; }
-
 }  // namespace
+
+void AppendForceCautions(const model::Member& member, model::Direction plane, double axial_force_n,
+                         double critical_compression_n, Cautions* cautions) {
+  if (axial_force_n < 0.0) {
+    const double share = critical_compression_n > 0.0 ? -axial_force_n / critical_compression_n : 1.0;
+    if (share > kNearBucklingShare) {
+      cautions->push_back({"compression-near-buckling",
+                           "The member is in compression at " + FormatNumber(100 * share, 3) +
+                               " % of its critical load " + FormatKn(critical_compression_n) + "."});
+    } else {
+      cautions->push_back({"compression", "The member is in compression (" + FormatKn(axial_force_n) + ")."});
+    }
+  }
+  if (member.Slenderness(plane) < kStockySlenderness) {
+    cautions->push_back({"stocky-member", "Slenderness L/r = " + FormatNumber(member.Slenderness(plane), 3) +
+                                              " is below " + FormatNumber(kStockySlenderness, 3) +
+                                              ": shear and rotary inertia, ignored by the model, matter."});
+  }
+  if (member.design_axial_force_n && *member.design_axial_force_n != 0.0) {
+    const double d = *member.design_axial_force_n;
+    if (std::abs(axial_force_n - d) > kDesignForceDeviationShare * std::abs(d)) {
+      cautions->push_back(
+          {"far-from-design-force", "The estimate " + FormatKn(axial_force_n) +
+                                        " differs from the design force " + FormatKn(d) + " by more than " +
+                                        FormatNumber(100 * kDesignForceDeviationShare, 2) + " %."});
+    }
+  }
+}
 
 Status IdentifyFromModes(const model::Member& member, const ModalIdentification& ident,
                          const IdentifyOptions& options, Estimate* estimate) {
@@ -403,11 +542,11 @@ Status IdentifyFromModes(const model::Member& member, const ModalIdentification&
     const IdentifiedMode& m = measured[i];
     const std::string where = "mode " + std::to_string(i + 1);
     if (!(std::isfinite(m.frequency_hz) && m.frequency_hz > 0.0)) {
-      return Status::InvalidArgument(where + ": frequency_hz = " + Fmt(m.frequency_hz) +
+      return Status::InvalidArgument(where + ": frequency_hz = " + FormatNumber(m.frequency_hz) +
                                      ": must be finite and > 0");
     }
     if (!(std::isfinite(m.frequency_std_hz) && m.frequency_std_hz > 0.0)) {
-      return Status::InvalidArgument(where + ": frequency_std_hz = " + Fmt(m.frequency_std_hz) +
+      return Status::InvalidArgument(where + ": frequency_std_hz = " + FormatNumber(m.frequency_std_hz) +
                                      ": must be finite and > 0");
     }
     if (m.shape.size() != ident.channels.size()) {
@@ -439,7 +578,7 @@ Status IdentifyFromModes(const model::Member& member, const ModalIdentification&
     if (f_min > 0.0 && (f_max - f_min) / f_min > kLargeAmplitudeFrequencyShift) {
       est.cautions.push_back(
           {"large-amplitude",
-           "The dominant frequency moves by " + Fmt(100.0 * (f_max - f_min) / f_min, 2) +
+           "The dominant frequency moves by " + FormatNumber(100.0 * (f_max - f_min) / f_min, 2) +
                " % over the free decay: the member vibrated at amplitudes where stretching "
                "stiffens it, and the linear model's force is biased high."});
     }
@@ -581,7 +720,7 @@ Status IdentifyFromModes(const model::Member& member, const ModalIdentification&
     if (Status s = model_at(x_reg, &start_modes, pairing_modes); !s.ok()) {
       return Status::InvalidArgument(
           "the member model cannot be evaluated at the pinned-beam regression start (N = " +
-          Fmt(ctx.N(x_reg.data())) + " N): " + s.message);
+          FormatNumber(ctx.N(x_reg.data())) + " N): " + s.message);
     }
   }
   std::vector<double> f_measured;
@@ -595,8 +734,8 @@ Status IdentifyFromModes(const model::Member& member, const ModalIdentification&
     return Status::InvalidArgument(
         "none of the " + std::to_string(measured.size()) +
         " identified modes pairs with a bending mode of the member model (lowest " +
-        Fmt(measured[0].frequency_hz) + " Hz, model fundamental " + Fmt(start_modes.modes[0].frequency_hz) +
-        " Hz at the regression start)");
+        FormatNumber(measured[0].frequency_hz) + " Hz, model fundamental " +
+        FormatNumber(start_modes.modes[0].frequency_hz) + " Hz at the regression start)");
   }
 
   // Mesh check: the frequency change of every paired mode on doubling the
@@ -624,9 +763,10 @@ Status IdentifyFromModes(const model::Member& member, const ModalIdentification&
       if (worst <= options.max_mesh_error_sigma) return changed;
       if (refine == kMaxMeshRefinements) {
         if (!mesh_caution) {
-          est.cautions.push_back({"mesh-error", "The finite-element discretisation error (" + Fmt(worst, 2) +
+          est.cautions.push_back({"mesh-error", "The finite-element discretisation error (" +
+                                                    FormatNumber(worst, 2) +
                                                     " frequency stds) could not be brought below " +
-                                                    Fmt(options.max_mesh_error_sigma, 2) + " std."});
+                                                    FormatNumber(options.max_mesh_error_sigma, 2) + " std."});
         }
         mesh_caution = true;
         return changed;
@@ -686,9 +826,9 @@ Status IdentifyFromModes(const model::Member& member, const ModalIdentification&
     outcomes.clear();
     best = FitOutcome{};
     for (const Vec4& s : starts) {
-      FitOutcome o = RunFit(ctx, s, false, options);
+      FitOutcome o = RunFit(ctx, s, false, options, best.usable ? &best : nullptr);
       outcomes.push_back(o);
-      if (o.usable && o.cost < best.cost) best = o;
+      if (o.usable && !o.arrived && o.cost < best.cost) best = o;
     }
   };
   run_starts();
@@ -850,6 +990,17 @@ Status IdentifyFromModes(const model::Member& member, const ModalIdentification&
       for (int it = 0; it < kMaxProfileSteps; ++it) {
         Vec4 xs = xa;
         xs[0] = xa[0] + sign * step;
+        // Start the others at their conditional mean given N under the
+        // Gauss-Newton (Wald) approximation, x_j + cov(j, N) / cov(N, N) dN
+        // (the regression of x_j on N): near the profile's optimum, so the
+        // held-N fit needs few iterations; fixities stay in their range.
+        if (have_cov && cov(0, 0) > 0.0) {
+          for (int j = 1; j < 4; ++j) {
+            if (!free_block[j]) continue;
+            xs[j] += cov(j, 0) / cov(0, 0) * (xs[0] - xa[0]);
+            if (j >= 2) xs[j] = std::clamp(xs[j], kFixityOffset, kFixityOffset + 1.0);
+          }
+        }
         FitOutcome o = RunFit(ctx, xs, true, options);
         if (!o.usable) {
           step *= 0.5;
@@ -900,9 +1051,9 @@ Status IdentifyFromModes(const model::Member& member, const ModalIdentification&
                                  false, !unidentified[1]};
     if (s > kPriorDominatedShare * options.ei_prior_sigma_ln) {
       est.cautions.push_back(
-          {"stiffness-from-prior", "The bending stiffness is determined mainly by its prior (nominal " +
-                                       Fmt(ei_nominal) + " N m^2 +- " +
-                                       Fmt(100 * options.ei_prior_sigma_ln, 2) + " %), not by the record."});
+          {"stiffness-from-prior",
+           "The bending stiffness is determined mainly by its prior (nominal " + FormatNumber(ei_nominal) +
+               " N m^2 +- " + FormatNumber(100 * options.ei_prior_sigma_ln, 2) + " %), not by the record."});
     }
   }
 
@@ -983,7 +1134,8 @@ Status IdentifyFromModes(const model::Member& member, const ModalIdentification&
   }
   for (size_t i = 0; i < est.modes.size(); ++i) {
     if (est.modes[i].paired) continue;
-    est.cautions.push_back({"unpaired-mode", "The mode at " + Fmt(est.modes[i].measured.frequency_hz) +
+    est.cautions.push_back({"unpaired-mode", "The mode at " +
+                                                 FormatNumber(est.modes[i].measured.frequency_hz) +
                                                  " Hz pairs with no bending mode of the member model and was "
                                                  "not used."});
   }
@@ -998,14 +1150,14 @@ Status IdentifyFromModes(const model::Member& member, const ModalIdentification&
   at_bound(est.fixity_left, "left");
   at_bound(est.fixity_right, "right");
   if (n_hi - n_lo > kWideIntervalShare * std::abs(n_hat)) {
-    est.cautions.push_back({"wide-interval", "The 95 % interval of the axial force [" + Kn(n_lo) + ", " +
-                                                 Kn(n_hi) + "] is wider than " +
-                                                 Fmt(100 * kWideIntervalShare, 2) + " % of the estimate " +
-                                                 Kn(n_hat) + "."});
+    est.cautions.push_back({"wide-interval", "The 95 % interval of the axial force [" + FormatKn(n_lo) +
+                                                 ", " + FormatKn(n_hi) + "] is wider than " +
+                                                 FormatNumber(100 * kWideIntervalShare, 2) +
+                                                 " % of the estimate " + FormatKn(n_hat) + "."});
   }
   if (reduced_chi2 > kPoorFitReducedChi2) {
     est.cautions.push_back({"poor-fit", "The model reproduces the modes poorly (reduced chi-square " +
-                                            Fmt(reduced_chi2, 3) +
+                                            FormatNumber(reduced_chi2, 3) +
                                             "); the intervals were widened accordingly, "
                                             "but the beam model may not describe this member."});
   }
@@ -1013,30 +1165,7 @@ Status IdentifyFromModes(const model::Member& member, const ModalIdentification&
     est.cautions.push_back(
         {"not-converged", "The best fit stopped at its iteration limit before converging."});
   }
-  if (n_hat < 0.0) {
-    const double share = est.critical_compression_n > 0.0 ? -n_hat / est.critical_compression_n : 1.0;
-    if (share > kNearBucklingShare) {
-      est.cautions.push_back({"compression-near-buckling",
-                              "The member is in compression at " + Fmt(100 * share, 3) +
-                                  " % of its critical load " + Kn(est.critical_compression_n) + "."});
-    } else {
-      est.cautions.push_back({"compression", "The member is in compression (" + Kn(n_hat) + ")."});
-    }
-  }
-  if (member.Slenderness(plane) < kStockySlenderness) {
-    est.cautions.push_back(
-        {"stocky-member", "Slenderness L/r = " + Fmt(member.Slenderness(plane), 3) + " is below " +
-                              Fmt(kStockySlenderness, 3) +
-                              ": shear and rotary inertia, ignored by the model, matter."});
-  }
-  if (member.design_axial_force_n && *member.design_axial_force_n != 0.0) {
-    const double d = *member.design_axial_force_n;
-    if (std::abs(n_hat - d) > kDesignForceDeviationShare * std::abs(d)) {
-      est.cautions.push_back(
-          {"far-from-design-force", "The estimate " + Kn(n_hat) + " differs from the design force " + Kn(d) +
-                                        " by more than " + Fmt(100 * kDesignForceDeviationShare, 2) + " %."});
-    }
-  }
+  AppendForceCautions(member, plane, n_hat, est.critical_compression_n, &est.cautions);
 
   est.fit.forward_model_calls = ctx.calls;
   est.fit.seconds = std::chrono::duration<double>(std::chrono::steady_clock::now() - t0).count();

@@ -60,8 +60,6 @@ namespace taut::estimation {
 inline constexpr double kMinRelativeFrequencyStd = 1e-4;
 // Fixity within this distance of 0 or 1 is reported as "at a bound".
 inline constexpr double kFixityBoundDistance = 0.01;
-// Interval width (upper - lower) above this share of the value: caution.
-inline constexpr double kWideIntervalShare = 0.20;
 // Reduced chi-square above this: poor-fit caution.
 inline constexpr double kPoorFitReducedChi2 = 3.0;
 // Compression |N| above this share of the critical load: near-buckling caution.
@@ -120,7 +118,14 @@ struct EstimatedMode {
   double mac = 0.0;                 // measured vs model shape at the in-plane channels
 };
 
+// FitSummary::model values (FORMATS.md section 3 `fit.model`).
+inline constexpr const char* kFitModelModal = "modal";          // tangent modal model fitted to modes
+inline constexpr const char* kFitModelTransient = "transient";  // nonlinear transient fitted to a decay
+
 struct FitSummary {
+  // kFitModelModal or kFitModelTransient: which fit the reported N, EI and
+  // fixities come from (estimation/identify_record.h chooses).
+  std::string model = kFitModelModal;
   bool converged = false;
   double cost = 0.0;          // Ceres cost 1/2 sum r^2 at the best start
   double reduced_chi2 = 0.0;  // 2 cost / degrees of freedom (0 when dof <= 0)
@@ -133,6 +138,38 @@ struct FitSummary {
   long profile_model_calls = 0;               // of which in the profile-likelihood interval
   int elements = 0;                           // mesh used
   std::string axial_force_interval = "wald";  // or "profile" (the wider one)
+};
+
+// The time-domain fit behind a "transient" estimate (identify_record.h).
+struct TransientSummary {
+  double window_start_s = 0.0;  // fitted window, from the record's first row
+  double window_end_s = 0.0;
+  double sample_rate_hz = 0.0;  // of the fitted window (after low-pass and decimation)
+  double low_pass_hz = 0.0;     // pass-band edge of the low-pass applied to the record (0 = none)
+  int modes = 0;                // linear modes in the fitted initial state
+  int model_runs = 0;           // transient model runs (fit and covariance)
+  double residual_rms_m_s2 = 0.0;
+  double signal_rms_m_s2 = 0.0;
+  double damping_ratio = 0.0;                // fitted Rayleigh ratio at modes 1 and 2
+  double axial_force_swing_n = 0.0;          // max - min of N(t) over the fitted window
+  std::vector<double> modal_displacement_m;  // fitted initial modal amplitudes (max |w| = 1 shapes)
+  // The modal (linear) estimate of N the fit started from, kept so that the
+  // amplitude bias of the linear reading is visible.
+  double modal_axial_force_n = 0.0;
+};
+
+// The amplitude check that chooses the model (identify_record.h): the
+// nonlinear (membrane-stretching) frequency shift of the dominant mode at
+// the record's amplitude, against that mode's frequency std.
+struct AmplitudeCheck {
+  int order = 0;                    // bending order of the mode checked (0: no check made)
+  double frequency_hz = 0.0;        // its measured frequency
+  double frequency_std_hz = 0.0;    // its std (with the kMinRelativeFrequencyStd floor)
+  double amplitude_m = 0.0;         // displacement amplitude used (peak or RMS, see `basis`)
+  double frequency_shift_hz = 0.0;  // predicted upward shift at that amplitude
+  double force_bias_n = 0.0;        // force a linear model adds to explain the shift
+  std::string basis;                // "free-decay peak" or "ambient RMS (upper bound)"
+  bool exceeds_std = false;         // frequency_shift_hz > frequency_std_hz
 };
 
 struct Estimate {
@@ -150,6 +187,8 @@ struct Estimate {
   // "the data cannot separate: N, fixity left".
   std::string identifiability;
   FitSummary fit;
+  std::optional<TransientSummary> transient;  // set when fit.model is "transient"
+  AmplitudeCheck amplitude;                   // set by IdentifyRecord
   Cautions cautions;
   std::string notice;
 };
@@ -164,5 +203,13 @@ struct Estimate {
 // A result with cautions is ok(); kNumerical when every start failed.
 Status IdentifyFromModes(const model::Member& member, const ModalIdentification& modes,
                          const IdentifyOptions& options, Estimate* estimate);
+
+// Appends the cautions that depend only on the member and the estimated
+// force (DESIGN.md "Cautions"): compression (near buckling above
+// kNearBucklingShare of critical_compression_n > 0), a member stockier than
+// kStockySlenderness in `plane`, and a force more than
+// kDesignForceDeviationShare away from the member's design force.
+void AppendForceCautions(const model::Member& member, model::Direction plane, double axial_force_n,
+                         double critical_compression_n, Cautions* cautions);
 
 }  // namespace taut::estimation

@@ -34,6 +34,26 @@ std::vector<double> BlockRms(const Eigen::MatrixXd& y, Eigen::Index block) {
 
 }  // namespace
 
+FreeDecayWindow FindFreeDecay(const Eigen::MatrixXd& y, double fs) {
+  FreeDecayWindow w;
+  w.end = y.rows();
+  if (y.rows() == 0) return w;
+  y.rowwise().squaredNorm().maxCoeff(&w.blow);
+  w.begin = std::min<Eigen::Index>(y.rows() - 1, w.blow + std::lround(kImpactGuard_s * fs));
+  const Eigen::Index block = std::max<Eigen::Index>(1, std::lround(fs));  // 1 s
+  const std::vector<double> rms = BlockRms(y.middleRows(w.begin, y.rows() - w.begin), block);
+  if (!rms.empty()) {
+    w.noise_rms_m_s2 = rms.back();
+    std::size_t b = 0;
+    while (b < rms.size() && rms[b] > kDecayNoiseRatio * w.noise_rms_m_s2) ++b;
+    w.decays = b > 0;
+    w.end = std::max(w.begin + std::min<Eigen::Index>(y.rows() - w.begin, 10 * block),
+                     w.begin + static_cast<Eigen::Index>(b) * block);
+    w.end = std::min(w.end, y.rows());
+  }
+  return w;
+}
+
 std::vector<BackbonePoint> DecayBackbone(const Eigen::VectorXd& x, double fs, double f_hz, double lo_hz,
                                          double hi_hz, double noise_floor) {
   std::vector<BackbonePoint> out;
@@ -112,21 +132,12 @@ Status IdentifyModes(const Record& record, const ModalIdOptions& o, ModalIdentif
   Eigen::Index decay_begin = 0, decay_end = y.rows();
   double noise_rms = 0.0;
   if (impact) {
-    Eigen::Index blow = 0;
-    y.rowwise().squaredNorm().maxCoeff(&blow);
-    decay_begin = std::min<Eigen::Index>(y.rows() - 1, blow + std::lround(kImpactGuard_s * fs));
-    const Eigen::Index block = std::max<Eigen::Index>(1, std::lround(fs));  // 1 s
-    const std::vector<double> rms = BlockRms(y.middleRows(decay_begin, y.rows() - decay_begin), block);
-    if (!rms.empty()) {
-      noise_rms = rms.back();
-      std::size_t b = 0;
-      while (b < rms.size() && rms[b] > kDecayNoiseRatio * noise_rms) ++b;
-      decay_end = std::max(decay_begin + std::min<Eigen::Index>(y.rows() - decay_begin, 10 * block),
-                           decay_begin + static_cast<Eigen::Index>(b) * block);
-      decay_end = std::min(decay_end, y.rows());
-    }
+    const FreeDecayWindow w = FindFreeDecay(y, fs);
+    decay_begin = w.begin;
+    decay_end = w.end;
+    noise_rms = w.noise_rms_m_s2;
     ImpactDecay d;
-    d.blow_time_s = blow / fs;
+    d.blow_time_s = w.blow / fs;
     d.decay_start_s = decay_begin / fs;
     d.decay_end_s = decay_end / fs;
     out->impact = d;

@@ -85,6 +85,23 @@ struct ModalIdOptions {
 // the SSI lags.
 Status IdentifyModes(const Record& record, const ModalIdOptions& options, ModalIdentification* out);
 
+// The free-decay window of a record after its largest sample (step 2 of the
+// file comment): y holds trend-removed samples (rows = samples, cols =
+// channels, m/s^2) at fs Hz.
+struct FreeDecayWindow {
+  Eigen::Index blow = 0;        // row of the largest |a| over all channels
+  Eigen::Index begin = 0;       // blow + kImpactGuard_s
+  Eigen::Index end = 0;         // one past the last row of the window
+  double noise_rms_m_s2 = 0.0;  // RMS of the last whole second of the record (all channels)
+  // The first second after `begin` has an RMS above kDecayNoiseRatio times
+  // the last second's: the record holds a decay, not a stationary response.
+  bool decays = false;
+};
+// At least 10 s long when the record allows (a short decay still gives
+// SSI-COV enough lags), extended while the 1-s RMS stays above
+// kDecayNoiseRatio x noise_rms_m_s2.
+FreeDecayWindow FindFreeDecay(const Eigen::MatrixXd& y, double sample_rate_hz);
+
 // The backbone of a free decay x (one channel, trend removed) around a mode
 // in [lo_hz, hi_hz]: windows of kBackboneWindowCycles periods of f_hz,
 // edges dropped, stopping where the envelope falls below noise_floor_m_s2

@@ -20,10 +20,20 @@ std::vector<Eigen::MatrixXd> Correlations(const Eigen::MatrixXd& y, Eigen::Index
                                           int kmax) {
   std::vector<Eigen::MatrixXd> R(static_cast<std::size_t>(kmax + 1));
   const Eigen::Index len = end - begin;
+  const Eigen::Index l = y.cols();
+  // One dot product of two contiguous column segments per entry: with a
+  // few channels and long records this is several times cheaper than the
+  // (l x m) (m x l) matrix product, whose packing of the m x l operands
+  // dominated (callgrind).
   for (int k = 0; k <= kmax; ++k) {
     const Eigen::Index m = len - k;
-    R[static_cast<std::size_t>(k)].noalias() =
-        y.middleRows(begin + k, m).transpose() * y.middleRows(begin, m) / static_cast<double>(m);
+    Eigen::MatrixXd& r = R[static_cast<std::size_t>(k)];
+    r.resize(l, l);
+    for (Eigen::Index a = 0; a < l; ++a) {
+      for (Eigen::Index b = 0; b < l; ++b) {
+        r(a, b) = y.col(a).segment(begin + k, m).dot(y.col(b).segment(begin, m)) / static_cast<double>(m);
+      }
+    }
   }
   return R;
 }
@@ -49,6 +59,9 @@ void PolesAtOrder(const Eigen::MatrixXd& O, int l, int n, double fs, std::vector
   const Eigen::MatrixXd C = O.topRows(l).leftCols(n);
   Eigen::EigenSolver<Eigen::MatrixXd> es(A, true);
   if (es.info() != Eigen::Success) return;
+  // eigenvectors() assembles the whole complex matrix on every call: once.
+  const Eigen::MatrixXcd psi = es.eigenvectors();
+  const Eigen::MatrixXcd c_complex = C.cast<std::complex<double>>();
   for (Eigen::Index k = 0; k < n; ++k) {
     const std::complex<double> mu = es.eigenvalues()[k];
     if (mu.imag() <= 0.0 || std::abs(mu) == 0.0) continue;  // one of each pair; real poles are not modes
@@ -57,7 +70,7 @@ void PolesAtOrder(const Eigen::MatrixXd& O, int l, int n, double fs, std::vector
     p.order = n;
     p.frequency_hz = std::abs(lambda) / (2.0 * std::numbers::pi);
     p.damping_ratio = -lambda.real() / std::abs(lambda);
-    p.shape = C.cast<std::complex<double>>() * es.eigenvectors().col(k);
+    p.shape = c_complex * psi.col(k);
     if (all_pairs) all_pairs->push_back(p);
     out->push_back(std::move(p));
   }

@@ -85,9 +85,8 @@ inline constexpr int kStepsPerPeriod = 100;
 // "poor-fit" when the residual RMS exceeds this share of the signal RMS.
 inline constexpr double kLargeAmplitudeForceShare = 0.01;
 inline constexpr double kPoorFitRmsShare = 0.2;
-// "wide-interval" when the 95 % half-width of N exceeds this share of |N|
-// (DESIGN.md "Cautions").
-inline constexpr double kWideIntervalShare = 0.2;
+// "wide-interval" when the 95 % interval of N is wider than
+// kWideIntervalShare (cautions.h) of |N|, as in identify.
 // Two-sided 95 % quantile of the standard normal distribution.
 inline constexpr double kZ95 = 1.959963984540054;
 

@@ -23,12 +23,19 @@
 // The lowest modes are found by shift-invert Lanczos (Spectra) with shift 0
 // on the banded LDL^T factor of K_0 = K_T - k_ax g g^T and the rank-one term
 // applied by the Sherman-Morrison formula, so a solve costs O(n) rather than
-// the O(n^3) of a dense decomposition. Positive definiteness of K_0 (all
+// the O(n^3) of a dense decomposition. The pencil is brought to standard
+// form with the banded Cholesky factor M = L L^T (computed once per model):
+// the operator is L^T K_T^{-1} L, whose eigenvalues are 1/omega^2 and whose
+// orthonormal eigenvectors y give phi = L^{-T} y with phi^T M phi = 1
+// (Parlett, The Symmetric Eigenvalue Problem, 1998, sec. 15.2). Unlike the
+// generalised Lanczos it needs no M-inner products, which cost most of a
+// solve (two sparse products per Lanczos step). Positive definiteness of K_0 (all
 // pivots of the LDL^T factor > 0) is the stability check: a member at or
 // beyond its buckling load returns Status::kBuckled, never NaN frequencies.
 #pragma once
 
 #include <Eigen/Core>
+#include <memory>
 #include <optional>
 #include <string>
 #include <vector>
@@ -54,6 +61,7 @@ struct Mode {
   // is positive.
   std::vector<double> shape_at_sensors;
   Eigen::VectorXd w_nodes;  // w at every mesh node (zeros at the ends), same normalisation
+  Eigen::VectorXd dofs;     // the whole vector on the free DOFs (beam_fe.h order), same normalisation
 };
 
 struct ModalResult {
@@ -83,6 +91,12 @@ class ModalModel {
   // num_modes; kBuckled when K_0 is not positive definite; kNumerical when
   // the eigen-solver does not converge.
   Status Solve(const ModalParameters& params, int num_modes, ModalResult* result) const;
+  // As above, with the Lanczos iteration started from the modes of `near`
+  // (a result of this model at nearby parameters, e.g. the previous point
+  // of a fit; null = the default start). The modes agree with those of a
+  // cold start to the solver tolerance; a near start saves restarts.
+  Status Solve(const ModalParameters& params, int num_modes, ModalResult* result,
+               const ModalResult* near) const;
 
   // Critical compression [N, > 0]: the smallest P for which
   // EI K_b + k_l S_l + k_r S_r - P G is singular (Euler load of the member
@@ -98,6 +112,10 @@ class ModalModel {
   Direction direction_;
   Mesh mesh_;
   BeamMatrices matrices_;
+  // The unit matrices as bands and the Cholesky factor of M (modal.cpp);
+  // immutable after construction, shared by copies.
+  struct Bands;
+  std::shared_ptr<const Bands> bands_;
 };
 
 // One-shot convenience: builds a ModalModel and solves it.

@@ -1,13 +1,14 @@
 // `taut identify`: member + record -> axial force, bending stiffness and end
-// fixity with intervals (record reader -> modal identification -> model
-// updating), as a short table or the FORMATS.md section 3 JSON object.
+// fixity with intervals (record reader -> estimation/identify_record.h: modal
+// identification -> model updating -> for free decays and large amplitudes
+// the nonlinear time-domain fit), as a short table or the FORMATS.md
+// section 3 JSON object.
 #include <iomanip>
 #include <nlohmann/json.hpp>
 #include <ostream>
 #include <sstream>
 
-#include "estimation/identify.h"
-#include "estimation/modal_id.h"
+#include "estimation/identify_record.h"
 #include "estimation/record.h"
 #include "server/cli.h"
 #include "server/estimate_json.h"
@@ -95,10 +96,17 @@ void PrintTable(std::ostream& out, const model::Member& member, const std::strin
     }
     out << "\n";
   }
-  out << "\n  fit: " << (e.fit.converged ? "converged" : "NOT converged") << ", reduced chi-square "
-      << Sig(e.fit.reduced_chi2, 3) << ", " << e.fit.starts << " starts (" << e.fit.starts_at_best
-      << " at the best), " << e.fit.forward_model_calls << " model solves, " << Fixed(e.fit.seconds, 3)
-      << " s\n  " << e.identifiability << "\n";
+  out << "\n  fit: " << e.fit.model << " model, " << (e.fit.converged ? "converged" : "NOT converged")
+      << ", reduced chi-square " << Sig(e.fit.reduced_chi2, 3) << ", " << e.fit.starts << " starts ("
+      << e.fit.starts_at_best << " at the best), " << e.fit.forward_model_calls << " model solves, "
+      << Fixed(e.fit.seconds, 3) << " s\n";
+  if (e.transient) {
+    out << "  time-domain fit of " << Fixed(e.transient->window_start_s, 2) << ".."
+        << Fixed(e.transient->window_end_s, 2) << " s, " << e.transient->modes << " mode(s), "
+        << e.transient->model_runs << " transient runs; the linear modal fit gave "
+        << Fixed(e.transient->modal_axial_force_n / 1000.0, 2) << " kN\n";
+  }
+  out << "  " << e.identifiability << "\n";
   if (!e.cautions.empty()) {
     out << "\ncautions:\n";
     for (const auto& c : e.cautions) out << "  - " << c.code << ": " << c.message << "\n";
@@ -121,13 +129,8 @@ int RunIdentify(const IdentifyCliOptions& o, std::ostream& out, std::ostream& er
     err << "taut identify: " << s.message << "\n";
     return 1;
   }
-  estimation::ModalIdentification modes;
-  if (Status s = estimation::IdentifyModes(record, estimation::ModalIdOptions{}, &modes); !s.ok()) {
-    err << "taut identify: " << o.record_path << ": " << s.message << "\n";
-    return 1;
-  }
   estimation::Estimate estimate;
-  if (Status s = estimation::IdentifyFromModes(member, modes, estimation::IdentifyOptions{}, &estimate);
+  if (Status s = estimation::IdentifyRecord(member, record, estimation::IdentifyRecordOptions{}, &estimate);
       !s.ok()) {
     err << "taut identify: " << o.record_path << ": " << s.message << "\n";
     return 1;

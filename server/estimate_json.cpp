@@ -51,7 +51,7 @@ nlohmann::json EstimateToJson(const estimation::Estimate& e) {
                                      {"shape", Shape(e, id)}});
     }
   }
-  j["fit"] = {{"model", "modal"},
+  j["fit"] = {{"model", e.fit.model},
               {"converged", e.fit.converged},
               {"cost", Number(e.fit.cost)},
               {"reduced_chi2", Number(e.fit.reduced_chi2)},
@@ -64,6 +64,34 @@ nlohmann::json EstimateToJson(const estimation::Estimate& e) {
               {"elements", e.fit.elements},
               {"degrees_of_freedom", e.fit.degrees_of_freedom},
               {"axial_force_interval", e.fit.axial_force_interval}};
+  if (e.transient) {
+    const auto& t = *e.transient;
+    nlohmann::json q = nlohmann::json::array();
+    for (double v : t.modal_displacement_m) q.push_back(Number(v));
+    j["fit"]["transient"] = {
+        {"window_s", nlohmann::json::array({Number(t.window_start_s), Number(t.window_end_s)})},
+        {"sample_rate_hz", Number(t.sample_rate_hz)},
+        {"low_pass_hz", Number(t.low_pass_hz)},
+        {"modes", t.modes},
+        {"model_runs", t.model_runs},
+        {"residual_rms_m_s2", Number(t.residual_rms_m_s2)},
+        {"signal_rms_m_s2", Number(t.signal_rms_m_s2)},
+        {"damping_ratio", Number(t.damping_ratio)},
+        {"axial_force_swing_n", Number(t.axial_force_swing_n)},
+        {"modal_displacement_m", q},
+        {"modal_axial_force_n", Number(t.modal_axial_force_n)}};
+  }
+  if (e.amplitude.order > 0) {
+    const auto& a = e.amplitude;
+    j["amplitude_check"] = {{"order", a.order},
+                            {"frequency_hz", Number(a.frequency_hz)},
+                            {"frequency_std_hz", Number(a.frequency_std_hz)},
+                            {"amplitude_m", Number(a.amplitude_m)},
+                            {"basis", a.basis},
+                            {"frequency_shift_hz", Number(a.frequency_shift_hz)},
+                            {"force_bias_n", Number(a.force_bias_n)},
+                            {"exceeds_std", a.exceeds_std}};
+  }
   j["plane"] = model::ToString(e.direction);
   j["identifiability"] = e.identifiability;
   j["critical_compression_n"] = Number(e.critical_compression_n);

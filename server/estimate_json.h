@@ -11,7 +11,14 @@
 // modes that pair with no model mode; no order, no model values), and in
 // "fit": "starts_at_best", "forward_model_calls", "elements",
 // "degrees_of_freedom", "axial_force_interval" ("wald" or "profile": which
-// interval was the wider and is reported).
+// interval was the wider and is reported), and for fit.model "transient"
+// "fit.transient" (window_s [start, end] from the record's first row,
+// sample_rate_hz and low_pass_hz of the fitted window, modes, model_runs,
+// residual_rms_m_s2, signal_rms_m_s2, damping_ratio, axial_force_swing_n,
+// modal_displacement_m, modal_axial_force_n: the linear estimate the fit
+// started from); "amplitude_check" (order, frequency_hz, frequency_std_hz,
+// amplitude_m, basis, frequency_shift_hz, force_bias_n, exceeds_std: the
+// check that chooses the model, estimation/identify_record.h).
 #pragma once
 
 #include <nlohmann/json.hpp>

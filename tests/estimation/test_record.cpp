@@ -5,6 +5,9 @@
 #include <gtest/gtest.h>
 
 #include <cmath>
+#include <cstdio>
+#include <cstdlib>
+#include <cstring>
 #include <random>
 #include <sstream>
 #include <string>
@@ -86,6 +89,42 @@ TEST(RecordReader, ValidRecord) {
   EXPECT_NEAR(r.samples(1, 0), std::sin(2 * M_PI * 7.0 * 0.01), 0.05);
   EXPECT_FALSE(HasCaution(r, "single-channel"));
   EXPECT_FALSE(HasCaution(r, "low-sample-rate"));  // 100 Hz is not below kLowSampleRate_hz
+}
+
+// Every cell value is the double the C library's strtod (ISO C 7.22.1.3:
+// correctly rounded for decimal input, glibc) gives for the same text:
+// the reader's fast decimal path (Clinger 1990) must not change a bit.
+// Values in the formats gateways write (%.7g, %.9f, %.17g, exponents at the
+// fast path's limits 1e+-22 and beyond, leading zeros, signs), exact
+// equality.
+TEST(RecordReader, CellValuesEqualStrtod) {
+  std::mt19937_64 rng(99);
+  std::normal_distribution<double> g(0.0, 1.0);
+  std::uniform_int_distribution<int> e(-30, 30);
+  std::vector<std::string> cells;
+  const char* formats[] = {"%.7g", "%.9f", "%.17g", "%.3e", "%.16e"};
+  for (int k = 0; k < kRows; ++k) {
+    char buf[64];
+    const double x = g(rng) * std::pow(10.0, e(rng));
+    std::snprintf(buf, sizeof buf, formats[k % 5], x);
+    cells.push_back(buf);
+  }
+  cells[0] = "-0.0";
+  cells[1] = "007.50";
+  cells[2] = "1e22";
+  cells[3] = "9007199254740993";  // 2^53 + 1: beyond the fast path, rounds to even
+  cells[4] = "-4.5E-22";
+  cells[5] = "123456789012345678901234567890e-25";
+  std::ostringstream o;
+  o << "time_s,a1\n";
+  for (int k = 0; k < kRows; ++k) o << k / kFs << "," << cells[k] << "\n";
+  Record r;
+  ASSERT_TRUE(Parse(o.str(), &r).ok());
+  for (int k = 0; k < kRows; ++k) {
+    const double expected = std::strtod(cells[k].c_str(), nullptr);
+    ASSERT_EQ(std::memcmp(&r.samples(k, 0), &expected, sizeof(double)), 0)
+        << cells[k] << ": read " << r.samples(k, 0) << ", strtod " << expected;
+  }
 }
 
 TEST(RecordReader, CrLfAndTrailingBlankLinesAccepted) {

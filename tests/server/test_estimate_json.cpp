@@ -79,5 +79,40 @@ TEST(EstimateJson, FollowsFormatsSection3) {
   EXPECT_EQ(j["notice"], estimation::StandingNotice());
 }
 
+// A time-domain estimate keeps every key of the contract and says which
+// model it comes from (FORMATS.md section 3 `fit.model`: "modal" or
+// "transient"), with the fitted window beside the contract keys.
+TEST(EstimateJson, TransientEstimateKeepsTheContractKeys) {
+  estimation::Estimate e = Example();
+  e.fit.model = estimation::kFitModelTransient;
+  estimation::TransientSummary t;
+  t.window_start_s = 0.31;
+  t.window_end_s = 5.9;
+  t.modes = 3;
+  t.model_runs = 400;
+  t.modal_displacement_m = {0.012, -0.001, 0.0004};
+  t.modal_axial_force_n = 31000.0;
+  e.transient = t;
+  e.amplitude.order = 1;
+  e.amplitude.frequency_shift_hz = 0.1;
+  e.amplitude.exceeds_std = true;
+  const nlohmann::json j = EstimateToJson(e);
+  for (const char* key :
+       {"axial_force_n", "bending_stiffness_nm2", "end_fixity", "modes", "fit", "cautions", "notice"}) {
+    EXPECT_TRUE(j.contains(key)) << key;
+  }
+  for (const char* key : {"value", "std", "ci95"}) EXPECT_TRUE(j["axial_force_n"].contains(key)) << key;
+  EXPECT_EQ(j["fit"]["model"], "transient");
+  for (const char* key : {"converged", "cost", "reduced_chi2", "iterations", "starts", "seconds"}) {
+    EXPECT_TRUE(j["fit"].contains(key)) << key;
+  }
+  EXPECT_EQ(j["fit"]["transient"]["window_s"], nlohmann::json::array({0.31, 5.9}));
+  EXPECT_EQ(j["fit"]["transient"]["modes"], 3);
+  EXPECT_EQ(j["fit"]["transient"]["modal_axial_force_n"], 31000.0);
+  EXPECT_EQ(j["amplitude_check"]["exceeds_std"], true);
+  // The modal example carries no transient block.
+  EXPECT_FALSE(EstimateToJson(Example())["fit"].contains("transient"));
+}
+
 }  // namespace
 }  // namespace taut::server

@@ -301,45 +301,53 @@ TEST_F(ServiceTest, SigkillWithQueuedAndRunningJobsLosesNothing) {
     std::string sha;
   };
   std::vector<Sent> sent;
+  // 300 s records, made before the uploads so that these follow each other
+  // quickly: the kill then finds one job running and others queued.
+  std::vector<std::string> csvs;
   for (unsigned i = 0; i < 8; ++i) {
-    const std::string csv =
-        HangerCsv(hanger_, 90000, "2026-11-2" + std::to_string(i) + "T06:00:00Z", 8, 40 + i);
+    csvs.push_back(
+        HangerCsv(hanger_, 90000, "2026-11-2" + std::to_string(i) + "T06:00:00Z", 8, 40 + i, 300.0));
+  }
+  for (const auto& csv : csvs) {
     const json r = Upload(member, csv);
     sent.push_back({r["record_id"], r["job_id"], Sha256Hex(csv)});
   }
-  // Wait (bounded) until a job is running and others still queued, then kill.
+  // Wait (bounded) until a job is running, then kill at once.
   auto c = Client();
   bool running = false;
-  int queued = 0;
   for (int k = 0; k < 400 && !running; ++k) {
-    queued = 0;
     for (const auto& s : sent) {
-      const std::string st = json::parse(c.Get("/v1/jobs/" + std::to_string(s.job))->body)["state"];
-      running |= st == "running";
-      queued += st == "queued";
+      running |= json::parse(c.Get("/v1/jobs/" + std::to_string(s.job))->body)["state"] == "running";
     }
     if (!running) std::this_thread::sleep_for(5ms);
   }
   ASSERT_TRUE(running);
-  ASSERT_GT(queued, 0);
   const int status = serve_.Kill(SIGKILL);
   ASSERT_TRUE(WIFSIGNALED(status) && WTERMSIG(status) == SIGKILL);
 
-  // Every acknowledged record is in the file with the hash of its upload
-  // and samples that match their stored SHA-256 (FIPS 180-4 via OpenSSL).
+  // The file as the kill left it: a job running and jobs queued (the case
+  // under test), every acknowledged record with the hash of its upload and
+  // samples matching their stored SHA-256 (FIPS 180-4 via OpenSSL).
   {
     storage::Database db;
     ASSERT_TRUE(db.Open(db_).ok());
     storage::Repository repo(db);
     storage::Organisation org;
     ASSERT_TRUE(repo.FindOrganisationByName("Oskerton bridge works", &org).ok());
+    int left_running = 0, left_queued = 0;
     for (const auto& s : sent) {
       storage::Record r;
       ASSERT_TRUE(repo.GetRecord(org.id, s.record, &r).ok()) << s.record;
       EXPECT_EQ(r.content_sha256, s.sha);
       EXPECT_EQ(Sha256Hex(storage::EncodeSamples(r.samples)), r.samples_sha256);
-      EXPECT_EQ(r.sample_count, 12800);  // 100 s at 128 Hz
+      EXPECT_EQ(r.sample_count, 38400);  // 300 s at 128 Hz
+      storage::Job job;
+      ASSERT_TRUE(repo.GetJob(org.id, s.job, &job).ok());
+      left_running += job.state == storage::JobState::kRunning;
+      left_queued += job.state == storage::JobState::kQueued;
     }
+    ASSERT_EQ(left_running, 1);
+    ASSERT_GT(left_queued, 0);
   }
   // After a restart every job finishes, the interrupted one included.
   StartServe(2);
@@ -456,11 +464,13 @@ TEST_F(ServiceTest, ForceLossRaisesAnAlertWithinThreeEstimatesAndTheWebhookGetsI
 TEST_F(ServiceTest, SigtermFinishesRunningJobsAndExitsCleanly) {
   StartServe(1);
   const auto member = CreateHanger();
-  std::vector<std::int64_t> jobs;
+  std::vector<std::string> csvs;  // made first, so that the uploads come quickly
   for (unsigned i = 0; i < 4; ++i) {
-    jobs.push_back(Upload(member, HangerCsv(hanger_, 90000, "2026-11-1" + std::to_string(i) + "T06:00:00Z", 8,
-                                            60 + i))["job_id"]);
+    csvs.push_back(
+        HangerCsv(hanger_, 90000, "2026-11-1" + std::to_string(i) + "T06:00:00Z", 8, 60 + i, 300.0));
   }
+  std::vector<std::int64_t> jobs;
+  for (const auto& csv : csvs) jobs.push_back(Upload(member, csv)["job_id"]);
   auto c = Client();
   bool running = false;
   for (int k = 0; k < 400 && !running; ++k) {
