@@ -245,8 +245,8 @@ void API_Drift2y(benchmark::State& s) {
 void API_FixityHistory2y(benchmark::State& s) {
   ApiGet(s, "/v1/members/" + std::to_string(F().member) + "/fixity/history?from=" + F().from);
 }
-// The first fixity history after a start (the cache of dashboard_data.h
-// empty): a fresh server on the same file for every iteration.
+// The first fixity history after a start (SQLite's page cache of this
+// connection cold): a fresh server on the same file for every iteration.
 void API_FixityHistory2yCold(benchmark::State& state) {
   Fixture& f = F();
   const std::string path = "/v1/members/" + std::to_string(f.member) + "/fixity/history?from=" + f.from;
@@ -267,19 +267,6 @@ void API_FixityHistory2yCold(benchmark::State& state) {
     fresh.Stop();
     state.ResumeTiming();
   }
-}
-// The share of the cold fixity history spent reading result_json (the
-// rest is the per-row GetEstimate): one SAX pass up to end_fixity over a
-// real identification's result, against a full parse of it.
-void Parse_FixitySax(benchmark::State& state) {
-  taut::storage::Estimate e;
-  e.result_json = F().sample_result;
-  for (auto _ : state) benchmark::DoNotOptimize(taut::server::FixityPointJson(e));
-  state.counters["result_bytes"] = static_cast<double>(e.result_json.size());
-}
-void Parse_FullResult(benchmark::State& state) {
-  const std::string text = F().sample_result;
-  for (auto _ : state) benchmark::DoNotOptimize(json::parse(text));
 }
 void API_MemberAlerts(benchmark::State& s) {
   ApiGet(s, "/v1/alerts?member_id=" + std::to_string(F().member));
@@ -343,8 +330,6 @@ BENCHMARK(API_ForceHistory2y)->Unit(benchmark::kMillisecond)->Repetitions(10);
 BENCHMARK(API_Drift2y)->Unit(benchmark::kMillisecond)->Repetitions(10);
 BENCHMARK(API_FixityHistory2y)->Unit(benchmark::kMillisecond)->Repetitions(10);
 BENCHMARK(API_FixityHistory2yCold)->Unit(benchmark::kMillisecond)->Iterations(5)->Repetitions(10);
-BENCHMARK(Parse_FixitySax)->Unit(benchmark::kMicrosecond)->Repetitions(10);
-BENCHMARK(Parse_FullResult)->Unit(benchmark::kMicrosecond)->Repetitions(10);
 BENCHMARK(API_MemberAlerts)->Unit(benchmark::kMillisecond)->Repetitions(10);
 BENCHMARK(API_Me)->Unit(benchmark::kMillisecond)->Repetitions(10);
 BENCHMARK(Page_MemberRoute)->UseManualTime()->Unit(benchmark::kMillisecond)->Iterations(1)->Repetitions(15);

@@ -403,122 +403,19 @@ Status MemberDriftJson(const model::Member& member, const estimation::DriftSetti
 
 // ------------------------------------------------------------ fixity history
 
-namespace {
-
-// SAX handler that builds the value of the top-level key "end_fixity" and
-// stops the parse as soon as that value is complete.
-class EndFixitySax : public nlohmann::json_sax<json> {
- public:
-  bool done() const { return done_; }
-  json& value() { return value_; }
-
-  bool null() override { return Scalar(nullptr); }
-  bool boolean(bool v) override { return Scalar(v); }
-  bool number_integer(number_integer_t v) override { return Scalar(v); }
-  bool number_unsigned(number_unsigned_t v) override { return Scalar(v); }
-  bool number_float(number_float_t v, const string_t&) override { return Scalar(v); }
-  bool string(string_t& v) override { return Scalar(v); }
-  bool binary(binary_t&) override { return Scalar(nullptr); }
-  bool key(string_t& k) override {
-    if (!stack_.empty()) {
-      key_ = k;
-    } else {
-      wanted_ = depth_ == 1 && k == "end_fixity";
-    }
-    return true;
-  }
-  bool start_object(std::size_t) override { return Open(json::object()); }
-  bool start_array(std::size_t) override { return Open(json::array()); }
-  bool end_object() override { return Close(); }
-  bool end_array() override { return Close(); }
-  bool parse_error(std::size_t, const std::string&, const nlohmann::detail::exception&) override {
-    return false;
-  }
-
- private:
-  json* Add(json v) {
-    json& parent = *stack_.back();
-    if (parent.is_array()) {
-      parent.push_back(std::move(v));
-      return &parent.back();
-    }
-    parent[key_] = std::move(v);
-    return &parent[key_];
-  }
-  bool Scalar(json v) {
-    if (!stack_.empty()) {
-      Add(std::move(v));
-    } else if (wanted_) {  // "end_fixity": <scalar>: complete at once
-      value_ = std::move(v);
-      done_ = true;
-      return false;
-    }
-    return true;
-  }
-  bool Open(json container) {
-    ++depth_;
-    if (!stack_.empty()) {
-      stack_.push_back(Add(std::move(container)));
-    } else if (wanted_) {
-      value_ = std::move(container);
-      stack_.push_back(&value_);
-      wanted_ = false;
-    }
-    return true;
-  }
-  bool Close() {
-    --depth_;
-    if (stack_.empty()) return true;
-    stack_.pop_back();
-    if (stack_.empty()) {
-      done_ = true;
-      return false;  // the value is complete: stop reading
-    }
-    return true;
-  }
-
-  int depth_ = 0;
-  bool wanted_ = false, done_ = false;
-  std::string key_;
-  std::vector<json*> stack_;  // path of open containers inside value_ (not owned)
-  json value_;
-};
-
-}  // namespace
-
-json FixityPointJson(const storage::Estimate& estimate) {
-  EndFixitySax sax;
-  json::sax_parse(estimate.result_json, &sax);
-  const json& v = sax.value();
+json FixityPointJson(const storage::Repository::FixityRow& row) {
   json left = nullptr, right = nullptr;
-  if (sax.done() && v.is_object()) {
-    if (v.contains("left") && v["left"].is_object()) left = v["left"];
-    if (v.contains("right") && v["right"].is_object()) right = v["right"];
+  if (!row.end_fixity_json.empty()) {
+    const json v = json::parse(row.end_fixity_json, nullptr, /*allow_exceptions=*/false);
+    if (v.is_object()) {
+      if (v.contains("left") && v["left"].is_object()) left = v["left"];
+      if (v.contains("right") && v["right"].is_object()) right = v["right"];
+    }
   }
-  return {{"estimate_id", estimate.id},
-          {"measured_at", FormatIsoUtc(estimate.measured_at_unix_ms)},
+  return {{"estimate_id", row.estimate_id},
+          {"measured_at", FormatIsoUtc(row.measured_at_unix_ms)},
           {"left", left},
           {"right", right}};
-}
-
-json FixityCache::Point(const storage::Estimate& row, const std::function<void(storage::Estimate*)>& load) {
-  {
-    std::lock_guard<std::mutex> lock(mu_);
-    auto it = entries_.find(row.id);
-    if (it != entries_.end() && it->second.created_at_unix_ms == row.created_at_unix_ms) {
-      return {{"estimate_id", row.id},
-              {"measured_at", FormatIsoUtc(row.measured_at_unix_ms)},
-              {"left", it->second.left},
-              {"right", it->second.right}};
-    }
-  }
-  storage::Estimate full;
-  load(&full);
-  json point = FixityPointJson(full);
-  std::lock_guard<std::mutex> lock(mu_);
-  if (entries_.size() >= kFixityCacheEntries) entries_.clear();
-  entries_[row.id] = Entry{full.created_at_unix_ms, point["left"], point["right"]};
-  return point;
 }
 
 }  // namespace taut::server

@@ -15,11 +15,9 @@
 
 #include <cstdint>
 #include <functional>
-#include <mutex>
 #include <nlohmann/json.hpp>
 #include <optional>
 #include <string>
-#include <unordered_map>
 #include <vector>
 
 #include "estimation/drift.h"
@@ -113,37 +111,9 @@ model::Direction MajorityPlane(const model::Member& member);
 // ---- end fixity history (GET /v1/members/{id}/fixity/history)
 
 // {"estimate_id", "measured_at", "left": q, "right": q} with q the stored
-// quantity ({"value", "std", "ci95"} or {"value", "fixed": true}) or null.
-// Reads result_json with a SAX pass that stops after the top-level
-// "end_fixity" object: the service writes results with sorted keys, so the
-// long "modes" and "notice" are never scanned (the member page asks for
-// hundreds of these at once).
-nlohmann::json FixityPointJson(const storage::Estimate& estimate);
-
-// Fixity points by estimate id, so that the fixity history of a member
-// reads each result_json once per process: storage writes an estimate's
-// result once (CompleteJobWithEstimate) and never changes it, and reading
-// the rows one by one is most of the cost (about 30 us a row: 25 ms for two
-// years of daily estimates, against 3 ms from the cache; bench_dashboard).
-// An entry also keeps the estimate's created_at, so a reused id cannot hit.
-// Thread-safe; bounded: emptied when it reaches kFixityCacheEntries.
-inline constexpr std::size_t kFixityCacheEntries = 200000;  // about 60 MB at most
-
-class FixityCache {
- public:
-  // The FixityPointJson of `row` (a ForceHistory row: id, measured_at and
-  // created_at set, result_json not needed). On a miss calls
-  // load(&estimate) to read the estimate with its result_json (load may
-  // throw; the cache is then unchanged). `load` runs without the lock held.
-  nlohmann::json Point(const storage::Estimate& row, const std::function<void(storage::Estimate*)>& load);
-
- private:
-  struct Entry {
-    std::int64_t created_at_unix_ms = 0;
-    nlohmann::json left, right;
-  };
-  std::mutex mu_;
-  std::unordered_map<storage::Id, Entry> entries_;
-};
+// quantity ({"value", "std", "ci95"} or {"value", "fixed": true}) or null,
+// from a Repository::FixityHistory row (SQLite picks end_fixity out of the
+// stored result, so the long "modes" and "notice" are never read here).
+nlohmann::json FixityPointJson(const storage::Repository::FixityRow& row);
 
 }  // namespace taut::server

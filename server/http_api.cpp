@@ -394,7 +394,6 @@ struct ApiServer::Impl {
   int port = 0;
   bool started = false;
   std::vector<Route> routes;
-  FixityCache fixity_cache;  // the fixity history's parsed results (dashboard_data.h)
 
   void Add(const char* method, const std::string& pattern, Role role, Handler h, bool auth = true) {
     routes.push_back({method, pattern, Segments(pattern), auth, role, h});
@@ -857,16 +856,18 @@ struct ApiServer::Impl {
     if (from > to) Fail(400, "bad-request", "from is after to");
     return {from, to};
   }
-  // A member's estimates in the query's window, one JSON point per row.
-  template <typename PointFn>
-  void SendHistory(Call& c, PointFn point) {
+  // A member's history in the query's window: `read(member, from, to,
+  // &rows)` fetches the rows (a storage range query), `point(row)` makes
+  // one JSON point of each.
+  template <typename Row, typename ReadFn, typename PointFn>
+  void SendHistory(Call& c, ReadFn read, PointFn point) {
     storage::Member m;
     Check(c.repo.GetMember(c.who.organisation_id, c.ids[0], &m));
     const auto [from, to] = HistoryWindow(c);
-    std::vector<storage::Estimate> rows;
-    Check(c.repo.ForceHistory(c.who.organisation_id, c.ids[0], from, to, &rows));
+    std::vector<Row> rows;
+    Check(read(m.id, from, to, &rows));
     json points = json::array();
-    for (const auto& e : rows) points.push_back(point(e));
+    for (const auto& r : rows) points.push_back(point(r));
     SendJson(c.res, 200,
              {{"member_id", m.id},
               {"from", FormatIsoUtc(from)},
@@ -874,7 +875,23 @@ struct ApiServer::Impl {
               {"truncated", rows.size() >= storage::kMaxHistoryRows},
               {"points", points}});
   }
-  void ForceHistory(Call& c) { SendHistory(c, HistoryPointJson); }
+  void ForceHistory(Call& c) {
+    SendHistory<storage::Estimate>(
+        c,
+        [&](Id m, std::int64_t from, std::int64_t to, auto* rows) {
+          return c.repo.ForceHistory(c.who.organisation_id, m, from, to, rows);
+        },
+        HistoryPointJson);
+  }
+  // The end fixities of the stored results (dashboard_data.h).
+  void FixityHistory(Call& c) {
+    SendHistory<storage::Repository::FixityRow>(
+        c,
+        [&](Id m, std::int64_t from, std::int64_t to, auto* rows) {
+          return c.repo.FixityHistory(c.who.organisation_id, m, from, to, rows);
+        },
+        [](const storage::Repository::FixityRow& r) { return FixityPointJson(r); });
+  }
   void Portfolio(Call& c) {
     storage::Structure s;
     Check(c.repo.GetStructure(c.who.organisation_id, c.ids[0], &s));
@@ -970,13 +987,6 @@ struct ApiServer::Impl {
       Fail(500, "internal", "drift of member " + std::to_string(m.id) + ": " + s.message);
     out["member_id"] = m.id;
     SendJson(c.res, 200, out);
-  }
-  void FixityHistory(Call& c) {
-    SendHistory(c, [&](const storage::Estimate& row) {
-      return fixity_cache.Point(row, [&](storage::Estimate* e) {
-        Check(c.repo.GetEstimate(c.who.organisation_id, row.id, e));  // with result_json
-      });
-    });
   }
   void UiRedirect(Call& c) {
     c.res.status = 302;

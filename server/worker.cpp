@@ -10,6 +10,7 @@
 #include "estimation/identify_record.h"
 #include "server/api_json.h"
 #include "server/auth.h"
+#include "server/dashboard_data.h"
 #include "server/estimate_json.h"
 #include "server/iso_time.h"
 #include "server/member_json.h"
@@ -268,25 +269,20 @@ struct WorkerPool::Impl {
     if (StorageStatus s = repo.GetEstimate(organisation_id, estimate_id, &current); !s.ok()) {
       return Log("level=error " + where + ": " + s.message);
     }
-    estimation::DriftSettings settings;
     std::string settings_text;
-    if (StorageStatus s = repo.GetDriftSettings(organisation_id, member_id, &settings_text); s.ok()) {
-      if (Status p = DriftSettingsFromJson(StoredJson(settings_text), &settings); !p.ok()) {
-        Log("level=error " + where + " stored settings ignored: " + p.message);
-        settings = {};
-      }
-    } else if (!s.not_found()) {
-      return Log("level=error " + where + ": " + s.message);
-    }
-    settings.design_force_n = member.design_axial_force_n;
-    if (member.design_axial_force_n && *member.design_axial_force_n < 0)
-      settings.designed_for_tension = false;
+    const StorageStatus ss = repo.GetDriftSettings(organisation_id, member_id, &settings_text);
+    if (!ss.ok() && !ss.not_found()) return Log("level=error " + where + ": " + ss.message);
+    // The nominal EI of the ei-loss rule in the plane this estimate was fitted in.
     const json result = StoredJson(current.result_json);
     const model::Direction plane = result.is_object() && result.value("plane", "vertical") == "lateral"
                                        ? model::Direction::kLateral
                                        : model::Direction::kVertical;
-    settings.nominal_ei_nm2 = member.NominalBendingStiffness_nm2(plane);
-
+    estimation::DriftSettings settings;
+    if (Status p = EffectiveDriftSettings(member, ss.ok() ? &settings_text : nullptr, plane, &settings);
+        !p.ok()) {
+      Log("level=error " + where + " stored settings ignored: " + p.message);
+      EffectiveDriftSettings(member, nullptr, plane, &settings);
+    }
     std::vector<storage::Estimate> history;
     if (StorageStatus s =
             repo.ForceHistory(organisation_id, member_id, std::numeric_limits<std::int64_t>::min(),
@@ -294,21 +290,10 @@ struct WorkerPool::Impl {
         !s.ok()) {
       return Log("level=error " + where + ": " + s.message);
     }
-    std::vector<estimation::DriftPoint> series;
+    const std::vector<estimation::DriftPoint> series = DriftSeries(history);
     std::optional<std::size_t> index;
-    for (const auto& e : history) {
-      estimation::DriftPoint p;
-      p.id = e.id;
-      p.time_s = static_cast<double>(e.measured_at_unix_ms) / 1000.0;
-      p.temperature_c = e.temperature_c;
-      p.force_n = e.axial_force_n;
-      p.force_std_n = e.force_std_n.value_or(0.0);
-      if (e.bending_stiffness_nm2 && e.bending_stiffness_std_nm2) {
-        p.ei_nm2 = e.bending_stiffness_nm2;
-        p.ei_std_nm2 = e.bending_stiffness_std_nm2;
-      }
-      if (e.id == estimate_id) index = series.size();
-      series.push_back(p);
+    for (std::size_t i = 0; i < history.size(); ++i) {
+      if (history[i].id == estimate_id) index = i;
     }
     estimation::DriftReport report;
     if (Status s = estimation::DetectDrift(series, settings, &report); !s.ok()) {

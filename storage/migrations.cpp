@@ -250,11 +250,20 @@ CREATE TABLE member_drift_settings (
 ) WITHOUT ROWID;
 )sql";
 
-constexpr std::array<Migration, 4> kMigrations = {{
+// Step 5: the end fixities of each stored result in a column of their own
+// (SQLite JSON1 json_extract, at insert from now on), for the fixity
+// history, which would otherwise read every long result text.
+constexpr const char* kV5 = R"sql(
+ALTER TABLE estimate ADD COLUMN end_fixity_json TEXT;
+UPDATE estimate SET end_fixity_json = json_extract(result_json, '$.end_fixity') WHERE json_valid(result_json);
+)sql";
+
+constexpr std::array<Migration, 5> kMigrations = {{
     {1, "initial schema", kV1},
     {2, "estimate: member version, temperature, standard deviations, history index", kV2},
     {3, "alerts and webhooks", kV3},
     {4, "drift checks that survive a restart, alert once per rule and estimate, drift settings", kV4},
+    {5, "estimate: end fixities extracted from the result", kV5},
 }};
 
 constexpr const char* kMigrationTable = R"sql(

@@ -799,7 +799,8 @@ StorageStatus Repository::CompleteJobWithEstimate(Id job_id, const NewEstimate& 
         "INSERT INTO estimate (organisation_id, member_id, member_version, record_id, job_id, "
         "measured_at_unix_ms, temperature_c, axial_force_n, force_std_n, force_ci95_low_n, "
         "force_ci95_high_n, bending_stiffness_nm2, bending_stiffness_std_nm2, result_json, "
-        "created_at_unix_ms) VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, ?11, ?12, ?13, ?14, ?15)");
+        "created_at_unix_ms, end_fixity_json) VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, ?11, ?12, "
+        "?13, ?14, ?15, CASE WHEN json_valid(?14) THEN json_extract(?14, '$.end_fixity') END)");
     ins.Bind(1, organisation_id)
         .Bind(2, member_id)
         .Bind(3, member_version)
@@ -880,6 +881,28 @@ StorageStatus Repository::ForceHistory(Id organisation_id, Id member_id, std::in
       .Bind(4, to_unix_ms)
       .Bind(5, static_cast<std::int64_t>(kMaxHistoryRows));
   return ReadAll(s, out, ReadEstimate);
+}
+
+StorageStatus Repository::FixityHistory(Id organisation_id, Id member_id, std::int64_t from_unix_ms,
+                                        std::int64_t to_unix_ms, std::vector<FixityRow>* out) {
+  if (from_unix_ms > to_unix_ms) {
+    return Misuse("history range from " + std::to_string(from_unix_ms) + " ms is after to " +
+                  std::to_string(to_unix_ms) + " ms");
+  }
+  // end_fixity_json is the result's end_fixity, extracted once when the
+  // estimate is stored (schema step 5).
+  Statement s(db_.handle(),
+              "SELECT id, measured_at_unix_ms, end_fixity_json FROM estimate WHERE organisation_id = ?1 AND "
+              "member_id = ?2 AND measured_at_unix_ms >= ?3 AND measured_at_unix_ms < ?4 "
+              "ORDER BY measured_at_unix_ms, id LIMIT ?5");
+  s.Bind(1, organisation_id)
+      .Bind(2, member_id)
+      .Bind(3, from_unix_ms)
+      .Bind(4, to_unix_ms)
+      .Bind(5, static_cast<std::int64_t>(kMaxHistoryRows));
+  return ReadAll(s, out, [](const Statement& r) {
+    return FixityRow{r.Int64(0), r.Int64(1), r.IsNull(2) ? "" : r.Text(2)};
+  });
 }
 
 // --------------------------------------------------------------- alerts ---

@@ -310,6 +310,20 @@ class Repository {
   StorageStatus ForceHistory(Id organisation_id, Id member_id, std::int64_t from_unix_ms,
                              std::int64_t to_unix_ms, std::vector<Estimate>* out);
 
+  // The end fixities stored in each estimate's result: end_fixity_json is
+  // the FORMATS.md section 3 "end_fixity" object as JSON text ("" when the
+  // result has none or is not JSON), extracted by SQLite's JSON functions
+  // when the estimate was stored, so the long result text is not read
+  // again (the dashboard asks for years of these at once). Same rows and
+  // order as ForceHistory.
+  struct FixityRow {
+    Id estimate_id = 0;
+    std::int64_t measured_at_unix_ms = 0;
+    std::string end_fixity_json;
+  };
+  StorageStatus FixityHistory(Id organisation_id, Id member_id, std::int64_t from_unix_ms,
+                              std::int64_t to_unix_ms, std::vector<FixityRow>* out);
+
   // --- alerts ---------------------------------------------------------
   StorageStatus RaiseAlert(Id organisation_id, const NewAlert& alert, std::int64_t now_unix_ms, Id* id);
   StorageStatus GetAlert(Id organisation_id, Id alert_id, Alert* out);

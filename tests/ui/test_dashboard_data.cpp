@@ -19,6 +19,8 @@
 #include "server/dashboard_data.h"
 #include "server/estimate_json.h"
 #include "server/member_json.h"
+#include "storage/migrations.h"
+#include "storage/repository.h"
 
 namespace taut::server {
 namespace {
@@ -300,9 +302,22 @@ TEST(MemberDrift, BaselineAndLimitsFollowTheLeastSquaresFormulas) {
   EXPECT_DOUBLE_EQ(out["force"]["thresholds"]["compression_n"].get<double>(), 0.0);
 }
 
-// The SAX reader of end_fixity gives what a full parse gives (nlohmann_json
-// as the reference), whatever the key order, and null when it is absent.
-TEST(FixityHistory, SaxReadEqualsTheFullParse) {
+// The fixity history read by SQLite's JSON functions gives what a full
+// parse of the stored result gives (nlohmann_json as the reference),
+// whatever the key order and the text of the cautions, and null where the
+// result has no end_fixity or is not JSON.
+TEST(FixityHistory, StorageJsonExtractEqualsTheFullParse) {
+  const auto dir = std::filesystem::temp_directory_path() / ("taut-fixity-" + std::to_string(::getpid()));
+  std::filesystem::remove_all(dir);
+  std::filesystem::create_directories(dir);
+  storage::Database db;
+  ASSERT_TRUE(storage::OpenAndMigrate(db, (dir / "t.db").string()).ok());
+  storage::Repository repo(db);
+  storage::Id org = 0, structure = 0, member = 0;
+  ASSERT_TRUE(repo.CreateOrganisation("Fixity works", 0, &org).ok());
+  ASSERT_TRUE(repo.CreateStructure(org, "Test hall", "", 0, &structure).ok());
+  ASSERT_TRUE(repo.CreateMember(org, structure, "t1", "{}", 0, &member).ok());
+
   estimation::Estimate est;
   est.axial_force_n = {30125.0, 210.0, 29713.0, 30537.0};
   est.bending_stiffness_nm2 = {7950.0, 120.0, 7715.0, 8185.0};
@@ -311,60 +326,47 @@ TEST(FixityHistory, SaxReadEqualsTheFullParse) {
   est.cautions = {{"single-sensor", "a \"quoted\" {brace} [bracket] text: end_fixity"}};
   est.notice = estimation::StandingNotice();
   const json full = EstimateToJson(est);
-  storage::Estimate row;
-  row.id = 5;
-  row.measured_at_unix_ms = 1'800'000'000'000;
-  row.result_json = full.dump();
-  json p = FixityPointJson(row);
-  EXPECT_EQ(p["left"], full["end_fixity"]["left"]);
-  EXPECT_EQ(p["right"], full["end_fixity"]["right"]);
-  EXPECT_TRUE(p["right"]["fixed"].get<bool>());
-  // Key order of the writer is not assumed: end_fixity last, after a nested
-  // object holding its own "end_fixity" key.
-  nlohmann::ordered_json reordered;
+  nlohmann::ordered_json reordered;  // end_fixity last, after a nested key of the same name
   reordered["fit"] = {{"end_fixity", "not this one"}};
   reordered["modes"] = full["modes"];
   reordered["end_fixity"] = full["end_fixity"];
-  row.result_json = reordered.dump();
-  p = FixityPointJson(row);
-  EXPECT_EQ(p["left"], full["end_fixity"]["left"]);
-  row.result_json = R"({"axial_force_n": {"value": 1}})";
-  p = FixityPointJson(row);
-  EXPECT_TRUE(p["left"].is_null());
-  EXPECT_TRUE(p["right"].is_null());
-  row.result_json = "not json";
-  EXPECT_TRUE(FixityPointJson(row)["left"].is_null());
-}
-
-// The cache gives the uncached point (FixityPointJson, checked above)
-// without reading the estimate again, and reads again when the row's
-// created_at differs (an id reused by another estimate).
-TEST(FixityHistory, CacheServesTheSamePointAndRereadsAChangedRow) {
-  storage::Estimate row;
-  row.id = 8;
-  row.measured_at_unix_ms = 1'800'000'000'000;
-  row.created_at_unix_ms = 1'800'000'100'000;
-  storage::Estimate full = row;
-  full.result_json = R"({"end_fixity": {"left": {"value": 0.3, "std": 0.1, "ci95": [0.1, 0.5]},
-                                        "right": {"value": 1.0, "fixed": true}}})";
-  int loads = 0;
-  auto load = [&](storage::Estimate* e) {
-    ++loads;
-    *e = full;
-  };
-  FixityCache cache;
-  const json first = cache.Point(row, load);
-  EXPECT_EQ(first, FixityPointJson(full));
-  EXPECT_EQ(cache.Point(row, load), first);
-  EXPECT_EQ(loads, 1);
-  row.created_at_unix_ms += 1;
-  full.created_at_unix_ms = row.created_at_unix_ms;
-  full.result_json =
-      R"({"end_fixity": {"left": {"value": 0.7, "std": 0.1, "ci95": [0.5, 0.9]}, "right": null}})";
-  const json again = cache.Point(row, load);
-  EXPECT_EQ(loads, 2);
-  EXPECT_DOUBLE_EQ(again["left"]["value"].get<double>(), 0.7);
-  EXPECT_TRUE(again["right"].is_null());
+  const std::vector<std::string> results = {full.dump(), reordered.dump(),
+                                            R"({"axial_force_n": {"value": 1}})", "not json"};
+  for (std::size_t i = 0; i < results.size(); ++i) {
+    storage::NewRecord r;
+    r.member_id = member;
+    r.recorded_at_unix_ms = 1'800'000'000'000 + static_cast<std::int64_t>(i) * 1000;
+    r.sample_rate_hz = 100;
+    r.channels = {"a1"};
+    r.samples = {0.0};
+    r.content_sha256 = std::string(63, '0') + static_cast<char>('1' + i);
+    r.samples_sha256 = std::string(64, 'a');
+    storage::RecordInsertResult ins;
+    ASSERT_TRUE(repo.InsertRecord(org, r, 0, &ins).ok());
+    storage::Job job;
+    bool claimed = false;
+    ASSERT_TRUE(repo.ClaimNextJob(0, &job, &claimed).ok() && claimed);
+    storage::Id id = 0;
+    ASSERT_TRUE(
+        repo.CompleteJobWithEstimate(job.id, {job.record_id, 1, 1, 0, 2, {}, {}, results[i]}, 0, &id).ok());
+  }
+  std::vector<storage::Repository::FixityRow> rows;
+  ASSERT_TRUE(repo.FixityHistory(org, member, 0, 2'000'000'000'000, &rows).ok());
+  ASSERT_EQ(rows.size(), 4u);
+  for (int i = 0; i < 2; ++i) {
+    const json p = FixityPointJson(rows[i]);
+    EXPECT_EQ(p["left"], full["end_fixity"]["left"]) << i;
+    EXPECT_EQ(p["right"], full["end_fixity"]["right"]) << i;
+    // 1.8e9 s after the epoch is 20833 days + 8 h: 2027-01-15T08:00:00Z
+    // (Python: datetime.fromtimestamp(1.8e9, timezone.utc)); record i is i s later.
+    EXPECT_EQ(p["measured_at"], "2027-01-15T08:00:0" + std::to_string(i) + "Z") << i;
+  }
+  EXPECT_TRUE(FixityPointJson(rows[0])["right"]["fixed"].get<bool>());
+  for (int i = 2; i < 4; ++i) {
+    EXPECT_TRUE(FixityPointJson(rows[i])["left"].is_null()) << i;
+    EXPECT_TRUE(FixityPointJson(rows[i])["right"].is_null()) << i;
+  }
+  std::filesystem::remove_all(dir);
 }
 
 }  // namespace
