@@ -460,8 +460,9 @@ int RunDemo(const DemoOptions& o, std::ostream& out, std::ostream& err) {
     }
     out << "\n" << estimation::StandingNotice() << "\n";
     if (o.serve) {
-      out << "\nServing " << base << "/v1 until Ctrl-C. Tokens (shown once):\n  admin   " << admin
-          << "\n  gateway " << gateway << "\n  viewer  " << viewer << std::endl;
+      out << "\nServing " << base << "/v1 and the dashboard at " << base
+          << "/ui/ until Ctrl-C. Tokens (shown once):\n  admin   " << admin << "\n  gateway " << gateway
+          << "\n  viewer  " << viewer << std::endl;
       WaitForStopSignal();
     }
   } catch (const std::exception& e) {
