@@ -34,13 +34,28 @@ namespace {
 //   x0 = N / N_scale            (N_scale = max(|N_start|, pi^2 EI_nom / L^2)),
 //   x1 = ln(EI / EI_nom) + kLnEiOffset,
 //   x2 = r_left + kFixityOffset, x3 = r_right + kFixityOffset,
-// so the step is ~1e-4 N_scale in N, ~1e-3 in ln EI and 1e-4..2e-4 in r.
+//   x4 = rho + kFixityOffset, rho = k_ax / (EA / L) the axial support ratio
+//        (0 = axially free supports, 1 = rigid; an unknown only where
+//        AxialSupportMatters, else held),
+// so the step is ~1e-4 N_scale in N, ~1e-3 in ln EI and 1e-4..2e-4 in r, rho.
 // (x0 may pass through zero for a compressed member; there the step falls
 // to sqrt(eps) N_scale ~ 1.5e-8 N_scale, whose round-off error
 // 1e-13 / 1.5e-8 ~ 1e-5 relative is still far below the frequency stds.)
 constexpr double kRelativeStep = 1e-4;
 constexpr double kLnEiOffset = 10.0;
 constexpr double kFixityOffset = 1.0;
+
+// The internal unknowns x0..x4 and the positions of the bounded ones.
+constexpr int kUnknowns = 5;
+constexpr int kLeft = 2, kRight = 3, kAxial = 4;
+using Unknowns = std::array<double, kUnknowns>;
+
+// Series support stiffness k_s [N/m] of an axial support ratio
+// rho = k_ax / (EA/L) in [0, 1]: 1/k_ax = L/EA + 1/k_s (parameters.h), so
+// k_s = (EA/L) rho / (1 - rho); +inf at rho = 1 (rigid supports).
+double SupportStiffness(double rho, double ea_over_l) {
+  return rho >= 1.0 ? std::numeric_limits<double>::infinity() : ea_over_l * rho / (1.0 - rho);
+}
 
 // 95 % two-sided normal quantile and the 95 % quantile of chi-square with
 // one degree of freedom (scipy.stats.norm.ppf(0.975), scipy.stats.chi2.ppf(0.95, 1)).
@@ -97,6 +112,10 @@ struct FitContext {
   double ei_prior_sigma_ln = 0.15;
   double shape_std = 0.05;
   bool free_left = false, free_right = false;
+  // The axial support ratio rho = k_ax / (EA / L) (x4) is an unknown (see
+  // AxialSupportMatters); otherwise the member's declared axial ends hold.
+  bool free_axial = false;
+  double ea_over_l = 1.0;  // EA / L [N/m]
   mutable long calls = 0;
 
   bool UseShapes() const { return model_index.size() >= 2; }
@@ -105,26 +124,32 @@ struct FitContext {
     for (const auto& p : pairs) n += 1 + (UseShapes() ? static_cast<int>(p.shape.size()) : 0);
     return n;
   }
+  bool Free(int j) const {
+    return j < 2 || (j == kLeft && free_left) || (j == kRight && free_right) || (j == kAxial && free_axial);
+  }
 
   double N(const double* x) const { return x[0] * n_scale; }
   double EI(const double* x) const { return ei_nominal * std::exp(x[1] - kLnEiOffset); }
 
-  model::ModalParameters Params(double n, double ei, double rl, double rr) const {
+  // Model parameters at x (bounded unknowns inside [0, 1]).
+  model::ModalParameters Params(const Unknowns& x) const {
     model::ModalParameters p;
-    p.axial_force_n = n;
-    p.bending_stiffness_nm2 = ei;
-    if (free_left) p.fixity_left = rl;
-    if (free_right) p.fixity_right = rr;
+    p.axial_force_n = N(x.data());
+    p.bending_stiffness_nm2 = EI(x.data());
+    if (free_left) p.fixity_left = x[kLeft] - kFixityOffset;
+    if (free_right) p.fixity_right = x[kRight] - kFixityOffset;
+    if (free_axial)
+      p.axial_support_stiffness_n_per_m = SupportStiffness(x[kAxial] - kFixityOffset, ea_over_l);
     return p;
   }
 
-  // Recent evaluations, keyed by the exact arguments: Ceres 2.1 evaluates
+  // Recent evaluations, keyed by the exact unknowns: Ceres 2.1 evaluates
   // the residuals and the numeric Jacobian at an accepted point a second
   // time (seen in a trace of the model calls), and the odd reflection at a
   // bound (Evaluate) asks for the bound point itself. 24 entries hold two
   // full central-difference stencils of 9 points.
   struct Memo {
-    std::array<double, 4> key{};
+    Unknowns key{};
     std::vector<double> residuals;
     bool ok = false;
   };
@@ -143,35 +168,35 @@ struct FitContext {
     last_ok = false;
   }
 
-  // Residuals for fixities inside [0, 1].
-  bool EvaluateInside(double n, double ei, double rl, double rr, double* res) const {
-    const std::array<double, 4> key = {n, ei, rl, rr};
+  // Residuals for bounded unknowns inside [0, 1].
+  bool EvaluateInside(const Unknowns& x, double* res) const {
     const int m = NumResiduals();
     for (size_t i = 0; i < memo_used; ++i) {
-      if (memo[i].key == key && static_cast<int>(memo[i].residuals.size()) == m) {
+      if (memo[i].key == x && static_cast<int>(memo[i].residuals.size()) == m) {
         std::copy(memo[i].residuals.begin(), memo[i].residuals.end(), res);
         return memo[i].ok;
       }
     }
-    const bool ok = EvaluateUncached(n, ei, rl, rr, res);
+    const bool ok = EvaluateUncached(x, res);
     Memo& slot = memo[memo_next];
     memo_next = (memo_next + 1) % kMemoSize;
     memo_used = std::min(memo_used + 1, kMemoSize);
-    slot.key = key;
+    slot.key = x;
     slot.ok = ok;
     slot.residuals.assign(res, res + m);
     return ok;
   }
 
-  bool EvaluateUncached(double n, double ei, double rl, double rr, double* res) const {
+  bool EvaluateUncached(const Unknowns& x, double* res) const {
     model::ModalResult r;
     ++calls;
     // Started from the previous evaluation's modes (a nearby point: the
     // stencil of a numeric Jacobian or the next iterate).
     const bool near_ok = last_ok && last.modes.size() >= static_cast<size_t>(num_modes);
-    if (!model->Solve(Params(n, ei, rl, rr), num_modes, &r, near_ok ? &last : nullptr).ok()) return false;
+    if (!model->Solve(Params(x), num_modes, &r, near_ok ? &last : nullptr).ok()) return false;
     last = r;
     last_ok = true;
+    const double ei = EI(x.data());
     int k = 0;
     for (const PairData& p : pairs) {
       const model::Mode& mode = r.modes[p.order - 1];
@@ -192,45 +217,42 @@ struct FitContext {
     return true;
   }
 
-  // Residuals for any fixity: outside [0, 1] the residual vector is
-  // continued by odd reflection about the bound, R(-r) = 2 R(0) - R(r), so
-  // that central differences at a bound (where Ceres' bounds allow the
+  // Residuals for any bounded unknown: outside [0, 1] the residual vector
+  // is continued by odd reflection about the bound, R(-r) = 2 R(0) - R(r),
+  // so that central differences at a bound (where Ceres' bounds allow the
   // iterate to sit) see a C1 function and give the one-sided derivative.
-  bool Evaluate(double n, double ei, double rl, double rr, double* res) const {
+  bool Evaluate(const Unknowns& x, double* res) const {
     const int m = NumResiduals();
-    auto reflect = [&](double bound, bool left, double r_in) {
+    for (int j = kLeft; j < kUnknowns; ++j) {
+      if (!Free(j)) continue;
+      const double r = x[j] - kFixityOffset;
+      if (r >= 0.0 && r <= 1.0) continue;
+      const double bound = r < 0.0 ? 0.0 : 1.0;
+      Unknowns at = x, mirrored = x;
+      at[j] = kFixityOffset + bound;
+      mirrored[j] = kFixityOffset + 2.0 * bound - r;
       std::vector<double> a(m), b(m);
-      const double mirrored = 2.0 * bound - r_in;
-      bool ok = left ? Evaluate(n, ei, bound, rr, a.data()) && Evaluate(n, ei, mirrored, rr, b.data())
-                     : Evaluate(n, ei, rl, bound, a.data()) && Evaluate(n, ei, rl, mirrored, b.data());
-      if (!ok) return false;
+      if (!Evaluate(at, a.data()) || !Evaluate(mirrored, b.data())) return false;
       for (int i = 0; i < m; ++i) res[i] = 2.0 * a[i] - b[i];
       return true;
-    };
-    if (free_left && rl < 0.0) return reflect(0.0, true, rl);
-    if (free_left && rl > 1.0) return reflect(1.0, true, rl);
-    if (free_right && rr < 0.0) return reflect(0.0, false, rr);
-    if (free_right && rr > 1.0) return reflect(1.0, false, rr);
-    return EvaluateInside(n, ei, rl, rr, res);
+    }
+    return EvaluateInside(x, res);
   }
 };
 
-// The Ceres functor: four one-entry parameter blocks (x0..x3 above), so
+// The Ceres functor: five one-entry parameter blocks (x0..x4 above), so
 // that held unknowns are constant blocks for which Ceres asks no Jacobian
 // (and numeric differentiation spends no model calls).
 struct ModalCost {
   const FitContext* ctx;  // not owned; must outlive the cost function
-  bool operator()(const double* x0, const double* x1, const double* x2, const double* x3,
+  bool operator()(const double* x0, const double* x1, const double* x2, const double* x3, const double* x4,
                   double* residuals) const {
-    const double x[4] = {x0[0], x1[0], x2[0], x3[0]};
-    return ctx->Evaluate(ctx->N(x), ctx->EI(x), x[2] - kFixityOffset, x[3] - kFixityOffset, residuals);
+    return ctx->Evaluate({x0[0], x1[0], x2[0], x3[0], x4[0]}, residuals);
   }
 };
 
-using Vec4 = std::array<double, 4>;
-
 struct FitOutcome {
-  Vec4 x{};
+  Unknowns x{};
   double cost = std::numeric_limits<double>::infinity();
   bool usable = false;
   bool converged = false;
@@ -261,56 +283,57 @@ constexpr double kAtBound = 1e-9;
 class FitMonitor : public ceres::IterationCallback {
  public:
   // Not owned; must outlive the solve. reference may be null.
-  FitMonitor(const Vec4* x, const FitOutcome* reference, std::array<bool, 4> watch_bounds)
+  FitMonitor(const Unknowns* x, const FitOutcome* reference, std::array<bool, kUnknowns> watch_bounds)
       : x_(x), reference_(reference), watch_(watch_bounds) {}
   ceres::CallbackReturnType operator()(const ceres::IterationSummary& s) override {
     if (reference_ != nullptr && Arrived(s.cost)) {
       arrived_ = true;
       return ceres::SOLVER_TERMINATE_SUCCESSFULLY;
     }
-    for (int j = 2; j < 4; ++j) {
+    bool any = false;
+    for (int j = kLeft; j < kUnknowns; ++j) {
       if (!watch_[j]) continue;
       const double r = (*x_)[j] - kFixityOffset;
       count_[j] = (r <= kAtBound || r >= 1.0 - kAtBound) ? count_[j] + 1 : 0;
       if (count_[j] >= kStuckIterations) stuck_[j] = true;
+      any = any || stuck_[j];
     }
-    return stuck_[2] || stuck_[3] ? ceres::SOLVER_TERMINATE_SUCCESSFULLY : ceres::SOLVER_CONTINUE;
+    return any ? ceres::SOLVER_TERMINATE_SUCCESSFULLY : ceres::SOLVER_CONTINUE;
   }
   bool arrived() const { return arrived_; }
-  const std::array<bool, 4>& stuck() const { return stuck_; }
+  const std::array<bool, kUnknowns>& stuck() const { return stuck_; }
 
  private:
   bool Arrived(double cost) const {
     if (!reference_->usable) return false;
     if (cost > reference_->cost + 0.5 * kSameMinimumCost * std::max(1.0, reference_->cost)) return false;
-    for (int j = 0; j < 4; ++j) {
+    for (int j = 0; j < kUnknowns; ++j) {
       if (std::abs((*x_)[j] - reference_->x[j]) > 0.5 * kSameMinimumForce) return false;
     }
     return true;
   }
-  const Vec4* x_;
+  const Unknowns* x_;
   const FitOutcome* reference_;
-  std::array<bool, 4> watch_;
-  std::array<int, 4> count_{};
-  std::array<bool, 4> stuck_{};
+  std::array<bool, kUnknowns> watch_;
+  std::array<int, kUnknowns> count_{};
+  std::array<bool, kUnknowns> stuck_{};
   bool arrived_ = false;
 };
 
 ceres::CostFunction* MakeCost(const FitContext& ctx) {
   ceres::NumericDiffOptions nd;
   nd.relative_step_size = kRelativeStep;
-  return new ceres::NumericDiffCostFunction<ModalCost, ceres::CENTRAL, ceres::DYNAMIC, 1, 1, 1, 1>(
+  return new ceres::NumericDiffCostFunction<ModalCost, ceres::CENTRAL, ceres::DYNAMIC, 1, 1, 1, 1, 1>(
       new ModalCost{&ctx}, ceres::TAKE_OWNERSHIP, ctx.NumResiduals(), nd);
 }
 
 // Adds the residual block on x and sets bounds and held blocks.
-void BuildProblem(const FitContext& ctx, Vec4& x, bool hold_force, ceres::Problem* problem) {
-  problem->AddResidualBlock(MakeCost(ctx), nullptr, &x[0], &x[1], &x[2], &x[3]);
+void BuildProblem(const FitContext& ctx, Unknowns& x, bool hold_force, ceres::Problem* problem) {
+  problem->AddResidualBlock(MakeCost(ctx), nullptr, &x[0], &x[1], &x[2], &x[3], &x[4]);
   if (hold_force) problem->SetParameterBlockConstant(&x[0]);
-  bool free[2] = {ctx.free_left, ctx.free_right};
-  for (int e = 0; e < 2; ++e) {
-    double* p = &x[2 + e];
-    if (!free[e]) {
+  for (int j = kLeft; j < kUnknowns; ++j) {
+    double* p = &x[j];
+    if (!ctx.Free(j)) {
       problem->SetParameterBlockConstant(p);
       continue;
     }
@@ -329,10 +352,9 @@ constexpr double kProfileFitTolerance = 1e-6;
 constexpr int kProfileMaxIterations = 20;
 
 // Cost 1/2 |r|^2 at x (infinity when the model cannot be evaluated).
-double CostAt(const FitContext& ctx, const Vec4& x) {
+double CostAt(const FitContext& ctx, const Unknowns& x) {
   std::vector<double> r(static_cast<size_t>(ctx.NumResiduals()));
-  if (!ctx.Evaluate(ctx.N(x.data()), ctx.EI(x.data()), x[2] - kFixityOffset, x[3] - kFixityOffset, r.data()))
-    return std::numeric_limits<double>::infinity();
+  if (!ctx.Evaluate(x, r.data())) return std::numeric_limits<double>::infinity();
   double c = 0.0;
   for (double v : r) c += v * v;
   return 0.5 * c;
@@ -348,17 +370,17 @@ constexpr double kBoundProbe = 1e-4;
 // arriving there (FitMonitor). A fixity stuck on a bound is held there for
 // a second run; when a step inward from that result lowers the cost, a
 // third run with it free again follows.
-FitOutcome RunFit(const FitContext& ctx, const Vec4& start, bool hold_force, const IdentifyOptions& options,
-                  const FitOutcome* reference = nullptr) {
+FitOutcome RunFit(const FitContext& ctx, const Unknowns& start, bool hold_force,
+                  const IdentifyOptions& options, const FitOutcome* reference = nullptr) {
   FitOutcome out;
   out.x = start;
-  std::array<bool, 4> held_at_bound{};
+  std::array<bool, kUnknowns> held_at_bound{};
   int iterations = 0;
   ceres::Solver::Summary summary;
   for (int phase = 0; phase < 3; ++phase) {
     ceres::Problem problem;
     BuildProblem(ctx, out.x, hold_force, &problem);
-    for (int j = 2; j < 4; ++j) {
+    for (int j = kLeft; j < kUnknowns; ++j) {
       if (phase == 1 && held_at_bound[j]) problem.SetParameterBlockConstant(&out.x[j]);
     }
     ceres::Solver::Options so;
@@ -372,8 +394,8 @@ FitOutcome RunFit(const FitContext& ctx, const Vec4& start, bool hold_force, con
     so.logging_type = ceres::SILENT;
     so.minimizer_progress_to_stdout = false;
     so.num_threads = 1;
-    const std::array<bool, 4> watch = {false, false, phase == 0 && ctx.free_left,
-                                       phase == 0 && ctx.free_right};
+    std::array<bool, kUnknowns> watch{};
+    for (int j = kLeft; j < kUnknowns; ++j) watch[j] = phase == 0 && ctx.Free(j);
     FitMonitor monitor(&out.x, phase == 0 ? reference : nullptr, watch);
     so.callbacks.push_back(&monitor);
     so.update_state_every_iteration = true;
@@ -383,12 +405,13 @@ FitOutcome RunFit(const FitContext& ctx, const Vec4& start, bool hold_force, con
     if (!summary.IsSolutionUsable()) break;
     if (phase == 0) {
       held_at_bound = monitor.stuck();
-      if (out.arrived || !(held_at_bound[2] || held_at_bound[3])) break;
+      if (out.arrived || std::none_of(held_at_bound.begin(), held_at_bound.end(), [](bool b) { return b; }))
+        break;
     } else if (phase == 1) {
       bool release = false;
-      for (int j = 2; j < 4; ++j) {
+      for (int j = kLeft; j < kUnknowns; ++j) {
         if (!held_at_bound[j]) continue;
-        Vec4 probe = out.x;
+        Unknowns probe = out.x;
         probe[j] += (probe[j] - kFixityOffset < 0.5 ? 1.0 : -1.0) * kBoundProbe;
         release = release || CostAt(ctx, probe) < summary.final_cost * (1.0 - kFitTolerance);
       }
@@ -402,13 +425,13 @@ FitOutcome RunFit(const FitContext& ctx, const Vec4& start, bool hold_force, con
   return out;
 }
 
-// Dense weighted Jacobian (rows residuals, columns x0..x3, zero columns for
+// Dense weighted Jacobian (rows residuals, columns x0..x4, zero columns for
 // held blocks) at x.
-bool JacobianAt(const FitContext& ctx, Vec4 x, Eigen::MatrixXd* jac) {
+bool JacobianAt(const FitContext& ctx, Unknowns x, Eigen::MatrixXd* jac) {
   ceres::Problem problem;
   BuildProblem(ctx, x, false, &problem);
   ceres::Problem::EvaluateOptions eo;
-  eo.parameter_blocks = {&x[0], &x[1], &x[2], &x[3]};
+  eo.parameter_blocks = {&x[0], &x[1], &x[2], &x[3], &x[4]};
   ceres::CRSMatrix crs;
   if (!problem.Evaluate(eo, nullptr, nullptr, nullptr, &crs)) return false;
   jac->setZero(crs.num_rows, crs.num_cols);
@@ -428,11 +451,14 @@ bool JacobianAt(const FitContext& ctx, Vec4 x, Eigen::MatrixXd* jac) {
 // its range" into the covariance of N and EI instead of being held at an
 // arbitrary point of the flat valley (which would make their intervals
 // conditional on it, hence too tight).
-bool CovarianceAt(const FitContext& ctx, Vec4 x, const std::array<bool, 4>& held,
-                  const std::array<bool, 4>& range_prior, Eigen::Matrix4d* cov) {
+using Blocks = std::array<bool, kUnknowns>;
+using CovarianceMatrix = Eigen::Matrix<double, kUnknowns, kUnknowns>;
+
+bool CovarianceAt(const FitContext& ctx, Unknowns x, const Blocks& held, const Blocks& range_prior,
+                  CovarianceMatrix* cov) {
   ceres::Problem problem;
   BuildProblem(ctx, x, held[0], &problem);
-  for (int j = 1; j < 4; ++j) {
+  for (int j = 1; j < kUnknowns; ++j) {
     if (held[j] && !problem.IsParameterBlockConstant(&x[j])) problem.SetParameterBlockConstant(&x[j]);
     if (range_prior[j] && !problem.IsParameterBlockConstant(&x[j])) {
       ceres::Matrix a(1, 1);
@@ -448,7 +474,7 @@ bool CovarianceAt(const FitContext& ctx, Vec4 x, const std::array<bool, 4>& held
   co.num_threads = 1;
   ceres::Covariance covariance(co);
   std::vector<const double*> blocks;
-  for (int j = 0; j < 4; ++j) {
+  for (int j = 0; j < kUnknowns; ++j) {
     if (!problem.IsParameterBlockConstant(&x[j])) blocks.push_back(&x[j]);
   }
   cov->setZero();
@@ -458,8 +484,8 @@ bool CovarianceAt(const FitContext& ctx, Vec4 x, const std::array<bool, 4>& held
     for (const double* b : blocks) pairs.emplace_back(a, b);
   }
   if (!covariance.Compute(pairs, &problem)) return false;
-  for (int i = 0; i < 4; ++i) {
-    for (int j = 0; j < 4; ++j) {
+  for (int i = 0; i < kUnknowns; ++i) {
+    for (int j = 0; j < kUnknowns; ++j) {
       if (problem.IsParameterBlockConstant(&x[i]) || problem.IsParameterBlockConstant(&x[j])) continue;
       double v = 0.0;
       if (!covariance.GetCovarianceBlock(&x[i], &x[j], &v)) return false;
@@ -647,6 +673,16 @@ Status IdentifyFromModes(const model::Member& member, const ModalIdentification&
   ctx.shape_std = options.shape_std;
   ctx.free_left = member.left.kind == model::RotationEnd::Kind::kElastic;
   ctx.free_right = member.right.kind == model::RotationEnd::Kind::kElastic;
+  ctx.ea_over_l = member.AxialRigidity_n() / member.length_m;
+  // Declared axial support ratio (the start of x4; see AxialSupportMatters).
+  double rho_declared = 1.0;
+  {
+    model::ResolvedParameters rp;
+    model::ModalParameters p0;
+    p0.bending_stiffness_nm2 = ei_nominal;
+    if (model::ResolveParameters(member, plane, p0, &rp).ok() && ctx.ea_over_l > 0.0)
+      rho_declared = std::clamp(rp.k_axial_n_per_m / ctx.ea_over_l, 0.0, 1.0);
+  }
   // Pairing looks at kPairingExtraModes model modes beyond the highest order
   // the measured modes may have; the fits then solve only up to the highest
   // paired order (fewer Lanczos vectors per model call).
@@ -667,8 +703,8 @@ Status IdentifyFromModes(const model::Member& member, const ModalIdentification&
   // Start 1: the regression (fixities 0, consistent with its pinned ends).
   const double ei_start = std::clamp(hyp.bending_stiffness_nm2, 0.5 * ei_nominal, 2.0 * ei_nominal);
   const double x1_start = std::log(ei_start / ei_nominal) + kLnEiOffset;
-  Vec4 x_reg = {std::max(hyp.axial_force_n, -0.5 * n_euler_pinned) / ctx.n_scale, x1_start,
-                kFixityOffset + 0.0, kFixityOffset + 0.0};
+  Unknowns x_reg = {std::max(hyp.axial_force_n, -0.5 * n_euler_pinned) / ctx.n_scale, x1_start,
+                    kFixityOffset + 0.0, kFixityOffset + 0.0, kFixityOffset + rho_declared};
   if (!ctx.free_left) x_reg[2] = kFixityOffset;  // unused for held ends
   if (!ctx.free_right) x_reg[3] = kFixityOffset;
 
@@ -686,10 +722,9 @@ Status IdentifyFromModes(const model::Member& member, const ModalIdentification&
     }
     return out;
   };
-  auto model_at = [&](const Vec4& x, model::ModalResult* r, int modes) {
+  auto model_at = [&](const Unknowns& x, model::ModalResult* r, int modes) {
     ++ctx.calls;
-    return ctx.model->Solve(
-        ctx.Params(ctx.N(x.data()), ctx.EI(x.data()), x[2] - kFixityOffset, x[3] - kFixityOffset), modes, r);
+    return ctx.model->Solve(ctx.Params(x), modes, r);
   };
 
   // Pairing point and first start: the regression's N and EI with mid-range
@@ -698,7 +733,7 @@ Status IdentifyFromModes(const model::Member& member, const ModalIdentification&
   // model reproduces the lowest hypothesised mode; the regression itself
   // assumed pinned ends, which elastic ends contradict.
   const double f2_per_n = 1.0 / (4.0 * osi.mass_per_length_kg_m * length * length);
-  Vec4 x_pair = x_reg;
+  Unknowns x_pair = x_reg;
   if (ctx.free_left) x_pair[2] = kFixityOffset + kMidFixity;
   if (ctx.free_right) x_pair[3] = kFixityOffset + kMidFixity;
   {
@@ -742,13 +777,12 @@ Status IdentifyFromModes(const model::Member& member, const ModalIdentification&
   // mesh must stay below max_mesh_error_sigma of its std. Refines (doubling,
   // at most kMaxMeshRefinements times) and returns true when the mesh changed.
   bool mesh_caution = false;
-  auto check_mesh = [&](const Vec4& at) {
+  auto check_mesh = [&](const Unknowns& at) {
     bool changed = false;
     for (int refine = 0;; ++refine) {
       model::ModalModel fine(member, plane, model::ModalOptions{2 * elements});
       model::ModalResult coarse_r, fine_r;
-      const auto params =
-          ctx.Params(ctx.N(at.data()), ctx.EI(at.data()), at[2] - kFixityOffset, at[3] - kFixityOffset);
+      const auto params = ctx.Params(at);
       ctx.calls += 2;
       if (!ctx.model->Solve(params, ctx.num_modes, &coarse_r).ok() ||
           !fine.Solve(params, ctx.num_modes, &fine_r).ok()) {
@@ -781,18 +815,43 @@ Status IdentifyFromModes(const model::Member& member, const ModalIdentification&
   };
   check_mesh(x_pair);
 
+  // Axial support stiffness: an unknown where the member declares a support
+  // spring (its stiffness is then an engineer's estimate; `fixed` declares
+  // rigid supports and `free` no stretching) in the vertical plane, and
+  // where the sag coupling it controls matters: switching the stretching
+  // off (rho = 0) and making the supports rigid (rho = 1) moves the lowest
+  // paired mode by more than its frequency std. Elsewhere the data cannot
+  // tell it from N and the declared ends hold.
+  if (options.estimate_axial_support && plane == model::Direction::kVertical &&
+      member.axial.kind == model::AxialEnds::Kind::kSpring && !ctx.pairs.empty()) {
+    const PairData* low = &ctx.pairs.front();
+    for (const PairData& p : ctx.pairs) {
+      if (p.order < low->order) low = &p;
+    }
+    ctx.free_axial = true;  // so that Params sets the ratio
+    Unknowns rigid = x_pair, none = x_pair;
+    rigid[kAxial] = kFixityOffset + 1.0;
+    none[kAxial] = kFixityOffset + 0.0;
+    model::ModalResult a, b;
+    const bool ok = model_at(rigid, &a, low->order).ok() && model_at(none, &b, low->order).ok();
+    est.axial_support_sag_shift_hz =
+        ok ? std::abs(a.modes[low->order - 1].frequency_hz - b.modes[low->order - 1].frequency_hz) : 0.0;
+    ctx.free_axial = ok && est.axial_support_sag_shift_hz > low->sigma_hz;
+    ctx.Reset();
+  }
+
   // --- Starts ----------------------------------------------------------------
   // Start 1: the pairing point (regression N and EI, mid-range fixities, N
   // corrected). A start at the regression's own pinned ends would sit on
   // the bound r = 0, where the reflected differences cost extra model calls.
-  std::vector<Vec4> starts = {x_pair};
+  std::vector<Unknowns> starts = {x_pair};
   {
     std::vector<double> grid_l = ctx.free_left ? options.start_fixities : std::vector<double>{0.0};
     std::vector<double> grid_r = ctx.free_right ? options.start_fixities : std::vector<double>{0.0};
     if (ctx.free_left || ctx.free_right) {
       for (double rl : grid_l) {
         for (double rr : grid_r) {
-          Vec4 x = x_reg;
+          Unknowns x = x_reg;
           if (ctx.free_left) x[2] = kFixityOffset + rl;
           if (ctx.free_right) x[3] = kFixityOffset + rr;
           starts.push_back(x);
@@ -806,7 +865,7 @@ Status IdentifyFromModes(const model::Member& member, const ModalIdentification&
   // closed form of pairing.h): the grid fixities raise the frequencies the
   // regression force was fitted to, and a start near the right force saves
   // Levenberg-Marquardt iterations.
-  for (Vec4& st : starts) {
+  for (Unknowns& st : starts) {
     const PairData* low = &ctx.pairs.front();
     for (const PairData& p : ctx.pairs) {
       if (p.order < low->order) low = &p;
@@ -825,7 +884,7 @@ Status IdentifyFromModes(const model::Member& member, const ModalIdentification&
   auto run_starts = [&]() {
     outcomes.clear();
     best = FitOutcome{};
-    for (const Vec4& s : starts) {
+    for (const Unknowns& s : starts) {
       FitOutcome o = RunFit(ctx, s, false, options, best.usable ? &best : nullptr);
       outcomes.push_back(o);
       if (o.usable && !o.arrived && o.cost < best.cost) best = o;
@@ -892,7 +951,7 @@ Status IdentifyFromModes(const model::Member& member, const ModalIdentification&
   }
 
   // --- Degrees of freedom, reduced chi-square --------------------------------
-  const int n_free = 2 + ctx.free_left + ctx.free_right;
+  const int n_free = 2 + ctx.free_left + ctx.free_right + ctx.free_axial;
   int n_data = 1;  // prior
   for (const auto& p : ctx.pairs) n_data += 1 + (ctx.UseShapes() ? static_cast<int>(p.shape.size()) - 1 : 0);
   const int dof = n_data - n_free;
@@ -901,16 +960,17 @@ Status IdentifyFromModes(const model::Member& member, const ModalIdentification&
   const double cov_scale = std::max(1.0, reduced_chi2);
 
   // --- Identifiability --------------------------------------------------------
-  const Vec4& x = best.x;
+  const Unknowns& x = best.x;
   const double n_hat = ctx.N(x.data());
-  std::array<bool, 4> free_block = {true, true, ctx.free_left, ctx.free_right};
-  std::array<bool, 4> unidentified = {false, false, false, false};
+  Blocks free_block{}, unidentified{};
+  for (int j = 0; j < kUnknowns; ++j) free_block[j] = ctx.Free(j);
   Eigen::MatrixXd jac;
   if (JacobianAt(ctx, x, &jac)) {
     // Natural units (see kMaxIdentifiableStd): x0 in units of max(|N|, 0.1 N_scale).
-    Eigen::Vector4d unit(std::max(std::abs(x[0]), 0.1), 1.0, 1.0, 1.0);
+    Eigen::Matrix<double, kUnknowns, 1> unit = Eigen::Matrix<double, kUnknowns, 1>::Ones();
+    unit[0] = std::max(std::abs(x[0]), 0.1);
     std::vector<int> cols;
-    for (int j = 0; j < 4; ++j) {
+    for (int j = 0; j < kUnknowns; ++j) {
       if (free_block[j]) cols.push_back(j);
     }
     Eigen::MatrixXd js(jac.rows(), cols.size());
@@ -927,9 +987,10 @@ Status IdentifyFromModes(const model::Member& member, const ModalIdentification&
     }
   }
   {
-    static const char* names[4] = {"axial force", "bending stiffness", "left fixity", "right fixity"};
+    static const char* names[kUnknowns] = {"axial force", "bending stiffness", "left fixity", "right fixity",
+                                           "axial support stiffness"};
     std::string list;
-    for (int j = 0; j < 4; ++j) {
+    for (int j = 0; j < kUnknowns; ++j) {
       if (unidentified[j]) list += (list.empty() ? "" : ", ") + std::string(names[j]);
     }
     est.identifiability =
@@ -946,9 +1007,12 @@ Status IdentifyFromModes(const model::Member& member, const ModalIdentification&
   // Unidentified fixities enter the covariance with a range prior (see
   // CovarianceAt) and are reported with the whole range [0, 1]; the profile
   // likelihood of N re-optimises them within their bounds.
-  const std::array<bool, 4> held = {!free_block[0], !free_block[1], !free_block[2], !free_block[3]};
-  const std::array<bool, 4> range_prior = {false, false, unidentified[2], unidentified[3]};
-  Eigen::Matrix4d cov;
+  Blocks held{}, range_prior{};
+  for (int j = 0; j < kUnknowns; ++j) {
+    held[j] = !free_block[j];
+    range_prior[j] = j >= kLeft && unidentified[j];
+  }
+  CovarianceMatrix cov;
   const bool have_cov = CovarianceAt(ctx, x, held, range_prior, &cov);
   if (have_cov) cov *= cov_scale;
   auto std_of = [&](int j) {
@@ -983,22 +1047,22 @@ Status IdentifyFromModes(const model::Member& member, const ModalIdentification&
       double step =
           std::isfinite(n_std) && n_std > 0.0 ? kZ95 * std_of(0) : 0.1 * std::max(std::abs(x[0]), 1.0);
       step = std::max(step, 1e-3 * std::max(std::abs(x[0]), 0.1));
-      Vec4 xa = x;
+      Unknowns xa = x;
       double da = 0.0;
       bool closed = false;
       double boundary = x[0];
       for (int it = 0; it < kMaxProfileSteps; ++it) {
-        Vec4 xs = xa;
+        Unknowns xs = xa;
         xs[0] = xa[0] + sign * step;
         // Start the others at their conditional mean given N under the
         // Gauss-Newton (Wald) approximation, x_j + cov(j, N) / cov(N, N) dN
         // (the regression of x_j on N): near the profile's optimum, so the
         // held-N fit needs few iterations; fixities stay in their range.
         if (have_cov && cov(0, 0) > 0.0) {
-          for (int j = 1; j < 4; ++j) {
+          for (int j = 1; j < kUnknowns; ++j) {
             if (!free_block[j]) continue;
             xs[j] += cov(j, 0) / cov(0, 0) * (xs[0] - xa[0]);
-            if (j >= 2) xs[j] = std::clamp(xs[j], kFixityOffset, kFixityOffset + 1.0);
+            if (j >= kLeft) xs[j] = std::clamp(xs[j], kFixityOffset, kFixityOffset + 1.0);
           }
         }
         FitOutcome o = RunFit(ctx, xs, true, options);
@@ -1082,6 +1146,8 @@ Status IdentifyFromModes(const model::Member& member, const ModalIdentification&
   };
   est.fixity_left = fixity(2, ctx.free_left, final_ok ? final_modes.fixity_left : 0.0);
   est.fixity_right = fixity(3, ctx.free_right, final_ok ? final_modes.fixity_right : 0.0);
+  est.axial_support_ratio = fixity(kAxial, ctx.free_axial, rho_declared);
+  est.axial_support_stiffness_n_per_m = SupportStiffness(est.axial_support_ratio.value, ctx.ea_over_l);
 
   // Modes with pairing and model values at the estimate.
   for (size_t i = 0; i < measured.size(); ++i) {
@@ -1104,8 +1170,7 @@ Status IdentifyFromModes(const model::Member& member, const ModalIdentification&
   }
 
   {
-    model::ModalParameters p =
-        ctx.Params(n_hat, ctx.EI(x.data()), x[2] - kFixityOffset, x[3] - kFixityOffset);
+    const model::ModalParameters p = ctx.Params(x);
     double n_cr = 0.0;
     if (ctx.model->CriticalCompression(p, &n_cr).ok()) est.critical_compression_n = n_cr;
   }
@@ -1149,6 +1214,15 @@ Status IdentifyFromModes(const model::Member& member, const ModalIdentification&
   };
   at_bound(est.fixity_left, "left");
   at_bound(est.fixity_right, "right");
+  if (ctx.free_axial && est.axial_support_ratio.identifiable) {
+    const double rho = est.axial_support_ratio.value;
+    if (rho <= kFixityBoundDistance || rho >= 1.0 - kFixityBoundDistance) {
+      est.cautions.push_back({"axial-support-at-bound",
+                              std::string("The axial support stiffness sits at ") +
+                                  (rho < 0.5 ? "0 (supports free to move axially)" : "rigid supports") +
+                                  ", the bound of its range; its interval is one-sided."});
+    }
+  }
   if (n_hi - n_lo > kWideIntervalShare * std::abs(n_hat)) {
     est.cautions.push_back({"wide-interval", "The 95 % interval of the axial force [" + FormatKn(n_lo) +
                                                  ", " + FormatKn(n_hi) + "] is wider than " +

@@ -9,7 +9,13 @@
 //   N                      axial force, bounded below only by buckling,
 //   ln EI                  EI > 0,
 //   r_left, r_right        fixity factors in [0, 1] of `elastic` ends only
-//                          (pinned, clamped and known-spring ends are held).
+//                          (pinned, clamped and known-spring ends are held),
+//   rho                    axial support ratio k_ax / (EA/L) in [0, 1], only
+//                          for a declared axial support spring in the
+//                          vertical plane whose sag coupling moves the lowest
+//                          paired mode by more than its std (the declared
+//                          stiffness is then the start; `fixed` and `free`
+//                          axial ends are held as declared).
 // Objective (Ceres: cost = 1/2 sum of squared residuals):
 //   per paired mode k:   (f_k - f_model,k(theta)) / sigma_k,
 //                        sigma_k = max(frequency_std_hz, kMinRelativeFrequencyStd f_k);
@@ -41,6 +47,7 @@
 // identifiability, profile -> cautions.
 #pragma once
 
+#include <limits>
 #include <optional>
 #include <string>
 #include <vector>
@@ -95,6 +102,10 @@ struct IdentifyOptions {
   PairingOptions pairing;
   // Compute the profile-likelihood interval of N (a few extra fits).
   bool profile_axial_force = true;
+  // Estimate the axial support stiffness where it applies (a declared
+  // support spring, vertical plane, sag coupling that moves the lowest
+  // mode by more than its std; identify.cpp). false: the declared value holds.
+  bool estimate_axial_support = true;
 };
 
 // One identified quantity: value, one-sigma std and 95 % interval, or
@@ -181,6 +192,16 @@ struct Estimate {
   EstimatedQuantity bending_stiffness_nm2;
   EstimatedQuantity fixity_left;  // r in [0, 1]
   EstimatedQuantity fixity_right;
+  // Axial support ratio rho = k_ax / (EA/L) in [0, 1] (k_ax the series axial
+  // stiffness of member and supports, parameters.h): 1 = rigid supports,
+  // 0 = supports free to move axially. `fixed` (the declared value) unless
+  // estimated; the support stiffness k_s = (EA/L) rho / (1 - rho) [N/m]
+  // (+inf for rigid supports).
+  EstimatedQuantity axial_support_ratio{1.0, 0.0, 1.0, 1.0, true, true};
+  double axial_support_stiffness_n_per_m = std::numeric_limits<double>::infinity();
+  // |f(rho = 1) - f(rho = 0)| of the lowest paired mode at the pairing point
+  // [Hz] (computed for a declared support spring in the vertical plane only).
+  double axial_support_sag_shift_hz = 0.0;
   std::vector<EstimatedMode> modes;     // every measured mode, ascending frequency
   double critical_compression_n = 0.0;  // at the estimate
   // Plain-words identifiability verdict, e.g. "all unknowns separated" or

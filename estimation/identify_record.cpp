@@ -42,6 +42,7 @@ model::ModalParameters ParamsOf(const model::Member& member, const Estimate& e) 
   p.bending_stiffness_nm2 = e.bending_stiffness_nm2.value;
   if (Elastic(member.left)) p.fixity_left = e.fixity_left.value;
   if (Elastic(member.right)) p.fixity_right = e.fixity_right.value;
+  if (!e.axial_support_ratio.fixed) p.axial_support_stiffness_n_per_m = e.axial_support_stiffness_n_per_m;
   return p;
 }
 
@@ -198,6 +199,17 @@ Status TransientPath(const model::Member& member, const Record& record, const Ei
   // member (beam_fe.h adds sensor masses whatever their direction), its
   // channel leaves the fitted columns.
   model::Member fit_member = member;
+  // An estimated axial support enters the transient model as the member's
+  // declared spring (FitTransient holds it).
+  if (!modal.axial_support_ratio.fixed) {
+    if (std::isfinite(modal.axial_support_stiffness_n_per_m) && modal.axial_support_stiffness_n_per_m > 0.0) {
+      fit_member.axial.kind = model::AxialEnds::Kind::kSpring;
+      fit_member.axial.stiffness_n_per_m = modal.axial_support_stiffness_n_per_m;
+    } else {
+      fit_member.axial.kind = modal.axial_support_stiffness_n_per_m > 0.0 ? model::AxialEnds::Kind::kFixed
+                                                                          : model::AxialEnds::Kind::kFree;
+    }
+  }
   std::vector<int> cols;
   {
     const std::vector<int> all = PlaneColumns(member, plane, record);
@@ -256,17 +268,6 @@ Status TransientPath(const model::Member& member, const Record& record, const Ei
   if (Status s = FilterAndDecimate(plane_y, taps, q, &window); !s.ok()) return s;
   const double fs_fit = fs / q;
 
-  // Noise reference: the record's last second after the same filter.
-  double noise_var = std::numeric_limits<double>::quiet_NaN();
-  {
-    const Eigen::Index tail = std::lround(fs) + taps.size();
-    if (y.rows() >= tail && y.rows() - tail >= begin) {
-      Eigen::MatrixXd t(tail, static_cast<Eigen::Index>(cols.size())), tf;
-      for (size_t c = 0; c < cols.size(); ++c) t.col(c) = y.col(cols[c]).tail(tail);
-      if (FilterAndDecimate(t, taps, q, &tf).ok() && tf.size() > 0) noise_var = tf.squaredNorm() / tf.size();
-    }
-  }
-
   // Start from the modal estimate.
   TransientFitStart start;
   start.axial_force_n = modal.axial_force_n.value;
@@ -293,11 +294,12 @@ Status TransientPath(const model::Member& member, const Record& record, const Ei
       1 + fo.fit_bending_stiffness + Elastic(member.left) + Elastic(member.right) + 1 + 2 * k;
   const int n_res = static_cast<int>(window.size());
   e.fit.degrees_of_freedom = n_res - n_unknowns;
-  const double ssr = r.residual_rms_m_s2 * r.residual_rms_m_s2 * n_res;
-  const double sigma2 =
-      std::isfinite(noise_var) && noise_var > 0.0 ? noise_var : ssr / std::max(1, e.fit.degrees_of_freedom);
-  e.fit.cost = 0.5 * ssr / sigma2;
-  e.fit.reduced_chi2 = e.fit.degrees_of_freedom > 0 ? 2.0 * e.fit.cost / e.fit.degrees_of_freedom : 0.0;
+  // The noise variance is estimated from the residual (FitTransient: s^2 =
+  // sum r^2 / dof, Seber and Wild 1989, sec. 2.1), so in those units the
+  // cost is dof / 2 and the reduced chi-square 1 by construction; the fit's
+  // quality is residual_rms against signal_rms (the poor-fit caution).
+  e.fit.cost = 0.5 * std::max(0, e.fit.degrees_of_freedom);
+  e.fit.reduced_chi2 = e.fit.degrees_of_freedom > 0 ? 1.0 : 0.0;
   e.fit.iterations = r.iterations;
   e.fit.starts = 1;
   e.fit.starts_at_best = 1;

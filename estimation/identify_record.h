@@ -38,7 +38,10 @@
 //  4. The estimate: N, EI, fixities and their Wald intervals from the
 //     time-domain fit; the measured modes with model frequencies and MAC at
 //     the new estimate; cautions of the record, the modal identification,
-//     the transient fit and the member.
+//     the transient fit and the member. The noise variance comes from the
+//     residual, so fit.reduced_chi2 is 1 by construction and the fit quality
+//     is TransientSummary::residual_rms_m_s2 against signal_rms_m_s2; an
+//     estimated axial support stiffness is held at the modal value.
 #pragma once
 
 #include <functional>

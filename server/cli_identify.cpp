@@ -3,6 +3,7 @@
 // identification -> model updating -> for free decays and large amplitudes
 // the nonlinear time-domain fit), as a short table or the FORMATS.md
 // section 3 JSON object.
+#include <cmath>
 #include <iomanip>
 #include <nlohmann/json.hpp>
 #include <ostream>
@@ -82,6 +83,14 @@ void PrintTable(std::ostream& out, const model::Member& member, const std::strin
                 FixedEndText(member.left, e.fixity_left.value));
   PrintQuantity(out, "fixity right", e.fixity_right, 1.0, 3, "",
                 FixedEndText(member.right, e.fixity_right.value));
+  if (!e.axial_support_ratio.fixed) {
+    PrintQuantity(out, "axial support ratio", e.axial_support_ratio, 1.0, 3, "", "");
+    out << "  " << std::setw(19) << ""
+        << "(k_ax / (EA/L): 1 rigid, 0 free; support stiffness "
+        << (std::isfinite(e.axial_support_stiffness_n_per_m) ? Sig(e.axial_support_stiffness_n_per_m) + " N/m"
+                                                             : std::string("rigid"))
+        << ")\n";
+  }
   out << "\n  " << std::setw(6) << "order" << std::setw(14) << "measured_hz" << std::setw(10) << "std_hz"
       << std::setw(12) << "model_hz" << std::setw(8) << "MAC"
       << "\n";

@@ -32,6 +32,8 @@ nlohmann::json EstimateToJson(const estimation::Estimate& e) {
   j["axial_force_n"] = Quantity(e.axial_force_n);
   j["bending_stiffness_nm2"] = Quantity(e.bending_stiffness_nm2);
   j["end_fixity"] = {{"left", Quantity(e.fixity_left)}, {"right", Quantity(e.fixity_right)}};
+  j["axial_support"] = {{"ratio", Quantity(e.axial_support_ratio)},
+                        {"stiffness_n_per_m", Number(e.axial_support_stiffness_n_per_m)}};
   j["modes"] = nlohmann::json::array();
   j["unpaired_modes"] = nlohmann::json::array();
   for (const auto& m : e.modes) {

@@ -6,7 +6,10 @@
 // member description is {"value", "fixed": true} with no interval. SI units;
 // axial force N > 0 in tension.
 //
-// Keys beyond the contract (FORMATS.md: "at least these keys"): "plane",
+// Keys beyond the contract (FORMATS.md: "at least these keys"):
+// "axial_support" ({"ratio": quantity of rho = k_ax / (EA/L) in [0, 1],
+// fixed unless estimated (estimation/identify.h), "stiffness_n_per_m": the
+// support stiffness at that ratio, null for rigid supports}), "plane",
 // "identifiability", "critical_compression_n", "unpaired_modes" (measured
 // modes that pair with no model mode; no order, no model values), and in
 // "fit": "starts_at_best", "forward_model_calls", "elements",

@@ -73,6 +73,10 @@ TEST(EstimateJson, FollowsFormatsSection3) {
   for (const char* key : {"cost", "reduced_chi2", "iterations", "starts", "seconds"}) {
     EXPECT_TRUE(j["fit"].contains(key)) << key;
   }
+  // Axial support beside the contract keys: declared (fixed) here, rigid
+  // supports have no finite stiffness (null).
+  EXPECT_EQ(j["axial_support"]["ratio"], nlohmann::json({{"value", 1.0}, {"fixed", true}}));
+  EXPECT_TRUE(j["axial_support"]["stiffness_n_per_m"].is_null());
   // Cautions and the standing notice.
   ASSERT_EQ(j["cautions"].size(), 1u);
   EXPECT_EQ(j["cautions"][0]["code"], "unpaired-mode");
