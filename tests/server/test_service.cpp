@@ -98,6 +98,11 @@ class ServeProcess {
     return port;
   }
 
+  // Sends `sig` without reaping (SIGSTOP / SIGCONT).
+  void Signal(int sig) {
+    if (pid_ > 0) ::kill(pid_, sig);
+  }
+
   // Sends `sig` and reaps the child; returns its wait status.
   int Kill(int sig) {
     int status = 0;
@@ -312,43 +317,46 @@ TEST_F(ServiceTest, SigkillWithQueuedAndRunningJobsLosesNothing) {
     const json r = Upload(member, csv);
     sent.push_back({r["record_id"], r["job_id"], Sha256Hex(csv)});
   }
-  // Wait (bounded) until a job is running, then kill at once.
-  auto c = Client();
-  bool running = false;
-  for (int k = 0; k < 400 && !running; ++k) {
+  // Freeze the child (SIGSTOP) at a moment when the file shows one job
+  // running and others queued, then kill it: the moment is exact, not a
+  // race between a poll and the kill. WAL mode lets this process read while
+  // the stopped one holds its connection.
+  storage::Database db;
+  ASSERT_TRUE(db.Open(db_).ok());
+  storage::Repository repo(db);
+  storage::Organisation org;
+  ASSERT_TRUE(repo.FindOrganisationByName("Oskerton bridge works", &org).ok());
+  auto count = [&](storage::JobState state) {
+    int n = 0;
     for (const auto& s : sent) {
-      running |= json::parse(c.Get("/v1/jobs/" + std::to_string(s.job))->body)["state"] == "running";
+      storage::Job job;
+      if (repo.GetJob(org.id, s.job, &job).ok() && job.state == state) ++n;
     }
-    if (!running) std::this_thread::sleep_for(5ms);
+    return n;
+  };
+  bool caught = false;
+  for (int k = 0; k < 400 && !caught; ++k) {
+    serve_.Signal(SIGSTOP);
+    caught = count(storage::JobState::kRunning) == 1 && count(storage::JobState::kQueued) > 0;
+    if (!caught) {
+      serve_.Signal(SIGCONT);
+      std::this_thread::sleep_for(2ms);
+    }
   }
-  ASSERT_TRUE(running);
+  ASSERT_TRUE(caught) << "never saw a running job with queued ones";
   const int status = serve_.Kill(SIGKILL);
   ASSERT_TRUE(WIFSIGNALED(status) && WTERMSIG(status) == SIGKILL);
 
-  // The file as the kill left it: a job running and jobs queued (the case
-  // under test), every acknowledged record with the hash of its upload and
-  // samples matching their stored SHA-256 (FIPS 180-4 via OpenSSL).
-  {
-    storage::Database db;
-    ASSERT_TRUE(db.Open(db_).ok());
-    storage::Repository repo(db);
-    storage::Organisation org;
-    ASSERT_TRUE(repo.FindOrganisationByName("Oskerton bridge works", &org).ok());
-    int left_running = 0, left_queued = 0;
-    for (const auto& s : sent) {
-      storage::Record r;
-      ASSERT_TRUE(repo.GetRecord(org.id, s.record, &r).ok()) << s.record;
-      EXPECT_EQ(r.content_sha256, s.sha);
-      EXPECT_EQ(Sha256Hex(storage::EncodeSamples(r.samples)), r.samples_sha256);
-      EXPECT_EQ(r.sample_count, 38400);  // 300 s at 128 Hz
-      storage::Job job;
-      ASSERT_TRUE(repo.GetJob(org.id, s.job, &job).ok());
-      left_running += job.state == storage::JobState::kRunning;
-      left_queued += job.state == storage::JobState::kQueued;
-    }
-    ASSERT_EQ(left_running, 1);
-    ASSERT_GT(left_queued, 0);
+  // Every acknowledged record is in the file with the hash of its upload
+  // and samples matching their stored SHA-256 (FIPS 180-4 via OpenSSL).
+  for (const auto& s : sent) {
+    storage::Record r;
+    ASSERT_TRUE(repo.GetRecord(org.id, s.record, &r).ok()) << s.record;
+    EXPECT_EQ(r.content_sha256, s.sha);
+    EXPECT_EQ(Sha256Hex(storage::EncodeSamples(r.samples)), r.samples_sha256);
+    EXPECT_EQ(r.sample_count, 38400);  // 300 s at 128 Hz
   }
+  EXPECT_EQ(count(storage::JobState::kRunning), 1);
   // After a restart every job finishes, the interrupted one included.
   StartServe(2);
   std::vector<std::int64_t> jobs;
