@@ -55,6 +55,11 @@ int Member::SensorCount(Direction d) const {
   return n;
 }
 
+Direction Member::MajorityPlane() const {
+  return SensorCount(Direction::kLateral) > SensorCount(Direction::kVertical) ? Direction::kLateral
+                                                                              : Direction::kVertical;
+}
+
 namespace {
 
 bool PositiveFinite(double v) { return std::isfinite(v) && v > 0.0; }

@@ -102,6 +102,9 @@ struct Member {
   double Slenderness(Direction d) const;
   // Number of sensors in the plane `d`.
   int SensorCount(Direction d) const;
+  // The plane most of the sensors lie in (vertical on a tie, on a tie
+  // between the planes, and when there are none).
+  Direction MajorityPlane() const;
 };
 
 // Checks the preconditions every model function relies on (positive length,

@@ -8,9 +8,7 @@ namespace taut::server {
 model::Direction ChooseDirection(const model::Member& member, const std::string& flag) {
   if (flag == "vertical") return model::Direction::kVertical;
   if (flag == "lateral") return model::Direction::kLateral;
-  return member.SensorCount(model::Direction::kLateral) > member.SensorCount(model::Direction::kVertical)
-             ? model::Direction::kLateral
-             : model::Direction::kVertical;
+  return member.MajorityPlane();
 }
 
 int Main(int argc, const char* const* argv, std::ostream& out, std::ostream& err) {

@@ -258,12 +258,6 @@ Status ModelShapesJson(const storage::Estimate& estimate, const model::Member& m
 
 // --------------------------------------------------------------------- drift
 
-model::Direction MajorityPlane(const model::Member& member) {
-  return member.SensorCount(model::Direction::kLateral) > member.SensorCount(model::Direction::kVertical)
-             ? model::Direction::kLateral
-             : model::Direction::kVertical;
-}
-
 Status EffectiveDriftSettings(const model::Member& member, const std::string* stored_json,
                               model::Direction plane, estimation::DriftSettings* settings) {
   estimation::DriftSettings s;

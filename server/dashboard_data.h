@@ -104,10 +104,6 @@ Status MemberDriftJson(const model::Member& member, const estimation::DriftSetti
                        const nlohmann::json& settings_json, const std::vector<storage::Estimate>& history,
                        std::int64_t from_unix_ms, std::int64_t to_unix_ms, nlohmann::json* out);
 
-// The plane most of the member's sensors lie in (vertical on a tie; ties
-// go to vertical), the plane the identification fits.
-model::Direction MajorityPlane(const model::Member& member);
-
 // ---- end fixity history (GET /v1/members/{id}/fixity/history)
 
 // {"estimate_id", "measured_at", "left": q, "right": q} with q the stored

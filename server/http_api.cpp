@@ -975,7 +975,7 @@ struct ApiServer::Impl {
     if (!st.ok() && !st.not_found()) Check(st);
     estimation::DriftSettings settings;
     if (Status s =
-            EffectiveDriftSettings(member, st.ok() ? &text : nullptr, MajorityPlane(member), &settings);
+            EffectiveDriftSettings(member, st.ok() ? &text : nullptr, member.MajorityPlane(), &settings);
         !s.ok()) {
       Fail(500, "internal", "stored drift settings of member " + std::to_string(m.id) + ": " + s.message);
     }

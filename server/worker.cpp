@@ -302,23 +302,16 @@ struct WorkerPool::Impl {
     // A rule whose alert is still open or acknowledged for this member does
     // not raise another: one alert per condition until someone resolves it
     // (its evidence names the estimate where the condition started).
-    std::vector<storage::Alert> unresolved, acknowledged;
-    if (StorageStatus s =
-            repo.ListAlerts(organisation_id, {member_id, storage::AlertState::kOpen}, &unresolved);
-        !s.ok()) {
+    std::vector<storage::Alert> alerts;
+    if (StorageStatus s = repo.ListAlerts(organisation_id, {member_id, std::nullopt}, &alerts); !s.ok()) {
       return Log("level=error " + where + ": " + s.message);
     }
-    if (StorageStatus s =
-            repo.ListAlerts(organisation_id, {member_id, storage::AlertState::kAcknowledged}, &acknowledged);
-        !s.ok()) {
-      return Log("level=error " + where + ": " + s.message);
-    }
-    unresolved.insert(unresolved.end(), acknowledged.begin(), acknowledged.end());
     bool raised = false;
     for (const auto& alert : report.alerts) {
       if (!index || alert.index != *index) continue;
-      const bool standing = std::any_of(unresolved.begin(), unresolved.end(), [&](const storage::Alert& a) {
-        return a.rule == alert.rule && a.estimate_id != estimate_id;
+      const bool standing = std::any_of(alerts.begin(), alerts.end(), [&](const storage::Alert& a) {
+        return a.state != storage::AlertState::kResolved && a.rule == alert.rule &&
+               a.estimate_id != estimate_id;
       });
       if (standing) continue;
       const bool ei_rule = alert.rule.rfind("ei", 0) == 0;

@@ -1219,9 +1219,9 @@ StorageStatus Repository::SetDriftSettings(Id organisation_id, Id member_id, std
         db_.handle(),
         "SELECT 1 FROM member WHERE id = ?1 AND organisation_id = ?2 AND deleted_at_unix_ms IS NULL");
     member.Bind(1, member_id).Bind(2, organisation_id);
-    const int rc = member.Step();
-    if (rc == SQLITE_DONE) return StorageStatus::NotFound(IdText("member", member_id) + " not found");
-    if (rc != SQLITE_ROW) return member.status();
+    if (StorageStatus m = ReadOne(member, IdText("member", member_id), [](const Statement&) {}); !m.ok()) {
+      return m;
+    }
     if (StorageStatus f = Fault(); !f.ok()) return f;
     Statement s(db_.handle(),
                 "INSERT INTO member_drift_settings (organisation_id, member_id, settings_json, "

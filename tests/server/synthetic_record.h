@@ -12,29 +12,18 @@
 
 namespace taut::testing {
 
-struct RecordSpec {
-  double duration_s = 120.0;
-  double sample_rate_hz = 256.0;
-  int modes = 5;
-  double damping_ratio = 0.01;
-  double noise_share = 0.02;
-  unsigned seed = 1;
-  std::vector<std::string> channel_override;  // rename channels (bad-input tests)
+// The record of model/ambient_synthesis.h (same fields and defaults), and
+// channel renames for bad-input tests.
+struct RecordSpec : model::AmbientSpec {
+  std::vector<std::string> channel_override;
 };
 
 // Writes the CSV; false when the model fails or the file cannot be written.
 inline bool WriteSyntheticRecord(const std::string& path, const model::Member& member, model::Direction d,
                                  const model::ModalParameters& truth, const RecordSpec& spec) {
-  model::AmbientSpec as;
-  as.duration_s = spec.duration_s;
-  as.sample_rate_hz = spec.sample_rate_hz;
-  as.modes = spec.modes;
-  as.damping_ratio = spec.damping_ratio;
-  as.noise_share = spec.noise_share;
-  as.seed = spec.seed;
   std::vector<std::string> names;
   Eigen::MatrixXd a;
-  if (!model::SynthesizeAmbient(member, d, truth, as, &names, &a).ok()) return false;
+  if (!model::SynthesizeAmbient(member, d, truth, spec, &names, &a).ok()) return false;
   const double dt = 1.0 / spec.sample_rate_hz;
   const long n = a.rows();
   const size_t channels = names.size();

@@ -247,7 +247,7 @@ TEST(MemberDrift, BaselineAndLimitsFollowTheLeastSquaresFormulas) {
     history.push_back(e);
   }
   estimation::DriftSettings settings;
-  ASSERT_TRUE(EffectiveDriftSettings(member, nullptr, MajorityPlane(member), &settings).ok());
+  ASSERT_TRUE(EffectiveDriftSettings(member, nullptr, member.MajorityPlane(), &settings).ok());
   ASSERT_EQ(settings.baseline_count, 10u);
   json out;
   // Window: the last 6 estimates.
