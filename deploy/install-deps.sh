@@ -27,6 +27,9 @@ PACKAGES=(
   clang-format        # style check
   chromium            # tests/ui: the dashboard end to end in a headless browser
   chromium-driver     # tests/ui: WebDriver (plain HTTP + JSON) that drives it
+  dpkg-dev            # the Debian package: CPack's dpkg-shlibdeps writes Depends
+  systemd             # tests/deploy: systemd-analyze verify of the unit
+  groff-base          # tests/deploy: the man page read without warnings
 )
 
 missing=()
