@@ -17,6 +17,8 @@ PACKAGES=(
   libcpp-httplib-dev  # server/: HTTP
   nlohmann-json3-dev  # server/: JSON
   libsqlite3-dev      # storage/
+  libpq-dev           # storage/: the PostgreSQL backend (libpq)
+  postgresql          # tests/storage: a real server started by test_postgres
   libssl-dev          # SHA-256 of uploads, token hashes
   libcli11-dev        # command-line parsing of the taut executable
   libgtest-dev        # tests
