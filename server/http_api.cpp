@@ -262,7 +262,7 @@ std::optional<Id> QueryId(const httplib::Request& req, const char* name) {
 // --------------------------------------------------------- record uploads
 
 // Builds the record from a JSON body (docs/API.md), checking the same rules
-// as the CSV reader (FORMATS.md section 2) with JSON paths in the messages.
+// as the CSV reader (docs/FORMATS.md section 2) with JSON paths in the messages.
 estimation::Record RecordFromJson(const json& j, const model::Member& member) {
   static const std::vector<std::string> kKeys = {"recorded_at",    "temperature_c", "units",  "excitation",
                                                  "sample_rate_hz", "channels",      "samples"};
@@ -618,7 +618,7 @@ struct ApiServer::Impl {
   }
 
   // ---- members
-  // Validates a member description body (FORMATS.md section 1, id required).
+  // Validates a member description body (docs/FORMATS.md section 1, id required).
   model::Member ParseMemberBody(const httplib::Request& req) {
     model::Member member;
     if (Status s = ParseMember(req.body, &member, MemberReadOptions{.require_id = true}); !s.ok()) {
@@ -728,9 +728,10 @@ struct ApiServer::Impl {
         Fail(400, "bad-request", s.message);
     } else {
       Fail(415, "unsupported-media-type",
-           "Content-Type \"" + content_type + "\": send text/csv (FORMATS.md section 2) or application/json");
+           "Content-Type \"" + content_type +
+               "\": send text/csv (docs/FORMATS.md section 2) or application/json");
     }
-    // Query parameters override the record's own metadata (FORMATS.md section 2).
+    // Query parameters override the record's own metadata (docs/FORMATS.md section 2).
     if (auto v = Query(c.req, "recorded_at")) record.recorded_at = *v;
     if (auto v = QueryNumber(c.req, "temperature_c")) record.temperature_c = *v;
     if (auto v = Query(c.req, "units")) {
