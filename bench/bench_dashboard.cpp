@@ -176,7 +176,7 @@ struct Fixture {
       Check(repo.ClaimNextJob(now, &job, &claimed), "claim");
       if (!claimed) Die("no job");
       // About 0.4 kN per kelvin, as an axially restrained 28 mm tie loses
-      // (E A alpha = 1.9e11 x 6.2e-4 x 12e-6, DESIGN.md).
+      // (E A alpha = 1.9e11 x 6.2e-4 x 12e-6, docs/DESIGN.md).
       const double force = 30000 - 420 * (t - 10) + 250 * g(rng);
       json result = base_result;
       result["axial_force_n"] = {{"value", force}, {"std", 300.0}, {"ci95", {force - 600, force + 600}}};

@@ -17,8 +17,8 @@
 //    section 2.2: least-squares estimates b1 = Sxy / Sxx, b0 = ybar), with
 //    the residual variance s^2 = SSE / (n - 2) (section 2.2.3). Section and
 //    equation numbers of MPV and Montgomery below are recalled from memory. An axially restrained member
-//    loses about E A alpha per kelvin of warming (DESIGN.md), which b1 absorbs. With a baseline that spans
-//    less than kMinBaselineTemperatureSpread_c, or whose points lack temperatures, the slope cannot be
+//    loses about E A alpha per kelvin of warming (docs/DESIGN.md), which b1 absorbs. With a baseline that
+//    spans less than kMinBaselineTemperatureSpread_c, or whose points lack temperatures, the slope cannot be
 //    estimated: the mean alone is fitted (s^2 = SSE / (n - 1)) and a caution says so.
 // 3. Standardised residual of a later point (x, std, T0):
 //      z = (x - x_pred(T0)) / sqrt(s_pred^2 + std^2),
@@ -116,7 +116,7 @@ struct DriftSettings {
   double cusum_k = 0.5;         // reference value, in units of z, >= 0
   double cusum_h = 8.0;         // decision interval, in units of z, > 0
 
-  std::optional<double> design_force_n;    // FORMATS.md design_axial_force_n
+  std::optional<double> design_force_n;    // docs/FORMATS.md design_axial_force_n
   double min_force_share_of_design = 0.5;  // in (0, 1]
   bool designed_for_tension = true;        // compression rule on/off
   std::optional<double> nominal_ei_nm2;    // reference of the ei-loss rule

@@ -593,7 +593,7 @@ Status IdentifyFromModes(const model::Member& member, const ModalIdentification&
   est.cautions = ident.cautions;
   // Large amplitude: the free-decay backbone of an impact record shows the
   // frequency moving with amplitude (membrane stretching hardens the member,
-  // DESIGN.md; Nayfeh and Mook 1979), so the linear tangent model, fitted to
+  // docs/DESIGN.md; Nayfeh and Mook 1979), so the linear tangent model, fitted to
   // the identified frequencies, is biased towards the larger amplitudes.
   if (ident.impact && ident.impact->backbone.size() >= 2) {
     double f_min = std::numeric_limits<double>::infinity(), f_max = 0.0;

@@ -1,6 +1,6 @@
 // Model updating: identified modes -> axial force N, bending stiffness EI
 // and end fixities of a member, with intervals, identifiability and
-// cautions (issue 4; DESIGN.md "Estimation" step 4).
+// cautions (issue 4; docs/DESIGN.md "Estimation" step 4).
 //
 // Sign convention: N > 0 in tension. Units: SI, suffix on every field.
 //
@@ -78,7 +78,7 @@ inline constexpr double kDesignForceDeviationShare = 0.3;
 // stds of a good record; common practice, recalled value).
 inline constexpr double kLargeAmplitudeFrequencyShift = 0.005;
 // Slenderness L / r_g below which Euler-Bernoulli theory is doubtful
-// (DESIGN.md; shear and rotary inertia matter for stockier members).
+// (docs/DESIGN.md; shear and rotary inertia matter for stockier members).
 inline constexpr double kStockySlenderness = 50.0;
 
 struct IdentifyOptions {
@@ -129,7 +129,7 @@ struct EstimatedMode {
   double mac = 0.0;                 // measured vs model shape at the in-plane channels
 };
 
-// FitSummary::model values (FORMATS.md section 3 `fit.model`).
+// FitSummary::model values (docs/FORMATS.md section 3 `fit.model`).
 inline constexpr const char* kFitModelModal = "modal";          // tangent modal model fitted to modes
 inline constexpr const char* kFitModelTransient = "transient";  // nonlinear transient fitted to a decay
 
@@ -226,7 +226,7 @@ Status IdentifyFromModes(const model::Member& member, const ModalIdentification&
                          const IdentifyOptions& options, Estimate* estimate);
 
 // Appends the cautions that depend only on the member and the estimated
-// force (DESIGN.md "Cautions"): compression (near buckling above
+// force (docs/DESIGN.md "Cautions"): compression (near buckling above
 // kNearBucklingShare of critical_compression_n > 0), a member stockier than
 // kStockySlenderness in `plane`, and a force more than
 // kDesignForceDeviationShare away from the member's design force.

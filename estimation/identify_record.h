@@ -4,7 +4,7 @@
 // point that `taut identify` and the service's workers share, so both give
 // the same estimate for the same inputs.
 //
-// Choice of the model (Estimate::fit.model, FORMATS.md section 3):
+// Choice of the model (Estimate::fit.model, docs/FORMATS.md section 3):
 //  - "transient" for records with excitation = impact, and for records of
 //    any excitation whose dominant-mode amplitude makes the nonlinear
 //    (membrane-stretching) frequency shift exceed that mode's frequency std
@@ -112,7 +112,7 @@ Status IdentifyRecord(const model::Member& member, const Record& record, const I
 // differences of the model without sag; a_q = amplitude_m / max|phi|.
 // For a pinned-pinned beam with immovable ends this is the first-order
 // Woinowsky-Krieger (1950) result (3/32) k_ax L (pi/L)^2 a^2 / (N + pi^2 EI/L^2) f,
-// (3/32) (a/r)^2 f at N = 0 (DESIGN.md).
+// (3/32) (a/r)^2 f at N = 0 (docs/DESIGN.md).
 // `force_bias_n` (optional) receives the force a linear model would add to
 // explain that shift: 2 omega d omega / gamma.
 Status NonlinearFrequencyShift(const model::Member& member, model::Direction direction,

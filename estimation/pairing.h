@@ -6,7 +6,7 @@
 //     assignment of increasing orders to the measured modes (a mode may also
 //     be left out) is scored by the pinned-beam regression
 //       f_n^2 / n^2 = N / (4 m L^2) + n^2 pi^2 EI / (4 m L^4)
-//     (the pinned-pinned closed form of DESIGN.md squared; linear least
+//     (the pinned-pinned closed form of docs/DESIGN.md squared; linear least
 //     squares in a = N/(4 m L^2) and b = pi^2 EI/(4 m L^4)), the MAC of each
 //     measured shape with the pinned shape sin(n pi x / L) at the sensors,
 //     a penalty for every order below the highest that is missing although

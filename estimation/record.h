@@ -1,4 +1,4 @@
-// Acceleration records: the FORMATS.md section 2 CSV reader and the record
+// Acceleration records: the docs/FORMATS.md section 2 CSV reader and the record
 // quality checks.
 //
 // A record is read in one streaming pass (a fixed-size read buffer, no copy
@@ -37,7 +37,7 @@ enum class Excitation {
 
 const char* ToString(Excitation e);
 
-// ---- Limits of the format (FORMATS.md section 2) ----
+// ---- Limits of the format (docs/FORMATS.md section 2) ----
 inline constexpr int kMaxChannels = 64;
 // Data cells = samples x channels (the time column is not counted).
 inline constexpr std::int64_t kMaxCells = 50'000'000;

@@ -1,7 +1,7 @@
 // The member description: geometry, section, material, end conditions and
 // sensors of one slender member (tie-rod, hanger, truss diagonal, strut).
 //
-// This is the in-memory form of the FORMATS.md section 1 JSON document; the
+// This is the in-memory form of the docs/FORMATS.md section 1 JSON document; the
 // JSON mapping and its validation live in server/member_json.h. model/ only
 // states the preconditions its functions need (see ValidateMember).
 //
@@ -41,7 +41,7 @@ struct Section {
   // Cross-section area A [m^2].
   double Area() const;
   // Second moment of area I [m^4] for bending in the plane `d`. For a
-  // rectangle, depth_m is the dimension in the vertical plane (FORMATS.md:
+  // rectangle, depth_m is the dimension in the vertical plane (docs/FORMATS.md:
   // "in the plane of the sensed vibration"; when a member has sensors in
   // both planes, depth is taken in the vertical one), so
   // I_vertical = width depth^3 / 12 and I_lateral = depth width^3 / 12.

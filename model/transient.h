@@ -6,7 +6,7 @@
 // with N_s the axial force in the static (sagged) state, w_s the static sag
 // and k_ax the series axial stiffness of member and supports (parameters.h).
 // This is the uniform-N reduction of the von Karman beam (membrane strain
-// u' + w'^2/2; Woinowsky-Krieger 1950; DESIGN.md "The physics").
+// u' + w'^2/2; Woinowsky-Krieger 1950; docs/DESIGN.md "The physics").
 //
 // Equations of motion on the free DOFs of beam_fe.h (w total, measured from
 // the straight line through the supports; positive up / right):

@@ -26,6 +26,10 @@ void RegisterIdentifyCommand(CLI::App& app, CliContext* ctx);
 void RegisterModalCommand(CLI::App& app, CliContext* ctx);
 void RegisterServeCommand(CLI::App& app, CliContext* ctx);  // serve, token create
 void RegisterDemoCommand(CLI::App& app, CliContext* ctx);
+void RegisterFormatsCommand(CLI::App& app, CliContext* ctx);
+
+// Sections 1 and 2 of docs/FORMATS.md (generated at build time).
+const char* FormatsSummaryText();
 
 // SIGINT and SIGTERM for a long-running command: BlockStopSignals() before
 // any thread starts (threads inherit the mask, so a stop request never

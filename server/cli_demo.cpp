@@ -59,7 +59,7 @@ using nlohmann::json;
 // loss(t)) - k_T (T(t) - T_ref), fixities constant.
 struct DemoMember {
   std::string structure;  // key into the structures below
-  json description;       // FORMATS.md section 1
+  json description;       // docs/FORMATS.md section 1
   model::Direction plane;
   double force_ref_n;
   double force_per_kelvin_n;  // k_T: thermal force change of a partly restrained member

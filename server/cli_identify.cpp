@@ -1,7 +1,7 @@
 // `taut identify`: member + record -> axial force, bending stiffness and end
 // fixity with intervals (record reader -> estimation/identify_record.h: modal
 // identification -> model updating -> for free decays and large amplitudes
-// the nonlinear time-domain fit), as a short table or the FORMATS.md
+// the nonlinear time-domain fit), as a short table or the docs/FORMATS.md
 // section 3 JSON object.
 #include <cmath>
 #include <iomanip>
@@ -146,7 +146,7 @@ int RunIdentify(const IdentifyCliOptions& o, std::ostream& out, std::ostream& er
   }
   if (o.json) {
     nlohmann::json j = EstimateToJson(estimate);
-    // Record context beside the contract keys (FORMATS.md: "at least").
+    // Record context beside the contract keys (docs/FORMATS.md: "at least").
     j["member"] = member.id;
     j["record"] = {{"recorded_at", record.recorded_at},
                    {"temperature_c",
@@ -166,16 +166,16 @@ void RegisterIdentifyCommand(CLI::App& app, CliContext* ctx) {
   auto o = std::make_shared<IdentifyCliOptions>();
   CLI::App* cmd = app.add_subcommand(
       "identify", "Axial force, bending stiffness and end fixity of a member from an acceleration record");
-  cmd->add_option("--member", o->member_path, "member description (JSON, FORMATS.md section 1)")
+  cmd->add_option("--member", o->member_path, "member description (JSON, docs/FORMATS.md section 1)")
       ->required()
       ->check(CLI::ExistingFile);
-  cmd->add_option("--record", o->record_path, "acceleration record (CSV, FORMATS.md section 2)")
+  cmd->add_option("--record", o->record_path, "acceleration record (CSV, docs/FORMATS.md section 2)")
       ->required()
       ->check(CLI::ExistingFile);
   cmd->add_option("--units", o->units, "units of the record samples, overriding the file (m/s2 or g)")
       ->check(CLI::IsMember({"m/s2", "g"}));
   cmd->add_option("--temperature", o->temperature_c, "member temperature [C], overriding the file");
-  cmd->add_flag("--json", o->json, "print the JSON result (FORMATS.md section 3) instead of a table");
+  cmd->add_flag("--json", o->json, "print the JSON result (docs/FORMATS.md section 3) instead of a table");
   cmd->callback([o, ctx] { ctx->exit_code = RunIdentify(*o, *ctx->out, *ctx->err); });
 }
 

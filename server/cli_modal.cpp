@@ -5,7 +5,7 @@
 //
 // Prints the identified modes (frequency, its std, damping, shape at each
 // channel, MAC between the FDD and SSI-COV shapes), the cautions and the
-// standing notice; --json prints the `modes` array of FORMATS.md section 3
+// standing notice; --json prints the `modes` array of docs/FORMATS.md section 3
 // plus `cautions` and `notice`. With a member that declares
 // design_axial_force_n, modes get their bending `order` from the beam model
 // at that force when the pairing is unambiguous (see AssignOrders).
@@ -270,7 +270,8 @@ int RunModal(const ModalCliOptions& o, std::ostream& out, std::ostream& err) {
 void RegisterModalCommand(CLI::App& app, CliContext* ctx) {
   auto o = std::make_shared<ModalCliOptions>();
   CLI::App* cmd = app.add_subcommand("modal", "Modes (frequency, damping, shape) identified from a record");
-  cmd->add_option("--record", o->record_path, "acceleration record (CSV, FORMATS.md section 2)")->required();
+  cmd->add_option("--record", o->record_path, "acceleration record (CSV, docs/FORMATS.md section 2)")
+      ->required();
   cmd->add_option("--member", o->member_path, "member description (JSON): channels checked, modes numbered");
   cmd->add_option("--band", o->band, "frequency band LO:HI [Hz] (either side may be empty)");
   cmd->add_option("--units", o->units, "override the record's units")->check(CLI::IsMember({"m/s2", "g"}));

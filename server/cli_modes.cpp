@@ -89,7 +89,7 @@ int RunModes(const ModesOptions& o, std::ostream& out, std::ostream& err) {
 void RegisterModesCommand(CLI::App& app, CliContext* ctx) {
   auto o = std::make_shared<ModesOptions>();
   CLI::App* cmd = app.add_subcommand("modes", "Frequencies and mode shapes of a member for given parameters");
-  cmd->add_option("--member", o->member_path, "member description (JSON, FORMATS.md section 1)")
+  cmd->add_option("--member", o->member_path, "member description (JSON, docs/FORMATS.md section 1)")
       ->required()
       ->check(CLI::ExistingFile);
   cmd->add_option("--axial-force", o->axial_force_n, "axial force N [N], tension > 0")->required();

@@ -1,5 +1,5 @@
 // `taut simulate`: the nonlinear transient model writing a record CSV
-// (FORMATS.md section 2) of accelerations at the member's sensors, so that
+// (docs/FORMATS.md section 2) of accelerations at the member's sensors, so that
 // simulated and measured records go through the same tools.
 #include <cmath>
 #include <cstdio>

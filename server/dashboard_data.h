@@ -8,7 +8,7 @@
 // where every other route has them, and pass them here. Nothing here
 // touches the database or the network.
 //
-// Units: SI with the unit in every key (FORMATS.md); frequencies in Hz,
+// Units: SI with the unit in every key (docs/FORMATS.md); frequencies in Hz,
 // spectra in (m/s^2)^2/Hz, axial force N > 0 in tension, EI in N m^2, times
 // ISO 8601 UTC in the JSON.
 #pragma once

@@ -1,4 +1,4 @@
-// The identification result as JSON (FORMATS.md section 3, a contract).
+// The identification result as JSON (docs/FORMATS.md section 3, a contract).
 //
 // Keys of the contract: axial_force_n, bending_stiffness_nm2,
 // end_fixity.{left,right}, modes[], fit, cautions, notice. An identified
@@ -6,7 +6,7 @@
 // member description is {"value", "fixed": true} with no interval. SI units;
 // axial force N > 0 in tension.
 //
-// Keys beyond the contract (FORMATS.md: "at least these keys"):
+// Keys beyond the contract (docs/FORMATS.md: "at least these keys"):
 // "axial_support" ({"ratio": quantity of rho = k_ax / (EA/L) in [0, 1],
 // fixed unless estimated (estimation/identify.h), "stiffness_n_per_m": the
 // support stiffness at that ratio, null for rigid supports}), "plane",

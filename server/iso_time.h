@@ -1,4 +1,4 @@
-// ISO 8601 UTC times of the API and the record format (FORMATS.md section 2:
+// ISO 8601 UTC times of the API and the record format (docs/FORMATS.md section 2:
 // `recorded_at=2026-11-20T10:00:00Z`) <-> milliseconds since
 // 1970-01-01T00:00:00Z, the storage convention (storage/repository.h).
 #pragma once

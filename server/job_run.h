@@ -1,6 +1,6 @@
 // One identification job of the worker pool (worker.h): load the record and
 // the member version it was uploaded against, run the identification
-// (estimation/identify_record.h) and store the FORMATS.md section 3 result
+// (estimation/identify_record.h) and store the docs/FORMATS.md section 3 result
 // with the job (CompleteJobWithEstimate).
 #pragma once
 

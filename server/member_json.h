@@ -1,4 +1,4 @@
-// Reading and validating the member description (FORMATS.md section 1).
+// Reading and validating the member description (docs/FORMATS.md section 1).
 //
 // Every rule of the format is checked here, up front, and a failure is
 // reported as one line naming the JSON path, the offending value and the
@@ -30,7 +30,7 @@ Status MemberFromJson(const nlohmann::json& j, model::Member* member, MemberRead
 // Reads the file at `path`; errors are prefixed with the path.
 Status LoadMemberFile(const std::string& path, model::Member* member, MemberReadOptions options = {});
 
-// The FORMATS.md section 1 document for `member` (round-trips through
+// The docs/FORMATS.md section 1 document for `member` (round-trips through
 // MemberFromJson).
 nlohmann::json MemberToJson(const model::Member& member);
 

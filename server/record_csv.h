@@ -1,4 +1,4 @@
-// Writing a record as the FORMATS.md section 2 CSV: the download of a
+// Writing a record as the docs/FORMATS.md section 2 CSV: the download of a
 // stored record (GET /v1/records/{id}/csv) and the uploads of `taut demo`.
 #pragma once
 

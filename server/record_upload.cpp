@@ -1,4 +1,4 @@
-// POST /v1/members/{id}/records: a record upload (CSV, FORMATS.md section
+// POST /v1/members/{id}/records: a record upload (CSV, docs/FORMATS.md section
 // 2, or JSON, docs/API.md) is checked, stored and queued as a job in one
 // transaction.
 #include <algorithm>
@@ -25,7 +25,7 @@ using storage::Id;
 using storage::StorageStatus;
 
 // Builds the record from a JSON body (docs/API.md), checking the same rules
-// as the CSV reader (FORMATS.md section 2) with JSON paths in the messages.
+// as the CSV reader (docs/FORMATS.md section 2) with JSON paths in the messages.
 estimation::Record RecordFromJson(const json& j, const model::Member& member) {
   static const std::vector<std::string> kKeys = {"recorded_at",    "temperature_c", "units",  "excitation",
                                                  "sample_rate_hz", "channels",      "samples"};
@@ -139,9 +139,10 @@ void UploadRecord(Call& c) {
     if (Status s = estimation::ParseRecordCsv(in, ro, &record); !s.ok()) Fail(400, "bad-request", s.message);
   } else {
     Fail(415, "unsupported-media-type",
-         "Content-Type \"" + content_type + "\": send text/csv (FORMATS.md section 2) or application/json");
+         "Content-Type \"" + content_type +
+             "\": send text/csv (docs/FORMATS.md section 2) or application/json");
   }
-  // Query parameters override the record's own metadata (FORMATS.md section 2).
+  // Query parameters override the record's own metadata (docs/FORMATS.md section 2).
   if (auto v = Query(c.req, "recorded_at")) record.recorded_at = *v;
   if (auto v = QueryNumber(c.req, "temperature_c")) record.temperature_c = *v;
   if (auto v = Query(c.req, "units")) {

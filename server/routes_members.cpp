@@ -1,4 +1,4 @@
-// Members (versioned descriptions, FORMATS.md section 1) and their drift
+// Members (versioned descriptions, docs/FORMATS.md section 1) and their drift
 // settings.
 #include "estimation/drift.h"
 #include "server/api_json.h"
@@ -44,7 +44,7 @@ json DriftSettingsBody(Call& c, const storage::Member& m) {
 
 namespace {
 
-// Validates a member description body (FORMATS.md section 1, id required).
+// Validates a member description body (docs/FORMATS.md section 1, id required).
 model::Member ParseMemberBody(const httplib::Request& req) {
   model::Member member;
   if (Status s = ParseMember(req.body, &member, MemberReadOptions{.require_id = true}); !s.ok()) {

@@ -3,7 +3,7 @@
 // Workers take queued jobs from the database (storage::Repository::
 // ClaimNextJob), load the record and the member version it was uploaded
 // against, run the identification (record -> modes -> model updating),
-// store the FORMATS.md section 3 result with the job (CompleteJobWithEstimate),
+// store the docs/FORMATS.md section 3 result with the job (CompleteJobWithEstimate),
 // run drift detection (estimation/drift.h) over the member's estimates and
 // raise the alerts that fire at the new estimate. A job whose inputs cannot
 // be identified fails with the reason (the estimation's message); a job is

@@ -14,7 +14,7 @@ using internal::Statement;
 namespace {
 
 // Channel names in the record are joined with this separator; it cannot
-// occur in a name ([A-Za-z0-9_], FORMATS.md section 2).
+// occur in a name ([A-Za-z0-9_], docs/FORMATS.md section 2).
 constexpr char kChannelSeparator = ',';
 constexpr std::size_t kMaxChannelName = 32;
 constexpr std::size_t kSha256HexLength = 64;

@@ -17,7 +17,7 @@
 // - Values are bound as statement parameters, never spliced into SQL.
 // - Times are integers: milliseconds since 1970-01-01T00:00:00Z (UTC), in
 //   fields named *_unix_ms. Callers supply "now" so tests are repeatable.
-// - Sign convention: axial force N > 0 in tension (FORMATS.md).
+// - Sign convention: axial force N > 0 in tension (docs/FORMATS.md).
 //
 // Thread-safety: a Repository wraps one Database (one connection) and is
 // not thread-safe; give each thread its own Database and Repository.
@@ -74,7 +74,7 @@ struct Structure {
   std::int64_t created_at_unix_ms = 0;
 };
 
-// A member and one version of its FORMATS.md section 1 description, kept as
+// A member and one version of its docs/FORMATS.md section 1 description, kept as
 // JSON text exactly as given (storage does not parse it).
 struct Member {
   Id id = 0;
@@ -149,7 +149,7 @@ struct Job {
   std::optional<std::int64_t> started_at_unix_ms, finished_at_unix_ms;
 };
 
-// An estimate: the FORMATS.md section 3 object as JSON text plus the columns
+// An estimate: the docs/FORMATS.md section 3 object as JSON text plus the columns
 // the queries filter and plot on. Precondition: ci95 low <= force <= high.
 struct NewEstimate {
   Id record_id = 0;  // the member, its version, the time and temperature come from the record
@@ -311,7 +311,7 @@ class Repository {
                              std::int64_t to_unix_ms, std::vector<Estimate>* out);
 
   // The end fixities stored in each estimate's result: end_fixity_json is
-  // the FORMATS.md section 3 "end_fixity" object as JSON text ("" when the
+  // the docs/FORMATS.md section 3 "end_fixity" object as JSON text ("" when the
   // result has none or is not JSON), extracted by SQLite's JSON functions
   // when the estimate was stored, so the long result text is not read
   // again (the dashboard asks for years of these at once). Same rows and

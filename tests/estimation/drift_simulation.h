@@ -15,7 +15,7 @@
 namespace taut::estimation::testing {
 
 struct HangerScenario {
-  // Steel, common practice: E = 200 GPa, alpha = 12e-6 /K (DESIGN.md).
+  // Steel, common practice: E = 200 GPa, alpha = 12e-6 /K (docs/DESIGN.md).
   double elastic_modulus_pa = 2.0e11;
   double alpha_per_k = 12e-6;
   double diameter_m = 0.040;

@@ -14,7 +14,7 @@
 //   ARL = (exp(-2 D b) + 2 D b - 1) / (2 D^2), b = h + 1.166, D = shift - k,
 //   as quoted in D. C. Montgomery, Introduction to Statistical Quality
 //   Control, 7th ed. (2013), section 9.1 (recalled from memory).
-// - Steel E = 200 GPa and alpha = 12e-6 /K: common practice (DESIGN.md).
+// - Steel E = 200 GPa and alpha = 12e-6 /K: common practice (docs/DESIGN.md).
 #include <gtest/gtest.h>
 
 #include <algorithm>

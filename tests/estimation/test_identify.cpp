@@ -2,7 +2,7 @@
 //
 // Truth: synthetic modes from the forward model with known parameters on a
 // much finer mesh (synthetic_modes.h), or from published closed forms:
-//  [B] pinned-pinned beam with tension (DESIGN.md; Blevins, Formulas for
+//  [B] pinned-pinned beam with tension (docs/DESIGN.md; Blevins, Formulas for
 //      Natural Frequency and Mode Shape, 1979):
 //      f_n = (n / 2L) sqrt(N/m) sqrt(1 + n^2 pi^2 EI / (N L^2)),
 //      solved for N from f_1: N = 4 m L^2 f_1^2 - pi^2 EI / L^2;
@@ -519,7 +519,7 @@ namespace taut::estimation {
 namespace {
 
 TEST(Identify, HardeningBackboneRaisesLargeAmplitudeCaution) {
-  // DESIGN.md: large amplitude biases the linear model (Duffing hardening,
+  // docs/DESIGN.md: large amplitude biases the linear model (Duffing hardening,
   // Nayfeh and Mook 1979). A free-decay backbone whose frequency falls by
   // 2 % as the amplitude decays must raise "large-amplitude"; one that moves
   // by 0.1 % (below kLargeAmplitudeFrequencyShift = 0.5 %) must not.

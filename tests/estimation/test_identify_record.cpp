@@ -51,7 +51,7 @@ bool HasCaution(const Estimate& e, const std::string& code) {
 // (Woinowsky-Krieger, J. Appl. Mech. 17, 1950; the Duffing reduction of
 // Nayfeh and Mook, Nonlinear Oscillations, 1979, sec. 2.3):
 //   d f / f = (3/32) (EA/L) L (pi/L)^2 a^2 / (N + pi^2 EI / L^2),
-// (3/32) (a/r)^2 at N = 0 (DESIGN.md); a stationary Gaussian vibration of
+// (3/32) (a/r)^2 at N = 0 (docs/DESIGN.md); a stationary Gaussian vibration of
 // RMS s shifts it by (3/8) (EA/L) L (pi/L)^2 s^2 / (N + pi^2 EI/L^2)
 // (statistical linearisation, Caughey, J. Acoust. Soc. Am. 35, 1963:
 // omega_eq^2 = omega^2 + 3 k3 s^2). Tolerance 1e-3 relative: the 40-element
@@ -101,7 +101,7 @@ TEST(NonlinearFrequencyShift, MatchesFirstOrderPinnedBackbone) {
 // over the decay), simulated by the quasi-static-axial model (20 elements,
 // 20 steps per sample: period error below 1e-5 for the fitted modes,
 // Hairer, Lubich and Wanner 2006, sec. I.1), 10 s at 256 Hz (the shortest
-// record FORMATS.md allows), 1 % white noise (fixed seed).
+// record docs/FORMATS.md allows), 1 % white noise (fixed seed).
 constexpr double kImpactTruthN = 12000.0;
 
 Record ImpactRecord(const Member& m, Excitation label) {

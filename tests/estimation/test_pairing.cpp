@@ -4,7 +4,7 @@
 //  [A] R. J. Allemang, The modal assurance criterion - twenty years of use
 //      and abuse, Sound and Vibration 37 (2003): MAC definition and its
 //      scale invariance.
-//  [B] Pinned-pinned beam with axial tension (DESIGN.md; e.g. Blevins,
+//  [B] Pinned-pinned beam with axial tension (docs/DESIGN.md; e.g. Blevins,
 //      Formulas for Natural Frequency and Mode Shape, 1979, table 8-1 with
 //      axial load): f_n = (n / 2L) sqrt(N/m) sqrt(1 + n^2 pi^2 EI / (N L^2)),
 //      mode shapes sin(n pi x / L).

@@ -1,4 +1,4 @@
-// The FORMATS.md section 2 CSV reader (estimation/record.h): every rule of
+// The docs/FORMATS.md section 2 CSV reader (estimation/record.h): every rule of
 // the format has a test whose error must name the line (and column) and the
 // rule; quality checks raise cautions; garbled input never crashes.
 // All records are invented.
@@ -160,7 +160,7 @@ TEST(RecordReader, UnitsGConverted) {
   EXPECT_NEAR((b.samples - a.samples * 9.80665).cwiseAbs().maxCoeff(), 0.0, 1e-15);
 }
 
-// Flags override the file's metadata (FORMATS.md section 2).
+// Flags override the file's metadata (docs/FORMATS.md section 2).
 TEST(RecordReader, OverridesWin) {
   RecordReadOptions o;
   o.units = "g";

@@ -27,7 +27,7 @@ ModalResult Solve(const Member& m, const ModalParameters& p, int modes, int elem
   return r;
 }
 
-// Pinned-pinned with tension, 5 modes, against the closed form of DESIGN.md
+// Pinned-pinned with tension, 5 modes, against the closed form of docs/DESIGN.md
 // (Timoshenko, Young and Weaver 1974, sec. 5.12). Tolerance 1e-6: with 200
 // elements the h^4 discretisation error of mode 5 is ~(5 pi/200)^4/720
 // ~ 5e-8 in omega^2 (Strang and Fix, An Analysis of the Finite Element

@@ -45,7 +45,7 @@ inline double Bisect(const std::function<double(double)>& f, double a, double b)
 }
 
 // Closed-form frequency [Hz] of mode n of a pinned-pinned beam with axial
-// force N (DESIGN.md; Timoshenko, Young and Weaver, Vibration Problems in
+// force N (docs/DESIGN.md; Timoshenko, Young and Weaver, Vibration Problems in
 // Engineering, 4th ed., 1974, sec. 5.12):
 //   f_n = (n / 2L) sqrt(N/m) sqrt(1 + n^2 pi^2 EI / (N L^2)),
 // written as f_n = (n / 2L) sqrt((N + n^2 pi^2 EI / L^2) / m) so that it

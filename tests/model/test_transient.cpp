@@ -99,7 +99,7 @@ TEST(TransientDuffing, PeriodMatchesEllipticIntegral) {
       }
     }
     // First-order backbone for N = 0: omega/omega_0 = 1 + (3/32)(a/r)^2
-    // (DESIGN.md) holds for small a/r; at a/r = 0.5 the exact period and
+    // (docs/DESIGN.md) holds for small a/r; at a/r = 0.5 the exact period and
     // the first-order formula agree to 0.1 %.
     if (n_force == 0.0) {
       const double a = 0.5 * r_g;

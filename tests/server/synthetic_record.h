@@ -1,4 +1,4 @@
-// Test and bench helper: an ambient acceleration record (FORMATS.md section
+// Test and bench helper: an ambient acceleration record (docs/FORMATS.md section
 // 2 CSV) of a member with known parameters (the truth is known), from the
 // modal superposition of model/ambient_synthesis.h.
 #pragma once

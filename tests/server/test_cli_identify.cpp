@@ -3,7 +3,7 @@
 // Truth: records synthesised from the forward model with known N, EI and
 // fixities (synthetic_record.h); the invented member is the example
 // examples/maltings-east-tie-2.json (5.8 m, 28 mm, elastic ends, sensors at
-// the quarter points). Contract: FORMATS.md sections 1-3 and DESIGN.md
+// the quarter points). Contract: docs/FORMATS.md sections 1-3 and docs/DESIGN.md
 // "Interfaces" (exit 0 on a result, non-zero and one stderr line on bad
 // input).
 #include <gtest/gtest.h>

@@ -73,7 +73,7 @@ class CliModal : public ::testing::Test {
   std::ostringstream out_, err_;
 };
 
-// JSON: FORMATS.md section 3 `modes` (order, frequency_hz, frequency_std_hz,
+// JSON: docs/FORMATS.md section 3 `modes` (order, frequency_hz, frequency_std_hz,
 // damping_ratio, shape keyed by channel) plus cautions and notice. The
 // record is made from the model at the design force, so orders 1..3 must
 // be assigned and frequencies match the model within the reported std.

@@ -47,7 +47,7 @@ constexpr const char* kPinnedBar = R"({
     { "channel": "s3", "position_m": 3.75 } ]
 })";
 
-// JSON output against the pinned-pinned closed form with tension (DESIGN.md;
+// JSON output against the pinned-pinned closed form with tension (docs/DESIGN.md;
 // Timoshenko, Young and Weaver 1974, sec. 5.12); 1e-6 with 200 elements, as
 // in tests/model. Shapes: mode 1 of a pinned bar is sin(pi x/L), so the
 // quarter-point sensors read sin(pi/4) of the mid-span one (1e-6).

@@ -1,4 +1,4 @@
-// `taut simulate`: record CSV format (FORMATS.md section 2) and the
+// `taut simulate`: record CSV format (docs/FORMATS.md section 2) and the
 // physics of what it writes.
 #include <gtest/gtest.h>
 

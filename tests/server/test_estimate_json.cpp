@@ -1,4 +1,4 @@
-// The identification result JSON against the FORMATS.md section 3 contract
+// The identification result JSON against the docs/FORMATS.md section 3 contract
 // (the project's published format: key names, units in the names,
 // {"value", "std", "ci95"} or {"value", "fixed": true}, modes with order,
 // frequency_hz, frequency_std_hz, damping_ratio, shape keyed by channel,
@@ -84,7 +84,7 @@ TEST(EstimateJson, FollowsFormatsSection3) {
 }
 
 // A time-domain estimate keeps every key of the contract and says which
-// model it comes from (FORMATS.md section 3 `fit.model`: "modal" or
+// model it comes from (docs/FORMATS.md section 3 `fit.model`: "modal" or
 // "transient"), with the fitted window beside the contract keys.
 TEST(EstimateJson, TransientEstimateKeepsTheContractKeys) {
   estimation::Estimate e = Example();

@@ -219,7 +219,7 @@ TEST_F(HttpApiTest, MembersAreVersionedAndSoftDeleted) {
   EXPECT_EQ(json::parse(put->body)["version"], 2);
   EXPECT_EQ(json::parse(c.Get(path + "/versions/1")->body)["description"]["design_axial_force_n"], 35000);
   EXPECT_EQ(json::parse(c.Get(path)->body)["description"]["design_axial_force_n"], 38000);
-  // A description that breaks a FORMATS.md rule: 422 naming the JSON path.
+  // A description that breaks a docs/FORMATS.md rule: 422 naming the JSON path.
   edited["sensors"][0]["position_m"] = 9.0;
   auto bad = c.Put(path, edited.dump(), "application/json");
   EXPECT_EQ(bad->status, 422);
@@ -313,7 +313,7 @@ TEST_F(HttpApiTest, EveryReaderErrorIsA4xxWithItsMessage) {
   r = c.Post(path, renamed, "text/csv");
   EXPECT_EQ(r->status, 400);
   EXPECT_NE(r->body.find("v9"), std::string::npos) << r->body;
-  // Too short (FORMATS.md: at least 10 s).
+  // Too short (docs/FORMATS.md: at least 10 s).
   r = c.Post(path, SyntheticCsv(dir_.string(), 7, 5.0), "text/csv");
   EXPECT_EQ(r->status, 400);
   EXPECT_NE(r->body.find("10"), std::string::npos) << r->body;

@@ -1,4 +1,4 @@
-// The member description reader (FORMATS.md section 1): every rule has a
+// The member description reader (docs/FORMATS.md section 1): every rule has a
 // test that the error names the JSON path and the rule.
 #include <gtest/gtest.h>
 
@@ -11,7 +11,7 @@ namespace {
 
 using nlohmann::json;
 
-// A valid document in the shape of FORMATS.md section 1 (invented member).
+// A valid document in the shape of docs/FORMATS.md section 1 (invented member).
 json Valid() {
   return json::parse(R"({
     "id": "test-tie-1",
@@ -65,7 +65,7 @@ TEST(MemberJson, DefaultsWhenOptionalBlocksAreAbsent) {
   j.erase("id");
   model::Member m;
   ASSERT_TRUE(MemberFromJson(j, &m).ok());
-  EXPECT_EQ(m.left.kind, model::RotationEnd::Kind::kElastic);  // FORMATS.md default
+  EXPECT_EQ(m.left.kind, model::RotationEnd::Kind::kElastic);  // docs/FORMATS.md default
   EXPECT_EQ(m.axial.kind, model::AxialEnds::Kind::kFixed);
   EXPECT_DOUBLE_EQ(m.inclination_deg, 0.0);
   EXPECT_TRUE(m.sensors.empty());
@@ -83,7 +83,7 @@ TEST(MemberJson, RoundTripsThroughMemberToJson) {
   EXPECT_DOUBLE_EQ(b.left.stiffness_nm_per_rad, 12000.0);
   EXPECT_DOUBLE_EQ(b.axial.stiffness_n_per_m, 5e7);
   // Rectangle: I_vertical = w d^3/12, I_lateral = d w^3/12 (depth in the
-  // vertical plane, FORMATS.md).
+  // vertical plane, docs/FORMATS.md).
   EXPECT_NEAR(b.section.SecondMoment(model::Direction::kVertical), 0.05 * 8e-6 / 12, 1e-15);
   EXPECT_NEAR(b.section.SecondMoment(model::Direction::kLateral), 0.02 * 1.25e-4 / 12, 1e-15);
 }

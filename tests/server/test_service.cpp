@@ -247,7 +247,7 @@ TEST_F(ServiceTest, UploadJobEstimateForceQueryReturnsTheTruthWithinItsInterval)
   const json latest = json::parse(c.Get("/v1/members/" + m + "/force")->body);
   ASSERT_TRUE(latest.contains("result")) << latest.dump();
   EXPECT_EQ(latest["measured_at"], "2026-11-22T06:00:00Z");
-  // The truth inside the reported 95 % interval (FORMATS.md section 3), and
+  // The truth inside the reported 95 % interval (docs/FORMATS.md section 3), and
   // the value within 3 std of it (a 99.7 % event for an honest std).
   const json& n = latest["result"]["axial_force_n"];
   EXPECT_LE(n["ci95"][0].get<double>(), force[0]);

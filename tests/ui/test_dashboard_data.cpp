@@ -144,7 +144,7 @@ TEST_F(SpectrumTest, DecimationKeepsTheLargestLineOfEveryBucket) {
 // uniform beam-column under tension N, whose modes are exactly
 //   w_n(x) = sin(n pi x / L),
 //   f_n = (n / 2L) sqrt(N/m) sqrt(1 + n^2 pi^2 EI / (N L^2))
-// (DESIGN.md; R. D. Blevins, Formulas for Natural Frequency and Mode Shape,
+// (docs/DESIGN.md; R. D. Blevins, Formulas for Natural Frequency and Mode Shape,
 // 1979, beam under axial load). Cubic Hermite elements converge as h^4 in
 // the eigenvalue; with 60 elements the third mode is within about 1e-6 of
 // the closed form, so 1e-5 (frequency, relative) and 1e-4 (shape at the

@@ -223,7 +223,7 @@ function fx(q) {
 
 // ------------------------------------------------------ the member drawn
 
-// Geometry of FORMATS.md section 1: area and second moment in the vertical plane.
+// Geometry of docs/FORMATS.md section 1: area and second moment in the vertical plane.
 function sectionProps(sec) {
   if (sec.shape === 'circle') return {A: Math.PI * sec.diameter_m ** 2 / 4, I: Math.PI * sec.diameter_m ** 4 / 64,
     text: `circle, d = ${num(sec.diameter_m * 1000, 1)} mm`};

@@ -1,5 +1,5 @@
 // Upload page for a technician on site: pick the member, drop (or choose)
-// the record CSV (FORMATS.md section 2), watch the job, and land on the
+// the record CSV (docs/FORMATS.md section 2), watch the job, and land on the
 // estimate. The reader's errors (line and column) are shown in place so the
 // file can be fixed and sent again.
 import {api, qs, roleAtLeast} from './api.js';
