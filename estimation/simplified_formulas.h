@@ -2,12 +2,12 @@
 // for comparison beside taut's estimate (never instead of it):
 //
 //  1. Taut string from the fundamental (Irvine, Cable Structures, 1981,
-//     eq. 2.33 with the sag parameter set to zero; DESIGN.md's pinned-beam
+//     eq. 2.33 with the sag parameter set to zero; docs/DESIGN.md's pinned-beam
 //     closed form with EI = 0):
 //        N_string = 4 m L^2 f_1^2,
 //  2. Pinned beam with tension, from the ordinary least-squares line of
 //     f_n^2 / n^2 against n^2 over the identified orders (the pinned-pinned
-//     closed form of DESIGN.md squared):
+//     closed form of docs/DESIGN.md squared):
 //        f_n^2 / n^2 = N / (4 m L^2) + n^2 pi^2 EI / (4 m L^4),
 //     intercept a -> N = 4 m L^2 a, slope b -> EI = 4 m L^4 b / pi^2.
 //

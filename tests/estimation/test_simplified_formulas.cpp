@@ -2,7 +2,7 @@
 // (estimation/simplified_formulas.h), checked against the closed forms they
 // come from:
 //  - R. D. Blevins, Formulas for Natural Frequency and Mode Shape (1979),
-//    the pinned-pinned beam with axial tension (DESIGN.md):
+//    the pinned-pinned beam with axial tension (docs/DESIGN.md):
 //      f_n = (n / 2L) sqrt(N/m) sqrt(1 + n^2 pi^2 EI / (N L^2)),
 //    from which the regression must return N and EI exactly (its model is
 //    this formula), and the string formula N (1 + gamma_1);
