@@ -211,6 +211,9 @@ struct Estimate {
   std::optional<TransientSummary> transient;  // set when fit.model is "transient"
   AmplitudeCheck amplitude;                   // set by IdentifyRecord
   Cautions cautions;
+  // The worst caution severity and one line for the technician
+  // (cautions.h MakeVerdict); set whenever `cautions` is final.
+  Verdict verdict;
   std::string notice;
 };
 

@@ -394,8 +394,22 @@ Status TransientPath(const model::Member& member, const Record& record, const Ei
   AppendForceCautions(member, plane, e.axial_force_n.value, e.critical_compression_n, &e.cautions);
   e.identifiability = cov_ok ? "all unknowns of the time-domain fit have a covariance"
                              : "the time-domain fit gives no covariance: the unknowns are not all separated";
+  e.verdict = MakeVerdict(e.cautions);
   *out = std::move(e);
   return Status::Ok();
+}
+
+// The verdict of the final cautions; a refusal (verdict "unusable") is
+// returned as kInvalidArgument whose message is the verdict's summary, with
+// the estimate still filled (identify_record.h).
+template <typename Progress>
+Status Finish(Estimate e, Estimate* out, const Progress& progress) {
+  e.verdict = MakeVerdict(e.cautions);
+  const bool refused = e.verdict.code == "unusable";
+  const std::string summary = e.verdict.summary;
+  *out = std::move(e);
+  progress(1.0);
+  return refused ? Status::InvalidArgument(summary) : Status::Ok();
 }
 
 }  // namespace
@@ -479,9 +493,7 @@ Status IdentifyRecord(const model::Member& member, const Record& record, const I
                "(excitation=impact) or at a smaller amplitude."});
     }
     modal.fit.seconds = std::chrono::duration<double>(std::chrono::steady_clock::now() - t0).count();
-    *estimate = std::move(modal);
-    progress(1.0);
-    return Status::Ok();
+    return Finish(std::move(modal), estimate, progress);
   }
   progress(kProgressBeforeTransient);
   Estimate transient;
@@ -495,9 +507,7 @@ Status IdentifyRecord(const model::Member& member, const Record& record, const I
     transient = std::move(modal);
   }
   transient.fit.seconds = std::chrono::duration<double>(std::chrono::steady_clock::now() - t0).count();
-  *estimate = std::move(transient);
-  progress(1.0);
-  return Status::Ok();
+  return Finish(std::move(transient), estimate, progress);
 }
 
 }  // namespace taut::estimation

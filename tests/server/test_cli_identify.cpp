@@ -79,6 +79,8 @@ TEST_F(CliIdentify, JsonResultRecoversForceFromSyntheticRecord) {
   EXPECT_EQ(j["fit"]["model"], "modal");
   EXPECT_EQ(j["notice"], estimation::StandingNotice());
   EXPECT_EQ(j["record"]["temperature_c"], 12.5);
+  EXPECT_NE(j["verdict"]["code"], "unusable");
+  for (const auto& c : j["cautions"]) EXPECT_TRUE(c.contains("severity")) << c.dump();
   EXPECT_TRUE(err.empty()) << err;
 }
 
@@ -89,6 +91,8 @@ TEST_F(CliIdentify, TableNamesForceIntervalModesAndNotice) {
   ASSERT_EQ(
       Run({"identify", "--member", member_path_, "--record", record, "--temperature", "3.5"}, &out, &err), 0)
       << err;
+  // The verdict line comes first (SHARED-DECISIONS item 1).
+  EXPECT_EQ(out.rfind("verdict: Usable", 0), 0u) << out;
   EXPECT_NE(out.find("axial force"), std::string::npos) << out;
   EXPECT_NE(out.find("kN"), std::string::npos) << out;
   EXPECT_NE(out.find("95 %"), std::string::npos) << out;
