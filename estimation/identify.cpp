@@ -14,6 +14,7 @@
 #include <set>
 #include <sstream>
 
+#include "estimation/refusal.h"
 #include "model/modal.h"
 
 namespace taut::estimation {
@@ -1242,6 +1243,7 @@ Status IdentifyFromModes(const model::Member& member, const ModalIdentification&
   AppendForceCautions(member, plane, n_hat, est.critical_compression_n, &est.cautions);
 
   est.fit.forward_model_calls = ctx.calls;
+  AppendRefusals(member, &est);
   est.verdict = MakeVerdict(est.cautions);
   est.fit.seconds = std::chrono::duration<double>(std::chrono::steady_clock::now() - t0).count();
   *estimate = std::move(est);

@@ -461,6 +461,7 @@ Status IdentifyRecord(const model::Member& member, const Record& record, const I
   progress(kProgressAfterModes);
   Estimate modal;
   if (Status s = IdentifyFromModes(member, modes, options.identify, &modal); !s.ok()) return s;
+  if (modal.verdict.code == "unusable") return Finish(std::move(modal), estimate, progress);  // refused
 
   // The amplitude check and the choice of the model.
   Eigen::MatrixXd y = record.samples;
