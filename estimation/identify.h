@@ -77,6 +77,16 @@ inline constexpr double kDesignForceDeviationShare = 0.3;
 // this share raises the large-amplitude caution (0.5 % is several frequency
 // stds of a good record; common practice, recalled value).
 inline constexpr double kLargeAmplitudeFrequencyShift = 0.005;
+// EI prior conflict (identify.cpp IdentifyFromModes): an estimate more than
+// kPriorConflictSigma prior stds from the nominal EI (or a poor fit) makes
+// the identification run again with the prior relaxed to
+// kRelaxedPriorSigmaLn (one std = a factor e^2 = 7.4: the 4-12 times errors
+// of a wrong nominal EI lie within 1.3 std); the relaxed result is kept
+// when it is off-nominal and explains the data better by more than
+// kPriorConflictChi2 (chi-square units, a three-sigma improvement).
+inline constexpr double kPriorConflictSigma = 3.0;
+inline constexpr double kRelaxedPriorSigmaLn = 2.0;
+inline constexpr double kPriorConflictChi2 = 9.0;
 // Slenderness L / r_g below which Euler-Bernoulli theory is doubtful
 // (DESIGN.md; shear and rotary inertia matter for stockier members).
 inline constexpr double kStockySlenderness = 50.0;

@@ -24,6 +24,8 @@ constexpr double kLeftOutModePenalty = 9.0;
 // A pinned shape whose largest |sin(n pi x/L)| over the sensors is below
 // this is taken as invisible (sensors near nodes), so its absence is free.
 constexpr double kVisibleShapeAmplitude = 0.3;
+// Offsets of the effective order tried per hypothesis (0 .. max_order_offset).
+constexpr int kOrderOffsetSteps = 3;
 
 double PinnedShapeAt(int n, double x, double length) { return std::sin(n * std::numbers::pi * x / length); }
 
@@ -35,12 +37,47 @@ struct Searcher {
   bool found = false;
 
   void Leaf() {
-    double n_reg = 0.0, ei_reg = 0.0, chi2 = 0.0;
-    if (!PinnedBeamRegression(in, order, &n_reg, &ei_reg, &chi2).ok()) return;
-    if (!(ei_reg > 0.0)) return;
+    OrderHypothesis h;
+    if (!Score(order, &h)) return;
+    if (!found || h.score < best.score) {
+      found = true;
+      best = h;
+    }
+  }
+
+  // Scores the hypothesis `order` (the first `modes` entries); false when
+  // it gives no positive EI or a force below the pinned Euler load.
+  bool Score(const std::vector<int>& order, OrderHypothesis* out) const {
+    // Most of the modes must be numbered: a hypothesis that leaves all but
+    // one or two modes out fits them trivially (two unknowns) and let one
+    // high mode stand alone for the member (issue 12, failure class 1).
+    int numbered = 0;
+    for (int i = 0; i < modes; ++i) numbered += order[i] > 0;
+    if (2 * numbered < modes) return false;
+    // End restraint raises the frequencies like a fractional order
+    // (bending-dominated: beta L = (n + delta) pi, delta = 1/4 per clamped
+    // end; Blevins 1979, table 8-1): the smallest chi-square over a few
+    // offsets in [0, max_order_offset] is used.
+    double n_reg = 0.0, ei_reg = 0.0, chi2 = std::numeric_limits<double>::infinity();
+    for (int k = 0; k < kOrderOffsetSteps; ++k) {
+      const double offset = in.max_order_offset * k / std::max(1, kOrderOffsetSteps - 1);
+      double n_k = 0.0, ei_k = 0.0, chi2_k = 0.0;
+      if (!PinnedBeamRegression(in, order, &n_k, &ei_k, &chi2_k, offset).ok()) continue;
+      if (!(ei_k > 0.0)) continue;
+      const double prior = std::pow(std::log(ei_k / in.nominal_ei_nm2) / in.ei_prior_sigma_ln, 2);
+      // A larger offset must improve the score beyond round-off (an exact
+      // fit, e.g. one mode and the prior, keeps the pinned offset 0).
+      if (chi2_k + prior < chi2 - 1e-6 * (1.0 + std::min(chi2, 1e300))) {
+        chi2 = chi2_k + prior;
+        n_reg = n_k;
+        ei_reg = ei_k;
+      }
+      if (in.max_order_offset <= 0.0) break;
+    }
+    if (!std::isfinite(chi2)) return false;
     const double n_euler = std::numbers::pi * std::numbers::pi * ei_reg / (in.length_m * in.length_m);
-    if (!(n_reg > -n_euler)) return;
-    double score = chi2 + std::pow(std::log(ei_reg / in.nominal_ei_nm2) / in.ei_prior_sigma_ln, 2);
+    if (!(n_reg > -n_euler)) return false;
+    double score = chi2;
     int highest = 0;
     std::vector<bool> used(kOrderSearchMaxOrder + kOrderSearchMaxStep + 2, false);
     for (int i = 0; i < modes; ++i) {
@@ -63,13 +100,11 @@ struct Searcher {
         amplitude = std::max(amplitude, std::abs(PinnedShapeAt(n, x, in.length_m)));
       if (amplitude >= kVisibleShapeAmplitude) score += kMissingOrderPenalty;
     }
-    if (!found || score < best.score) {
-      found = true;
-      best.order = order;
-      best.axial_force_n = n_reg;
-      best.bending_stiffness_nm2 = ei_reg;
-      best.score = score;
-    }
+    out->order = order;
+    out->axial_force_n = n_reg;
+    out->bending_stiffness_nm2 = ei_reg;
+    out->score = score;
+    return true;
   }
 
   void Recurse(int i, int last) {
@@ -104,7 +139,7 @@ double Mac(const std::vector<double>& a, const std::vector<double>& b) {
 }
 
 Status PinnedBeamRegression(const OrderSearchInput& in, const std::vector<int>& order, double* axial_force_n,
-                            double* bending_stiffness_nm2, double* chi2) {
+                            double* bending_stiffness_nm2, double* chi2, double order_offset) {
   const double pi2 = std::numbers::pi * std::numbers::pi;
   const double m = in.mass_per_length_kg_m, length = in.length_m;
   // Unknowns (a, b): f_n^2/n^2 = a + b n^2, a = N/(4 m L^2), b = pi^2 EI/(4 m L^4).
@@ -115,8 +150,8 @@ Status PinnedBeamRegression(const OrderSearchInput& in, const std::vector<int>& 
   Eigen::VectorXd y(rows);
   int r = 0;
   for (size_t i = 0; i < order.size(); ++i) {
-    const int n = order[i];
-    if (n <= 0) continue;
+    if (order[i] <= 0) continue;
+    const double n = order[i] + order_offset;
     const double f = in.frequency_hz[i];
     const double sigma_f = std::max(in.frequency_std_hz[i], kOrderSearchModelTolerance * f);
     // sigma of y = f^2/n^2 by first-order propagation: 2 f sigma_f / n^2.
@@ -161,6 +196,36 @@ Status SearchModeOrders(const OrderSearchInput& in, OrderHypothesis* best) {
           "(lowest frequency "
        << in.frequency_hz[0] << " Hz)";
     return Status::InvalidArgument(os.str());
+  }
+  // Consecutive numberings from every first order: the tree starts within
+  // kOrderSearchMaxStep of order 1, so a record whose lowest modes are all
+  // missing (a weak fundamental on a long tie, issue 12 class 1: modes
+  // 1..4 below the noise) could only be numbered too low.
+  for (int first = 1; first + s.modes - 1 <= kOrderSearchMaxOrder; ++first) {
+    std::vector<int> consecutive(s.modes);
+    for (int i = 0; i < s.modes; ++i) consecutive[i] = first + i;
+    OrderHypothesis h;
+    const bool ok = s.Score(consecutive, &h);
+    if (ok && h.score < s.best.score) s.best = h;
+  }
+  // Shifted numberings of the best hypothesis (with its left-out modes):
+  // every shift of the whole numbering by -kOrderSearchMaxStep..
+  // +kOrderSearchMaxShift is scored the same way and competes (the
+  // missing-order penalty charges the orders skipped below).
+  {
+    const OrderHypothesis base = s.best;
+    for (int shift = -kOrderSearchMaxStep; shift <= kOrderSearchMaxShift; ++shift) {
+      if (shift == 0) continue;
+      std::vector<int> shifted = base.order;
+      bool valid = true;
+      for (int& n : shifted) {
+        if (n == 0) continue;
+        n += shift;
+        valid = valid && n >= 1 && n <= kOrderSearchMaxOrder;
+      }
+      OrderHypothesis h;
+      if (valid && s.Score(shifted, &h) && h.score < s.best.score) s.best = h;
+    }
   }
   s.best.order.resize(total, 0);  // modes beyond the search are paired by the model
   *best = s.best;

@@ -18,7 +18,12 @@
 //     sqrt(kRefusalReducedChi2) = 10 frequency stds each, far beyond the
 //     poor-fit caution (kPoorFitReducedChi2 = 3): the member description
 //     (length, section, ends) does not describe the vibrating member.
-//  3. "implausible-stress": the estimated tension stress N / A exceeds the
+//  3. "record-not-member": the estimated EI is more than kMaxStiffnessRatio
+//     times off the nominal (times the orientation ratio (w/d)^2 of a
+//     rectangle): the 4-12 times errors of a wrong E, corrosion or a
+//     built-up section are accepted with a caution (identify.h, prior
+//     conflict), a larger factor means another member.
+//  4. "implausible-stress": the estimated tension stress N / A exceeds the
 //     member's yield strength (material.yield_strength_pa) or, when that is
 //     not given, DefaultYieldStrength_pa: a member cannot carry that force
 //     elastically, so the number comes from a wrong record, member or
@@ -35,6 +40,7 @@ namespace taut::estimation {
 inline constexpr double kStrongInPlaneShare = 0.5;
 inline constexpr int kMinUnpairedForRefusal = 2;
 inline constexpr double kRefusalReducedChi2 = 100.0;
+inline constexpr double kMaxStiffnessRatio = 16.0;
 
 // Plausibility bound of the tension stress [Pa] by material class, chosen
 // from the nominal E when the member gives no yield strength. Generous on
@@ -51,6 +57,15 @@ double DefaultYieldStrength_pa(double elastic_modulus_pa);
 // The bound used for `member` and where it comes from, e.g. "the declared
 // yield strength 355 MPa" or "the default 1860 MPa for steel and iron".
 double YieldStrengthOf(const model::Member& member, std::string* source);
+
+// Measured modes of an estimate: paired ones, strong in-plane ones (test 1
+// above) and those of them left unpaired.
+struct StrongModeCount {
+  int paired = 0;
+  int strong = 0;
+  int strong_unpaired = 0;
+};
+StrongModeCount CountStrongModes(const Estimate& e);
 
 // Appends the refusal cautions (codes above) for the modal estimate `e` of
 // `member` to e->cautions. Needs e->modes, e->channels, e->shape_channels,
