@@ -9,6 +9,7 @@
 #include <optional>
 #include <sstream>
 
+#include "estimation/channel_faults.h"
 #include "estimation/conditioning.h"
 #include "estimation/pairing.h"
 #include "model/modal.h"
@@ -449,8 +450,11 @@ Status NonlinearFrequencyShift(const model::Member& member, model::Direction dir
   return Status::Ok();
 }
 
-Status IdentifyRecord(const model::Member& member, const Record& record, const IdentifyRecordOptions& options,
-                      Estimate* estimate) {
+Status IdentifyRecord(const model::Member& member, const Record& full_record,
+                      const IdentifyRecordOptions& options, Estimate* estimate) {
+  // Faulty channels (dead, clipped, dropped out) are left out where the
+  // plane keeps a good channel, with a caution (channel_faults.h).
+  const Record record = LeaveOutFaultyChannels(member, full_record);
   const auto t0 = std::chrono::steady_clock::now();
   auto progress = [&](double share) {
     if (options.progress) options.progress(share);

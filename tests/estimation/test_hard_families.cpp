@@ -51,6 +51,7 @@ struct Family {
   std::string gains = "{}";  // mode_gain_db of the simulator
   int seed = 3;
   std::vector<double> sensor_share = {0.2, 0.45, 0.7};
+  std::string fault;  // "fault" object of the simulator, "" = none
 };
 
 double Ei(const Family& f) { return f.modulus_pa * kPi * std::pow(f.diameter_m, 4) / 64.0 * f.ei_factor; }
@@ -90,7 +91,9 @@ std::string Params(const Family& f) {
      << ",\"ei_nm2\":" << Num(Ei(f)) << ",\"axial_force_n\":" << Num(f.force_n)
      << ",\"k_left\":" << Num(Spring(f, f.fixity_left)) << ",\"k_right\":" << Num(Spring(f, f.fixity_right))
      << ",\"fs\":" << Num(f.fs) << ",\"duration_s\":" << Num(f.duration_s) << ",\"modes\":16"
-     << ",\"mode_gain_db\":" << f.gains << ",\"seed\":" << f.seed << ",\"sensor_x_m\":[";
+     << ",\"mode_gain_db\":" << f.gains << ",\"seed\":" << f.seed;
+  if (!f.fault.empty()) os << ",\"fault\":" << f.fault;
+  os << ",\"sensor_x_m\":[";
   for (size_t i = 0; i < f.sensor_share.size(); ++i)
     os << (i ? "," : "") << Num(f.sensor_share[i] * f.length_m);
   os << "],\"channels\":[";
@@ -256,6 +259,30 @@ TEST_F(HardFamilies, RecordUnderTheWrongMemberIsRefused) {
   EXPECT_FALSE(s.ok());
   EXPECT_EQ(e.verdict.code, "unusable");
   EXPECT_EQ(e.verdict.summary.rfind("Repeat the record: ", 0), 0u) << e.verdict.summary;
+}
+
+// Class 5: the middle channel is dead (its signal 1e-7 of the others) and
+// then the first one clipped at 30 % of its peak. The faulty channel is left
+// out with a caution and the others identify the member as if it were
+// absent (within 2 %, inside the interval).
+TEST_F(HardFamilies, FaultyChannelIsLeftOut) {
+  for (const char* fault :
+       {R"({"kind":"dead","channel":1})", R"({"kind":"clipped","channel":0,"clip_share":0.3})"}) {
+    Family f;
+    f.name = "faulty-channel";
+    f.length_m = 12.0;
+    f.diameter_m = 0.036;
+    f.force_n = 60000.0;
+    f.fs = 200.0;
+    f.fault = fault;
+    Estimate e;
+    const Status s = Identify(f, DeclaredMember(f), &e);
+    ASSERT_TRUE(s.ok()) << s.message;
+    ExpectHonest(f, s, e);
+    EXPECT_TRUE(HasCaution(e, "channel-left-out")) << fault;
+    EXPECT_EQ(e.channels.size(), 2u) << fault;
+    EXPECT_NEAR(e.axial_force_n.value / f.force_n, 1.0, 0.02) << fault;
+  }
 }
 
 // An ordinary record (12 m, 36 mm tie at 60 kN, all modes strong): within
