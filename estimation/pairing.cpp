@@ -2,6 +2,7 @@
 
 #include <Eigen/Dense>
 #include <algorithm>
+#include <array>
 #include <cmath>
 #include <limits>
 #include <numbers>
@@ -29,12 +30,37 @@ constexpr int kOrderOffsetSteps = 3;
 
 double PinnedShapeAt(int n, double x, double length) { return std::sin(n * std::numbers::pi * x / length); }
 
+constexpr int kTableOrders = kOrderSearchMaxOrder + kOrderSearchMaxStep + 2;
+
 struct Searcher {
   const OrderSearchInput& in;
   int modes;
   std::vector<int> order;
   OrderHypothesis best;
   bool found = false;
+  // Per mode i and order n: the shape term ((1 - MAC) / scale)^2 of the
+  // measured shape against sin(n pi x / L); per order: visible at the
+  // sensors. Computed once (the tree evaluates ~10^5 leaves).
+  std::vector<std::array<double, kTableOrders>> shape_term;
+  std::array<bool, kTableOrders> visible{};
+
+  void Tabulate() {
+    shape_term.assign(static_cast<size_t>(modes), {});
+    for (int n = 1; n < kTableOrders; ++n) {
+      double amplitude = 0.0;
+      std::vector<double> pinned;
+      for (double x : in.sensor_x_m) {
+        pinned.push_back(PinnedShapeAt(n, x, in.length_m));
+        amplitude = std::max(amplitude, std::abs(pinned.back()));
+      }
+      visible[n] = amplitude >= kVisibleShapeAmplitude;
+      for (int i = 0; i < modes; ++i) {
+        shape_term[i][n] = in.sensor_x_m.size() >= 2
+                               ? std::pow((1.0 - Mac(in.shape[i], pinned)) / kOrderSearchMacScale, 2)
+                               : 0.0;
+      }
+    }
+  }
 
   void Leaf() {
     OrderHypothesis h;
@@ -64,7 +90,8 @@ struct Searcher {
       double n_k = 0.0, ei_k = 0.0, chi2_k = 0.0;
       if (!PinnedBeamRegression(in, order, &n_k, &ei_k, &chi2_k, offset).ok()) continue;
       if (!(ei_k > 0.0)) continue;
-      const double prior = std::pow(std::log(ei_k / in.nominal_ei_nm2) / in.ei_prior_sigma_ln, 2);
+      const double z = std::log(ei_k / in.nominal_ei_nm2) / in.ei_prior_sigma_ln;
+      const double prior = z * z;
       // A larger offset must improve the score beyond round-off (an exact
       // fit, e.g. one mode and the prior, keeps the pinned offset 0).
       if (chi2_k + prior < chi2 - 1e-6 * (1.0 + std::min(chi2, 1e300))) {
@@ -87,18 +114,10 @@ struct Searcher {
       }
       used[order[i]] = true;
       highest = std::max(highest, order[i]);
-      if (in.sensor_x_m.size() >= 2) {
-        std::vector<double> pinned;
-        for (double x : in.sensor_x_m) pinned.push_back(PinnedShapeAt(order[i], x, in.length_m));
-        score += std::pow((1.0 - Mac(in.shape[i], pinned)) / kOrderSearchMacScale, 2);
-      }
+      score += shape_term[i][order[i]];
     }
     for (int n = 1; n < highest; ++n) {
-      if (used[n]) continue;
-      double amplitude = 0.0;
-      for (double x : in.sensor_x_m)
-        amplitude = std::max(amplitude, std::abs(PinnedShapeAt(n, x, in.length_m)));
-      if (amplitude >= kVisibleShapeAmplitude) score += kMissingOrderPenalty;
+      if (!used[n] && visible[n]) score += kMissingOrderPenalty;
     }
     out->order = order;
     out->axial_force_n = n_reg;
@@ -143,36 +162,56 @@ Status PinnedBeamRegression(const OrderSearchInput& in, const std::vector<int>& 
   const double pi2 = std::numbers::pi * std::numbers::pi;
   const double m = in.mass_per_length_kg_m, length = in.length_m;
   // Unknowns (a, b): f_n^2/n^2 = a + b n^2, a = N/(4 m L^2), b = pi^2 EI/(4 m L^4).
-  int rows = 1;
-  for (int n : order) rows += (n > 0);
-  if (rows < 2) return Status::InvalidArgument("pinned-beam regression: no mode has an order");
-  Eigen::MatrixXd A(rows, 2);
-  Eigen::VectorXd y(rows);
-  int r = 0;
+  // Weighted least squares of two unknowns: the 2 x 2 normal equations,
+  // accumulated row by row (the order search solves ~10^5 of them; the
+  // columns are scaled by their norms, so the system stays well conditioned
+  // for orders up to kOrderSearchMaxOrder).
+  const double l4 = length * length * length * length;
+  const double b_nominal = pi2 * in.nominal_ei_nm2 / (4.0 * m * l4);
+  const double w_prior = 1.0 / (in.ei_prior_sigma_ln * b_nominal);
+  double s00 = 0.0, s01 = 0.0, s11 = w_prior * w_prior, t0 = 0.0, t1 = w_prior * w_prior * b_nominal;
+  int rows = 0;
   for (size_t i = 0; i < order.size(); ++i) {
     if (order[i] <= 0) continue;
-    const double n = order[i] + order_offset;
+    const double n = order[i] + order_offset, n2 = n * n;
     const double f = in.frequency_hz[i];
     const double sigma_f = std::max(in.frequency_std_hz[i], kOrderSearchModelTolerance * f);
-    // sigma of y = f^2/n^2 by first-order propagation: 2 f sigma_f / n^2.
-    const double w = 1.0 / (2.0 * f * sigma_f / (n * n));
-    A(r, 0) = w;
-    A(r, 1) = w * n * n;
-    y[r] = w * f * f / (n * n);
-    ++r;
+    // sigma of y = f^2/n^2 by first-order propagation: 2 f sigma_f / n^2;
+    // the weighted row is (w, w n^2) (a, b) = w f^2 / n^2 = f / (2 sigma_f).
+    const double w = n2 / (2.0 * f * sigma_f);
+    const double a0 = w, a1 = w * n2, y = f / (2.0 * sigma_f);
+    s00 += a0 * a0;
+    s01 += a0 * a1;
+    s11 += a1 * a1;
+    t0 += a0 * y;
+    t1 += a1 * y;
+    ++rows;
   }
-  const double b_nominal = pi2 * in.nominal_ei_nm2 / (4.0 * m * std::pow(length, 4));
-  const double w_prior = 1.0 / (in.ei_prior_sigma_ln * b_nominal);
-  A(r, 0) = 0.0;
-  A(r, 1) = w_prior;
-  y[r] = w_prior * b_nominal;
-  Eigen::ColPivHouseholderQR<Eigen::MatrixXd> qr(A);
-  if (qr.rank() < 2) return Status::Numerical("pinned-beam regression: singular least-squares system");
-  const Eigen::Vector2d ab = qr.solve(y);
-  const Eigen::VectorXd res = A * ab - y;
-  *chi2 = res.head(rows - 1).squaredNorm();
-  *axial_force_n = 4.0 * m * length * length * ab[0];
-  *bending_stiffness_nm2 = 4.0 * m * std::pow(length, 4) * ab[1] / pi2;
+  if (rows < 1) return Status::InvalidArgument("pinned-beam regression: no mode has an order");
+  const double d0 = std::sqrt(s00), d1 = std::sqrt(s11);  // column scaling
+  const double c01 = s01 / (d0 * d1);
+  const double det = 1.0 - c01 * c01;
+  if (!(d0 > 0.0 && d1 > 0.0) || !(det > 1e-13)) {
+    return Status::Numerical("pinned-beam regression: singular least-squares system");
+  }
+  const double u0 = t0 / d0, u1 = t1 / d1;
+  const double a = (u0 - c01 * u1) / det / d0;
+  const double b = (u1 - c01 * u0) / det / d1;
+  // Chi-square of the frequency rows, from their residuals (a second pass:
+  // expanding it from the sums above cancels to ~1e-12).
+  double chi = 0.0;
+  for (size_t i = 0; i < order.size(); ++i) {
+    if (order[i] <= 0) continue;
+    const double n = order[i] + order_offset, n2 = n * n;
+    const double f = in.frequency_hz[i];
+    const double sigma_f = std::max(in.frequency_std_hz[i], kOrderSearchModelTolerance * f);
+    const double w = n2 / (2.0 * f * sigma_f);
+    const double r = w * (a + b * n2) - f / (2.0 * sigma_f);
+    chi += r * r;
+  }
+  *chi2 = chi;
+  *axial_force_n = 4.0 * m * length * length * a;
+  *bending_stiffness_nm2 = 4.0 * m * l4 * b / pi2;
   return Status::Ok();
 }
 
@@ -186,8 +225,9 @@ Status SearchModeOrders(const OrderSearchInput& in, OrderHypothesis* best) {
         in.ei_prior_sigma_ln > 0.0)) {
     return Status::InvalidArgument("order search: length, mass, nominal EI and prior sigma must be > 0");
   }
-  Searcher s{in, static_cast<int>(std::min<size_t>(total, kOrderSearchMaxModes)), {}, {}, false};
+  Searcher s{in, static_cast<int>(std::min<size_t>(total, kOrderSearchMaxModes)), {}, {}, false, {}, {}};
   s.order.assign(s.modes, 0);
+  s.Tabulate();
   s.Recurse(0, 0);
   if (!s.found) {
     std::ostringstream os;
