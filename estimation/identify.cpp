@@ -531,8 +531,12 @@ namespace {
 // One identification with the EI prior of `options` (the whole sequence of
 // the file comment of identify.h); IdentifyFromModes adds the prior
 // conflict check, the refusals and the verdict.
+// `forced_orders` (optional): the numbering to use instead of the search's
+// (one entry per measured mode in ascending frequency, 0 = left out);
+// `search` (optional) receives the search's hypothesis with its rival.
 Status IdentifyWithPrior(const model::Member& member, const ModalIdentification& ident,
-                         const IdentifyOptions& options, Estimate* estimate) {
+                         const IdentifyOptions& options, Estimate* estimate,
+                         const std::vector<int>* forced_orders = nullptr, OrderHypothesis* search = nullptr) {
   const auto t0 = std::chrono::steady_clock::now();
   if (Status s = model::ValidateMember(member); !s.ok()) return s;
   if (!(options.shape_std > 0.0 && options.ei_prior_sigma_ln > 0.0 && options.min_elements >= 1 &&
@@ -671,6 +675,16 @@ Status IdentifyWithPrior(const model::Member& member, const ModalIdentification&
                                  (member.right.kind != model::RotationEnd::Kind::kPinned));
   OrderHypothesis hyp;
   if (Status s = SearchModeOrders(osi, &hyp); !s.ok()) return s;
+  if (search != nullptr) *search = hyp;
+  if (forced_orders != nullptr && forced_orders->size() == measured.size()) {
+    double chi2 = 0.0;
+    if (Status s =
+            PinnedBeamRegression(osi, *forced_orders, &hyp.axial_force_n, &hyp.bending_stiffness_nm2, &chi2);
+        !s.ok()) {
+      return s;
+    }
+    hyp.order = *forced_orders;
+  }
   int highest = 1;
   for (int n : hyp.order) highest = std::max(highest, n);
 
@@ -1281,12 +1295,84 @@ double OtherOrientationRatio(const model::Member& member, model::Direction plane
   return plane == model::Direction::kVertical ? r * r : 1.0 / (r * r);
 }
 
+// The prior sigma an estimate was made with (relaxed after a conflict).
+double PriorSigmaOf(const Estimate& e, const IdentifyOptions& options) {
+  for (const auto& c : e.cautions) {
+    if (c.code == "stiffness-off-nominal") return kRelaxedPriorSigmaLn;
+  }
+  return options.ei_prior_sigma_ln;
+}
+
+// Competing numberings (issue 12, failure class 3): when the search's rival
+// (its winner shifted by +-1 or +-2 orders) scores within kRivalSearchScore
+// of the winner and at least two modes are paired, the rival numbering is
+// fitted too. A rival that explains
+// the data better by more than the 95 % chi-square threshold (scaled by the
+// reduced chi-square when above 1) replaces the estimate; one within it is
+// a second candidate: the force interval is widened to cover both
+// intervals (never the tighter one) and a caution names both forces.
+void CompareRivalNumbering(const model::Member& member, const ModalIdentification& ident,
+                           const IdentifyOptions& options, const OrderHypothesis& search, Estimate* est) {
+  if (search.rival_order.empty() || !(search.rival_score - search.score < kRivalSearchScore)) return;
+  // One paired mode: every numbering fits it exactly; the single-mode
+  // caution and the profile over the fixities already say so.
+  if (std::count_if(est->modes.begin(), est->modes.end(), [](const EstimatedMode& m) { return m.paired; }) <
+      2)
+    return;
+  IdentifyOptions o = options;
+  o.ei_prior_sigma_ln = PriorSigmaOf(*est, options);
+  Estimate alt;
+  if (!IdentifyWithPrior(member, ident, o, &alt, &search.rival_order).ok()) return;
+  est->fit.forward_model_calls += alt.fit.forward_model_calls;
+  const double ei_nominal = member.NominalBendingStiffness_nm2(est->direction);
+  const double score = DataScore(*est, ei_nominal, o.ei_prior_sigma_ln);
+  const double alt_score = DataScore(alt, ei_nominal, o.ei_prior_sigma_ln);
+  const double threshold = kChi2Dof1At95 * std::max(1.0, est->fit.reduced_chi2);
+  auto lowest = [](const Estimate& e) {
+    int n = 0;
+    for (const auto& m : e.modes) {
+      if (m.paired && m.measured.order && (n == 0 || *m.measured.order < n)) n = *m.measured.order;
+    }
+    return n;
+  };
+  if (alt_score < score - threshold) {
+    alt.fit.forward_model_calls = est->fit.forward_model_calls;
+    for (const auto& c : est->cautions) {
+      if (c.code == "stiffness-off-nominal") alt.cautions.push_back(c);
+    }
+    *est = std::move(alt);
+    return;
+  }
+  if (alt_score > score + threshold) return;
+  EstimatedQuantity& n = est->axial_force_n;
+  n.ci95_low = std::min(n.ci95_low, alt.axial_force_n.ci95_low);
+  n.ci95_high = std::max(n.ci95_high, alt.axial_force_n.ci95_high);
+  n.std = std::max(n.std, (n.ci95_high - n.ci95_low) / (2.0 * kZ95));
+  est->fit.axial_force_interval = "hypotheses";
+  est->cautions.push_back(
+      {"order-hypotheses-disagree",
+       "Two numberings of the modes fit the record about equally well: lowest paired order " +
+           std::to_string(lowest(*est)) + " gives " + FormatKn(n.value) + ", lowest paired order " +
+           std::to_string(lowest(alt)) + " gives " + FormatKn(alt.axial_force_n.value) +
+           "; the interval covers both. A record with more modes or sensors away from the nodes decides."});
+  const bool wide = std::any_of(est->cautions.begin(), est->cautions.end(),
+                                [](const Caution& c) { return c.code == "wide-interval"; });
+  if (!wide && n.ci95_high - n.ci95_low > kWideIntervalShare * std::abs(n.value)) {
+    est->cautions.push_back({"wide-interval", "The 95 % interval of the axial force [" +
+                                                  FormatKn(n.ci95_low) + ", " + FormatKn(n.ci95_high) +
+                                                  "] is wider than " +
+                                                  FormatNumber(100 * kWideIntervalShare, 2) +
+                                                  " % of the estimate " + FormatKn(n.value) + "."});
+  }
+}
+
 }  // namespace
 
 Status IdentifyFromModes(const model::Member& member, const ModalIdentification& ident,
                          const IdentifyOptions& options, Estimate* estimate) {
   Estimate est;
-  if (Status s = IdentifyWithPrior(member, ident, options, &est); !s.ok()) return s;
+  OrderHypothesis search;
+  if (Status s = IdentifyWithPrior(member, ident, options, &est, nullptr, &search); !s.ok()) return s;
   // EI prior conflict (issue 12, failure class 2): the nominal EI can be
   // 4-12 times off (unknown E of old iron, corrosion, built-up sections, a
   // flat described on edge). When the estimate sits more than
@@ -1307,7 +1393,8 @@ Status IdentifyFromModes(const model::Member& member, const ModalIdentification&
     IdentifyOptions relaxed_options = options;
     relaxed_options.ei_prior_sigma_ln = kRelaxedPriorSigmaLn;
     Estimate relaxed;
-    const Status rs = IdentifyWithPrior(member, ident, relaxed_options, &relaxed);
+    OrderHypothesis relaxed_search;
+    const Status rs = IdentifyWithPrior(member, ident, relaxed_options, &relaxed, nullptr, &relaxed_search);
     if (rs.ok()) {
       const double ratio = relaxed.bending_stiffness_nm2.value / ei_nominal;
       const bool relaxed_off = std::abs(std::log(ratio)) > kPriorConflictSigma * options.ei_prior_sigma_ln;
@@ -1333,11 +1420,13 @@ Status IdentifyFromModes(const model::Member& member, const ModalIdentification&
             relaxed.cautions.end());
         relaxed.cautions.push_back({"stiffness-off-nominal", msg});
         est = std::move(relaxed);
+        search = relaxed_search;
       } else {
         est.fit.forward_model_calls += relaxed.fit.forward_model_calls;
       }
     }
   }
+  CompareRivalNumbering(member, ident, options, search, &est);
   AppendRefusals(member, &est);
   est.verdict = MakeVerdict(est.cautions);
   *estimate = std::move(est);

@@ -87,6 +87,11 @@ inline constexpr double kLargeAmplitudeFrequencyShift = 0.005;
 inline constexpr double kPriorConflictSigma = 3.0;
 inline constexpr double kRelaxedPriorSigmaLn = 2.0;
 inline constexpr double kPriorConflictChi2 = 9.0;
+// Competing numberings: the search's rival (its winner shifted by +-1 or +-2
+// orders) is fitted too when its search score is within this of the
+// winner's (chi-square units; the search's pinned-beam regression only
+// resolves a frequency to 1 %, so it decides order shifts loosely).
+inline constexpr double kRivalSearchScore = 16.0;
 // Slenderness L / r_g below which Euler-Bernoulli theory is doubtful
 // (DESIGN.md; shear and rotary inertia matter for stockier members).
 inline constexpr double kStockySlenderness = 50.0;
@@ -153,12 +158,14 @@ struct FitSummary {
   int degrees_of_freedom = 0;
   int iterations = 0;  // of the best start
   int starts = 0;
-  int starts_at_best = 0;                     // starts that ended at the best minimum
-  double seconds = 0.0;                       // wall time of the whole identification
-  long forward_model_calls = 0;               // every ModalModel::Solve of the identification
-  long profile_model_calls = 0;               // of which in the profile-likelihood interval
-  int elements = 0;                           // mesh used
-  std::string axial_force_interval = "wald";  // or "profile" (the wider one)
+  int starts_at_best = 0;        // starts that ended at the best minimum
+  double seconds = 0.0;          // wall time of the whole identification
+  long forward_model_calls = 0;  // every ModalModel::Solve of the identification
+  long profile_model_calls = 0;  // of which in the profile-likelihood interval
+  int elements = 0;              // mesh used
+  // "wald" or "profile" (the wider one), or "hypotheses": the union of the
+  // intervals of two numberings of the modes that fit equally well.
+  std::string axial_force_interval = "wald";
 };
 
 // The time-domain fit behind a "transient" estimate (identify_record.h).

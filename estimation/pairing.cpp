@@ -267,6 +267,22 @@ Status SearchModeOrders(const OrderSearchInput& in, OrderHypothesis* best) {
       if (valid && s.Score(shifted, &h) && h.score < s.best.score) s.best = h;
     }
   }
+  // The rival: the best whole-numbering shift by +-1, +-2 of the winner.
+  for (int shift : {-2, -1, 1, 2}) {
+    std::vector<int> shifted = s.best.order;
+    bool valid = true;
+    for (int& n : shifted) {
+      if (n == 0) continue;
+      n += shift;
+      valid = valid && n >= 1 && n <= kOrderSearchMaxOrder;
+    }
+    OrderHypothesis h;
+    if (valid && s.Score(shifted, &h) && h.score < s.best.rival_score) {
+      s.best.rival_score = h.score;
+      s.best.rival_order = shifted;
+    }
+  }
+  if (!s.best.rival_order.empty()) s.best.rival_order.resize(total, 0);
   s.best.order.resize(total, 0);  // modes beyond the search are paired by the model
   *best = s.best;
   return Status::Ok();

@@ -29,6 +29,7 @@
 // sign-free.
 #pragma once
 
+#include <limits>
 #include <optional>
 #include <vector>
 
@@ -62,6 +63,11 @@ struct OrderHypothesis {
   double axial_force_n = 0.0;  // from the pinned-beam regression
   double bending_stiffness_nm2 = 0.0;
   double score = 0.0;  // lower is better; see pairing.cpp for the terms
+  // The best numbering shifted by +-1 or +-2 orders as a whole (the usual
+  // confusion on a record with few modes or one sensor): its orders and
+  // score (empty / +inf when no shift is admissible).
+  std::vector<int> rival_order;
+  double rival_score = std::numeric_limits<double>::infinity();
 };
 
 // Relative model tolerance used when scoring orders: the pinned-beam
