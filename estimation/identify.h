@@ -164,7 +164,9 @@ struct FitSummary {
   long profile_model_calls = 0;  // of which in the profile-likelihood interval
   int elements = 0;              // mesh used
   // "wald" or "profile" (the wider one), or "hypotheses": the union of the
-  // intervals of two numberings of the modes that fit equally well.
+  // intervals of two numberings of the modes that fit equally well, or for
+  // the time-domain fit "modal-floor": its Wald interval widened to the
+  // modal estimate's relative width (identify_record.cpp).
   std::string axial_force_interval = "wald";
 };
 
