@@ -114,6 +114,31 @@ TEST_F(CliIdentify, ChannelNotInMemberIsOneClearError) {
   EXPECT_TRUE(out.empty());
 }
 
+// A refusal (issue 12): the member declares material.yield_strength_pa =
+// 20 MPa while the record's 35 kN in a 28 mm bar is a stress of
+// 35000 / (pi 0.014^2) = 56.8 MPa: the estimate is refused as implausible,
+// the JSON still printed with verdict "unusable" (so the engineer sees
+// why), the reason on stderr in one line, exit code 1.
+TEST_F(CliIdentify, ImplausibleStressIsRefusedWithExitOne) {
+  nlohmann::json m = MemberToJson(member_);
+  m["material"]["yield_strength_pa"] = 20e6;
+  const std::string member = (dir_ / "weak-material.json").string();
+  std::ofstream(member) << m.dump();
+  const std::string record = (dir_ / "tie.csv").string();
+  ASSERT_TRUE(testing::WriteSyntheticRecord(record, member_, model::Direction::kVertical, truth_, {}));
+  std::string out, err;
+  EXPECT_EQ(Run({"identify", "--member", member, "--record", record, "--json"}, &out, &err), 1);
+  const nlohmann::json j = nlohmann::json::parse(out);
+  EXPECT_EQ(j["verdict"]["code"], "unusable");
+  EXPECT_EQ(j["verdict"]["summary"].get<std::string>().rfind("Repeat the record: ", 0), 0u);
+  bool refusal = false;
+  for (const auto& c : j["cautions"])
+    refusal |= c["code"] == "implausible-stress" && c["severity"] == "unusable";
+  EXPECT_TRUE(refusal) << j["cautions"].dump();
+  EXPECT_NE(err.find("Repeat the record"), std::string::npos) << err;
+  EXPECT_EQ(std::count(err.begin(), err.end(), '\n'), 1) << err;
+}
+
 TEST_F(CliIdentify, SensorOutsideSpanIsOneClearError) {
   nlohmann::json m = MemberToJson(member_);
   m["sensors"][1]["position_m"] = 7.3;  // the member is 5.8 m long
