@@ -244,6 +244,13 @@ struct Estimate {
 // The plane is that of the majority of the record's channels (vertical on a
 // tie); channels of the other plane are ignored with a caution.
 // A result with cautions is ok(); kNumerical when every start failed.
+// After the fit (issue 12): an EI prior conflict reruns it with the prior
+// relaxed (kPriorConflictSigma above; caution "stiffness-off-nominal"); a
+// close rival numbering of the modes is fitted too and either replaces the
+// estimate or widens the N interval to cover both ("order-hypotheses-
+// disagree"); the refusal tests of refusal.h run; Estimate::verdict is set.
+// A refused estimate is still ok() here, with verdict "unusable"
+// (IdentifyRecord turns it into an error).
 Status IdentifyFromModes(const model::Member& member, const ModalIdentification& modes,
                          const IdentifyOptions& options, Estimate* estimate);
 
