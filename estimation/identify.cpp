@@ -14,6 +14,7 @@
 #include <set>
 #include <sstream>
 
+#include "estimation/refusal.h"
 #include "model/modal.h"
 
 namespace taut::estimation {
@@ -525,8 +526,17 @@ void AppendForceCautions(const model::Member& member, model::Direction plane, do
   }
 }
 
-Status IdentifyFromModes(const model::Member& member, const ModalIdentification& ident,
-                         const IdentifyOptions& options, Estimate* estimate) {
+namespace {
+
+// One identification with the EI prior of `options` (the whole sequence of
+// the file comment of identify.h); IdentifyFromModes adds the prior
+// conflict check, the refusals and the verdict.
+// `forced_orders` (optional): the numbering to use instead of the search's
+// (one entry per measured mode in ascending frequency, 0 = left out);
+// `search` (optional) receives the search's hypothesis with its rival.
+Status IdentifyWithPrior(const model::Member& member, const ModalIdentification& ident,
+                         const IdentifyOptions& options, Estimate* estimate,
+                         const std::vector<int>* forced_orders = nullptr, OrderHypothesis* search = nullptr) {
   const auto t0 = std::chrono::steady_clock::now();
   if (Status s = model::ValidateMember(member); !s.ok()) return s;
   if (!(options.shape_std > 0.0 && options.ei_prior_sigma_ln > 0.0 && options.min_elements >= 1 &&
@@ -661,8 +671,20 @@ Status IdentifyFromModes(const model::Member& member, const ModalIdentification&
   osi.mass_per_length_kg_m = member.MassPerLength_kg_m() + sensor_mass / length;
   osi.nominal_ei_nm2 = ei_nominal;
   osi.ei_prior_sigma_ln = options.ei_prior_sigma_ln;
+  osi.max_order_offset = 0.25 * ((member.left.kind != model::RotationEnd::Kind::kPinned) +
+                                 (member.right.kind != model::RotationEnd::Kind::kPinned));
   OrderHypothesis hyp;
   if (Status s = SearchModeOrders(osi, &hyp); !s.ok()) return s;
+  if (search != nullptr) *search = hyp;
+  if (forced_orders != nullptr && forced_orders->size() == measured.size()) {
+    double chi2 = 0.0;
+    if (Status s =
+            PinnedBeamRegression(osi, *forced_orders, &hyp.axial_force_n, &hyp.bending_stiffness_nm2, &chi2);
+        !s.ok()) {
+      return s;
+    }
+    hyp.order = *forced_orders;
+  }
   int highest = 1;
   for (int n : hyp.order) highest = std::max(highest, n);
 
@@ -701,7 +723,11 @@ Status IdentifyFromModes(const model::Member& member, const ModalIdentification&
   ctx.model = model.get();
 
   // Start 1: the regression (fixities 0, consistent with its pinned ends).
-  const double ei_start = std::clamp(hyp.bending_stiffness_nm2, 0.5 * ei_nominal, 2.0 * ei_nominal);
+  // The regression's EI, within 0.5-2 times the nominal or two prior stds
+  // (the relaxed prior of a conflict, IdentifyFromModes, opens the range).
+  const double ei_spread = std::max(2.0, std::exp(2.0 * options.ei_prior_sigma_ln));
+  const double ei_start =
+      std::clamp(hyp.bending_stiffness_nm2, ei_nominal / ei_spread, ei_nominal * ei_spread);
   const double x1_start = std::log(ei_start / ei_nominal) + kLnEiOffset;
   Unknowns x_reg = {std::max(hyp.axial_force_n, -0.5 * n_euler_pinned) / ctx.n_scale, x1_start,
                     kFixityOffset + 0.0, kFixityOffset + 0.0, kFixityOffset + rho_declared};
@@ -1243,6 +1269,166 @@ Status IdentifyFromModes(const model::Member& member, const ModalIdentification&
 
   est.fit.forward_model_calls = ctx.calls;
   est.fit.seconds = std::chrono::duration<double>(std::chrono::steady_clock::now() - t0).count();
+  *estimate = std::move(est);
+  return Status::Ok();
+}
+
+// Score of an estimate without its EI prior: the chi-square of the data
+// (frequencies and shapes; twice the cost less the squared prior residual)
+// plus kUnexplainedModePenalty for every strong in-plane mode left
+// unpaired (unpaired modes add nothing to the chi-square, so a fit that
+// explains fewer modes must not look better for it).
+constexpr double kUnexplainedModePenalty = 9.0;
+double DataScore(const Estimate& e, double ei_nominal, double sigma_ln) {
+  const double z = std::log(e.bending_stiffness_nm2.value / ei_nominal) / sigma_ln;
+  return std::max(0.0, 2.0 * e.fit.cost - z * z) +
+         kUnexplainedModePenalty * CountStrongModes(e).strong_unpaired;
+}
+
+// I of the other orientation of a rectangle over I of the declared one in
+// `plane` ((w/d)^2 in the vertical plane, (d/w)^2 in the lateral one); 0
+// for other sections.
+double OtherOrientationRatio(const model::Member& member, model::Direction plane) {
+  const auto& s = member.section;
+  if (s.shape != model::Section::Shape::kRectangle || !(s.width_m > 0.0 && s.depth_m > 0.0)) return 0.0;
+  const double r = s.width_m / s.depth_m;
+  return plane == model::Direction::kVertical ? r * r : 1.0 / (r * r);
+}
+
+// The prior sigma an estimate was made with (relaxed after a conflict).
+double PriorSigmaOf(const Estimate& e, const IdentifyOptions& options) {
+  for (const auto& c : e.cautions) {
+    if (c.code == "stiffness-off-nominal") return kRelaxedPriorSigmaLn;
+  }
+  return options.ei_prior_sigma_ln;
+}
+
+// Competing numberings (issue 12, failure class 3): when the search's rival
+// (its winner shifted by +-1 or +-2 orders) scores within kRivalSearchScore
+// of the winner and at least two modes are paired, the rival numbering is
+// fitted too. A rival that explains
+// the data better by more than the 95 % chi-square threshold (scaled by the
+// reduced chi-square when above 1) replaces the estimate; one within it is
+// a second candidate: the force interval is widened to cover both
+// intervals (never the tighter one) and a caution names both forces.
+void CompareRivalNumbering(const model::Member& member, const ModalIdentification& ident,
+                           const IdentifyOptions& options, const OrderHypothesis& search, Estimate* est) {
+  if (search.rival_order.empty() || !(search.rival_score - search.score < kRivalSearchScore)) return;
+  // One paired mode: every numbering fits it exactly; the single-mode
+  // caution and the profile over the fixities already say so.
+  if (std::count_if(est->modes.begin(), est->modes.end(), [](const EstimatedMode& m) { return m.paired; }) <
+      2)
+    return;
+  IdentifyOptions o = options;
+  o.ei_prior_sigma_ln = PriorSigmaOf(*est, options);
+  Estimate alt;
+  if (!IdentifyWithPrior(member, ident, o, &alt, &search.rival_order).ok()) return;
+  est->fit.forward_model_calls += alt.fit.forward_model_calls;
+  const double ei_nominal = member.NominalBendingStiffness_nm2(est->direction);
+  const double score = DataScore(*est, ei_nominal, o.ei_prior_sigma_ln);
+  const double alt_score = DataScore(alt, ei_nominal, o.ei_prior_sigma_ln);
+  const double threshold = kChi2Dof1At95 * std::max(1.0, est->fit.reduced_chi2);
+  auto lowest = [](const Estimate& e) {
+    int n = 0;
+    for (const auto& m : e.modes) {
+      if (m.paired && m.measured.order && (n == 0 || *m.measured.order < n)) n = *m.measured.order;
+    }
+    return n;
+  };
+  if (alt_score < score - threshold) {
+    alt.fit.forward_model_calls = est->fit.forward_model_calls;
+    for (const auto& c : est->cautions) {
+      if (c.code == "stiffness-off-nominal") alt.cautions.push_back(c);
+    }
+    *est = std::move(alt);
+    return;
+  }
+  if (alt_score > score + threshold) return;
+  EstimatedQuantity& n = est->axial_force_n;
+  n.ci95_low = std::min(n.ci95_low, alt.axial_force_n.ci95_low);
+  n.ci95_high = std::max(n.ci95_high, alt.axial_force_n.ci95_high);
+  n.std = std::max(n.std, (n.ci95_high - n.ci95_low) / (2.0 * kZ95));
+  est->fit.axial_force_interval = "hypotheses";
+  est->cautions.push_back(
+      {"order-hypotheses-disagree",
+       "Two numberings of the modes fit the record about equally well: lowest paired order " +
+           std::to_string(lowest(*est)) + " gives " + FormatKn(n.value) + ", lowest paired order " +
+           std::to_string(lowest(alt)) + " gives " + FormatKn(alt.axial_force_n.value) +
+           "; the interval covers both. A record with more modes or sensors away from the nodes decides."});
+  const bool wide = std::any_of(est->cautions.begin(), est->cautions.end(),
+                                [](const Caution& c) { return c.code == "wide-interval"; });
+  if (!wide && n.ci95_high - n.ci95_low > kWideIntervalShare * std::abs(n.value)) {
+    est->cautions.push_back({"wide-interval", "The 95 % interval of the axial force [" +
+                                                  FormatKn(n.ci95_low) + ", " + FormatKn(n.ci95_high) +
+                                                  "] is wider than " +
+                                                  FormatNumber(100 * kWideIntervalShare, 2) +
+                                                  " % of the estimate " + FormatKn(n.value) + "."});
+  }
+}
+
+}  // namespace
+
+Status IdentifyFromModes(const model::Member& member, const ModalIdentification& ident,
+                         const IdentifyOptions& options, Estimate* estimate) {
+  Estimate est;
+  OrderHypothesis search;
+  if (Status s = IdentifyWithPrior(member, ident, options, &est, nullptr, &search); !s.ok()) return s;
+  // EI prior conflict (issue 12, failure class 2): the nominal EI can be
+  // 4-12 times off (unknown E of old iron, corrosion, built-up sections, a
+  // flat described on edge). When the estimate sits more than
+  // kPriorConflictSigma prior stds from the nominal, or the fit is poor or
+  // leaves strong modes unexplained (the prior may have forced a wrong
+  // numbering of the modes), the whole
+  // identification is repeated with the prior relaxed to
+  // kRelaxedPriorSigmaLn; the relaxed estimate is kept when it is itself
+  // off-nominal by that much and explains the data better by more than
+  // kPriorConflictChi2 (a three-sigma improvement), or when the first was
+  // already off-nominal.
+  const double ei_nominal = member.NominalBendingStiffness_nm2(est.direction);
+  const double z = std::log(est.bending_stiffness_nm2.value / ei_nominal) / options.ei_prior_sigma_ln;
+  const bool off_nominal = std::abs(z) > kPriorConflictSigma;
+  const bool unexplained = CountStrongModes(est).strong_unpaired >= kMinUnpairedForRefusal;
+  if ((off_nominal || unexplained || est.fit.reduced_chi2 > kPoorFitReducedChi2) &&
+      options.ei_prior_sigma_ln < kRelaxedPriorSigmaLn) {
+    IdentifyOptions relaxed_options = options;
+    relaxed_options.ei_prior_sigma_ln = kRelaxedPriorSigmaLn;
+    Estimate relaxed;
+    OrderHypothesis relaxed_search;
+    const Status rs = IdentifyWithPrior(member, ident, relaxed_options, &relaxed, nullptr, &relaxed_search);
+    if (rs.ok()) {
+      const double ratio = relaxed.bending_stiffness_nm2.value / ei_nominal;
+      const bool relaxed_off = std::abs(std::log(ratio)) > kPriorConflictSigma * options.ei_prior_sigma_ln;
+      const bool better = DataScore(relaxed, ei_nominal, kRelaxedPriorSigmaLn) <
+                          DataScore(est, ei_nominal, options.ei_prior_sigma_ln) - kPriorConflictChi2;
+      if (relaxed_off && (better || off_nominal)) {
+        relaxed.fit.forward_model_calls += est.fit.forward_model_calls;
+        relaxed.fit.seconds += est.fit.seconds;
+        std::string msg = "The modes put the bending stiffness at " + FormatNumber(ratio, 3) +
+                          " times its nominal value (" + FormatNumber(relaxed.bending_stiffness_nm2.value) +
+                          " against " + FormatNumber(ei_nominal) +
+                          " N m^2 from E and the section), far outside the " +
+                          FormatNumber(100 * options.ei_prior_sigma_ln, 2) +
+                          " % expected; the fit was repeated with that prior relaxed. Check E, the section "
+                          "(corrosion, built-up parts) and that the record belongs to this member.";
+        if (const double other = OtherOrientationRatio(member, est.direction); other > 0.0) {
+          msg += " A rectangle turned the other way (width and depth swapped) would give " +
+                 FormatNumber(other, 3) + " times the nominal value.";
+        }
+        relaxed.cautions.erase(
+            std::remove_if(relaxed.cautions.begin(), relaxed.cautions.end(),
+                           [](const Caution& c) { return c.code == "stiffness-from-prior"; }),
+            relaxed.cautions.end());
+        relaxed.cautions.push_back({"stiffness-off-nominal", msg});
+        est = std::move(relaxed);
+        search = relaxed_search;
+      } else {
+        est.fit.forward_model_calls += relaxed.fit.forward_model_calls;
+      }
+    }
+  }
+  CompareRivalNumbering(member, ident, options, search, &est);
+  AppendRefusals(member, &est);
+  est.verdict = MakeVerdict(est.cautions);
   *estimate = std::move(est);
   return Status::Ok();
 }

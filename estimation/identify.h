@@ -77,6 +77,21 @@ inline constexpr double kDesignForceDeviationShare = 0.3;
 // this share raises the large-amplitude caution (0.5 % is several frequency
 // stds of a good record; common practice, recalled value).
 inline constexpr double kLargeAmplitudeFrequencyShift = 0.005;
+// EI prior conflict (identify.cpp IdentifyFromModes): an estimate more than
+// kPriorConflictSigma prior stds from the nominal EI (or a poor fit) makes
+// the identification run again with the prior relaxed to
+// kRelaxedPriorSigmaLn (one std = a factor e^2 = 7.4: the 4-12 times errors
+// of a wrong nominal EI lie within 1.3 std); the relaxed result is kept
+// when it is off-nominal and explains the data better by more than
+// kPriorConflictChi2 (chi-square units, a three-sigma improvement).
+inline constexpr double kPriorConflictSigma = 3.0;
+inline constexpr double kRelaxedPriorSigmaLn = 2.0;
+inline constexpr double kPriorConflictChi2 = 9.0;
+// Competing numberings: the search's rival (its winner shifted by +-1 or +-2
+// orders) is fitted too when its search score is within this of the
+// winner's (chi-square units; the search's pinned-beam regression only
+// resolves a frequency to 1 %, so it decides order shifts loosely).
+inline constexpr double kRivalSearchScore = 16.0;
 // Slenderness L / r_g below which Euler-Bernoulli theory is doubtful
 // (docs/DESIGN.md; shear and rotary inertia matter for stockier members).
 inline constexpr double kStockySlenderness = 50.0;
@@ -143,12 +158,16 @@ struct FitSummary {
   int degrees_of_freedom = 0;
   int iterations = 0;  // of the best start
   int starts = 0;
-  int starts_at_best = 0;                     // starts that ended at the best minimum
-  double seconds = 0.0;                       // wall time of the whole identification
-  long forward_model_calls = 0;               // every ModalModel::Solve of the identification
-  long profile_model_calls = 0;               // of which in the profile-likelihood interval
-  int elements = 0;                           // mesh used
-  std::string axial_force_interval = "wald";  // or "profile" (the wider one)
+  int starts_at_best = 0;        // starts that ended at the best minimum
+  double seconds = 0.0;          // wall time of the whole identification
+  long forward_model_calls = 0;  // every ModalModel::Solve of the identification
+  long profile_model_calls = 0;  // of which in the profile-likelihood interval
+  int elements = 0;              // mesh used
+  // "wald" or "profile" (the wider one), or "hypotheses": the union of the
+  // intervals of two numberings of the modes that fit equally well, or for
+  // the time-domain fit "modal-floor": its Wald interval widened to the
+  // modal estimate's relative width (identify_record.cpp).
+  std::string axial_force_interval = "wald";
 };
 
 // The time-domain fit behind a "transient" estimate (identify_record.h).
@@ -211,6 +230,9 @@ struct Estimate {
   std::optional<TransientSummary> transient;  // set when fit.model is "transient"
   AmplitudeCheck amplitude;                   // set by IdentifyRecord
   Cautions cautions;
+  // The worst caution severity and one line for the technician
+  // (cautions.h MakeVerdict); set whenever `cautions` is final.
+  Verdict verdict;
   std::string notice;
 };
 
@@ -222,6 +244,13 @@ struct Estimate {
 // The plane is that of the majority of the record's channels (vertical on a
 // tie); channels of the other plane are ignored with a caution.
 // A result with cautions is ok(); kNumerical when every start failed.
+// After the fit (issue 12): an EI prior conflict reruns it with the prior
+// relaxed (kPriorConflictSigma above; caution "stiffness-off-nominal"); a
+// close rival numbering of the modes is fitted too and either replaces the
+// estimate or widens the N interval to cover both ("order-hypotheses-
+// disagree"); the refusal tests of refusal.h run; Estimate::verdict is set.
+// A refused estimate is still ok() here, with verdict "unusable"
+// (IdentifyRecord turns it into an error).
 Status IdentifyFromModes(const model::Member& member, const ModalIdentification& modes,
                          const IdentifyOptions& options, Estimate* estimate);
 

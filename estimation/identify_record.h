@@ -88,7 +88,12 @@ struct IdentifyRecordOptions {
 // IdentifyFromModes. The estimate carries the record's quality cautions
 // ahead of its own. kInvalidArgument when no mode can be identified or
 // paired (message for the engineer, no path prefix), or for path =
-// kTransient on a record without a free decay.
+// kTransient on a record without a free decay. A refusal (a caution of
+// severity "unusable", e.g. a record that does not fit the member) also
+// returns kInvalidArgument, with the verdict's summary as the message
+// ("Repeat the record: <why>."), and then still fills `estimate` (verdict
+// "unusable"), so that a caller can show why; the service's worker fails
+// the job with that message and keeps the record.
 Status IdentifyRecord(const model::Member& member, const Record& record, const IdentifyRecordOptions& options,
                       Estimate* estimate);
 

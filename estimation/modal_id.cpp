@@ -223,13 +223,18 @@ Status IdentifyModes(const Record& record, const ModalIdOptions& o, ModalIdentif
                                      " Hz has no spectral peak in the FDD and is not reported."});
     it = cand.erase(it);
   }
+  // Selection by frequency: every confirmed mode is kept from the bottom of
+  // the band up, and only the highest ones go when there are more than
+  // max_modes (cluster size breaks ties). The low modes carry the force
+  // (f_n^2 / n^2 -> N / (4 m L^2) as n -> 0) and fix the numbering of the
+  // others; on long ties the fundamental can be 20-30 dB below the
+  // strongest mode and a small pole cluster, and ranking by cluster size
+  // dropped it first (issue 12, failure class 1).
   std::stable_sort(cand.begin(), cand.end(), [](const Candidate& a, const Candidate& b) {
-    if (a.confirmed != b.confirmed) return a.confirmed;
+    if (a.mode.frequency_hz != b.mode.frequency_hz) return a.mode.frequency_hz < b.mode.frequency_hz;
     return a.cluster_size > b.cluster_size;
   });
   if (static_cast<int>(cand.size()) > o.max_modes) cand.resize(static_cast<std::size_t>(o.max_modes));
-  std::sort(cand.begin(), cand.end(),
-            [](const Candidate& a, const Candidate& b) { return a.mode.frequency_hz < b.mode.frequency_hz; });
 
   // A free decay of a hardening member sweeps its frequency; SSI-COV then
   // splits one mode into close pole clusters. Clusters within

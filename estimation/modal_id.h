@@ -69,9 +69,12 @@ inline constexpr double kMinLowestModePeriods = 500.0;
 struct ModalIdOptions {
   std::optional<double> band_lo_hz;  // default 0
   std::optional<double> band_hi_hz;  // default kDefaultBandTopShare x Nyquist
-  int max_modes = 8;                 // at most this many modes reported, 1..32
-  int welch_segment_samples = 0;     // 0 = DefaultSegmentSamples
-  int min_order = 2;                 // SSI-COV orders
+  // At most this many modes reported, 1..32: the lowest ones (selection by
+  // frequency). 16 covers the 10-14 bending modes in band of a long
+  // low-tension tie with room for other-plane modes.
+  int max_modes = 16;
+  int welch_segment_samples = 0;  // 0 = DefaultSegmentSamples
+  int min_order = 2;              // SSI-COV orders
   int max_order = 40;
   int uncertainty_segments = 6;  // SSI-COV segment scatter (ambient records)
 };

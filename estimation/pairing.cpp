@@ -2,6 +2,7 @@
 
 #include <Eigen/Dense>
 #include <algorithm>
+#include <array>
 #include <cmath>
 #include <limits>
 #include <numbers>
@@ -24,8 +25,12 @@ constexpr double kLeftOutModePenalty = 9.0;
 // A pinned shape whose largest |sin(n pi x/L)| over the sensors is below
 // this is taken as invisible (sensors near nodes), so its absence is free.
 constexpr double kVisibleShapeAmplitude = 0.3;
+// Offsets of the effective order tried per hypothesis (0 .. max_order_offset).
+constexpr int kOrderOffsetSteps = 3;
 
 double PinnedShapeAt(int n, double x, double length) { return std::sin(n * std::numbers::pi * x / length); }
+
+constexpr int kTableOrders = kOrderSearchMaxOrder + kOrderSearchMaxStep + 2;
 
 struct Searcher {
   const OrderSearchInput& in;
@@ -33,14 +38,73 @@ struct Searcher {
   std::vector<int> order;
   OrderHypothesis best;
   bool found = false;
+  // Per mode i and order n: the shape term ((1 - MAC) / scale)^2 of the
+  // measured shape against sin(n pi x / L); per order: visible at the
+  // sensors. Computed once (the tree evaluates ~10^5 leaves).
+  std::vector<std::array<double, kTableOrders>> shape_term;
+  std::array<bool, kTableOrders> visible{};
+
+  void Tabulate() {
+    shape_term.assign(static_cast<size_t>(modes), {});
+    for (int n = 1; n < kTableOrders; ++n) {
+      double amplitude = 0.0;
+      std::vector<double> pinned;
+      for (double x : in.sensor_x_m) {
+        pinned.push_back(PinnedShapeAt(n, x, in.length_m));
+        amplitude = std::max(amplitude, std::abs(pinned.back()));
+      }
+      visible[n] = amplitude >= kVisibleShapeAmplitude;
+      for (int i = 0; i < modes; ++i) {
+        shape_term[i][n] = in.sensor_x_m.size() >= 2
+                               ? std::pow((1.0 - Mac(in.shape[i], pinned)) / kOrderSearchMacScale, 2)
+                               : 0.0;
+      }
+    }
+  }
 
   void Leaf() {
-    double n_reg = 0.0, ei_reg = 0.0, chi2 = 0.0;
-    if (!PinnedBeamRegression(in, order, &n_reg, &ei_reg, &chi2).ok()) return;
-    if (!(ei_reg > 0.0)) return;
+    OrderHypothesis h;
+    if (!Score(order, &h)) return;
+    if (!found || h.score < best.score) {
+      found = true;
+      best = h;
+    }
+  }
+
+  // Scores the hypothesis `order` (the first `modes` entries); false when
+  // it gives no positive EI or a force below the pinned Euler load.
+  bool Score(const std::vector<int>& order, OrderHypothesis* out) const {
+    // Most of the modes must be numbered: a hypothesis that leaves all but
+    // one or two modes out fits them trivially (two unknowns) and let one
+    // high mode stand alone for the member (issue 12, failure class 1).
+    int numbered = 0;
+    for (int i = 0; i < modes; ++i) numbered += order[i] > 0;
+    if (2 * numbered < modes) return false;
+    // End restraint raises the frequencies like a fractional order
+    // (bending-dominated: beta L = (n + delta) pi, delta = 1/4 per clamped
+    // end; Blevins 1979, table 8-1): the smallest chi-square over a few
+    // offsets in [0, max_order_offset] is used.
+    double n_reg = 0.0, ei_reg = 0.0, chi2 = std::numeric_limits<double>::infinity();
+    for (int k = 0; k < kOrderOffsetSteps; ++k) {
+      const double offset = in.max_order_offset * k / std::max(1, kOrderOffsetSteps - 1);
+      double n_k = 0.0, ei_k = 0.0, chi2_k = 0.0;
+      if (!PinnedBeamRegression(in, order, &n_k, &ei_k, &chi2_k, offset).ok()) continue;
+      if (!(ei_k > 0.0)) continue;
+      const double z = std::log(ei_k / in.nominal_ei_nm2) / in.ei_prior_sigma_ln;
+      const double prior = z * z;
+      // A larger offset must improve the score beyond round-off (an exact
+      // fit, e.g. one mode and the prior, keeps the pinned offset 0).
+      if (chi2_k + prior < chi2 - 1e-6 * (1.0 + std::min(chi2, 1e300))) {
+        chi2 = chi2_k + prior;
+        n_reg = n_k;
+        ei_reg = ei_k;
+      }
+      if (in.max_order_offset <= 0.0) break;
+    }
+    if (!std::isfinite(chi2)) return false;
     const double n_euler = std::numbers::pi * std::numbers::pi * ei_reg / (in.length_m * in.length_m);
-    if (!(n_reg > -n_euler)) return;
-    double score = chi2 + std::pow(std::log(ei_reg / in.nominal_ei_nm2) / in.ei_prior_sigma_ln, 2);
+    if (!(n_reg > -n_euler)) return false;
+    double score = chi2;
     int highest = 0;
     std::vector<bool> used(kOrderSearchMaxOrder + kOrderSearchMaxStep + 2, false);
     for (int i = 0; i < modes; ++i) {
@@ -50,26 +114,16 @@ struct Searcher {
       }
       used[order[i]] = true;
       highest = std::max(highest, order[i]);
-      if (in.sensor_x_m.size() >= 2) {
-        std::vector<double> pinned;
-        for (double x : in.sensor_x_m) pinned.push_back(PinnedShapeAt(order[i], x, in.length_m));
-        score += std::pow((1.0 - Mac(in.shape[i], pinned)) / kOrderSearchMacScale, 2);
-      }
+      score += shape_term[i][order[i]];
     }
     for (int n = 1; n < highest; ++n) {
-      if (used[n]) continue;
-      double amplitude = 0.0;
-      for (double x : in.sensor_x_m)
-        amplitude = std::max(amplitude, std::abs(PinnedShapeAt(n, x, in.length_m)));
-      if (amplitude >= kVisibleShapeAmplitude) score += kMissingOrderPenalty;
+      if (!used[n] && visible[n]) score += kMissingOrderPenalty;
     }
-    if (!found || score < best.score) {
-      found = true;
-      best.order = order;
-      best.axial_force_n = n_reg;
-      best.bending_stiffness_nm2 = ei_reg;
-      best.score = score;
-    }
+    out->order = order;
+    out->axial_force_n = n_reg;
+    out->bending_stiffness_nm2 = ei_reg;
+    out->score = score;
+    return true;
   }
 
   void Recurse(int i, int last) {
@@ -104,40 +158,60 @@ double Mac(const std::vector<double>& a, const std::vector<double>& b) {
 }
 
 Status PinnedBeamRegression(const OrderSearchInput& in, const std::vector<int>& order, double* axial_force_n,
-                            double* bending_stiffness_nm2, double* chi2) {
+                            double* bending_stiffness_nm2, double* chi2, double order_offset) {
   const double pi2 = std::numbers::pi * std::numbers::pi;
   const double m = in.mass_per_length_kg_m, length = in.length_m;
   // Unknowns (a, b): f_n^2/n^2 = a + b n^2, a = N/(4 m L^2), b = pi^2 EI/(4 m L^4).
-  int rows = 1;
-  for (int n : order) rows += (n > 0);
-  if (rows < 2) return Status::InvalidArgument("pinned-beam regression: no mode has an order");
-  Eigen::MatrixXd A(rows, 2);
-  Eigen::VectorXd y(rows);
-  int r = 0;
+  // Weighted least squares of two unknowns: the 2 x 2 normal equations,
+  // accumulated row by row (the order search solves ~10^5 of them; the
+  // columns are scaled by their norms, so the system stays well conditioned
+  // for orders up to kOrderSearchMaxOrder).
+  const double l4 = length * length * length * length;
+  const double b_nominal = pi2 * in.nominal_ei_nm2 / (4.0 * m * l4);
+  const double w_prior = 1.0 / (in.ei_prior_sigma_ln * b_nominal);
+  double s00 = 0.0, s01 = 0.0, s11 = w_prior * w_prior, t0 = 0.0, t1 = w_prior * w_prior * b_nominal;
+  int rows = 0;
   for (size_t i = 0; i < order.size(); ++i) {
-    const int n = order[i];
-    if (n <= 0) continue;
+    if (order[i] <= 0) continue;
+    const double n = order[i] + order_offset, n2 = n * n;
     const double f = in.frequency_hz[i];
     const double sigma_f = std::max(in.frequency_std_hz[i], kOrderSearchModelTolerance * f);
-    // sigma of y = f^2/n^2 by first-order propagation: 2 f sigma_f / n^2.
-    const double w = 1.0 / (2.0 * f * sigma_f / (n * n));
-    A(r, 0) = w;
-    A(r, 1) = w * n * n;
-    y[r] = w * f * f / (n * n);
-    ++r;
+    // sigma of y = f^2/n^2 by first-order propagation: 2 f sigma_f / n^2;
+    // the weighted row is (w, w n^2) (a, b) = w f^2 / n^2 = f / (2 sigma_f).
+    const double w = n2 / (2.0 * f * sigma_f);
+    const double a0 = w, a1 = w * n2, y = f / (2.0 * sigma_f);
+    s00 += a0 * a0;
+    s01 += a0 * a1;
+    s11 += a1 * a1;
+    t0 += a0 * y;
+    t1 += a1 * y;
+    ++rows;
   }
-  const double b_nominal = pi2 * in.nominal_ei_nm2 / (4.0 * m * std::pow(length, 4));
-  const double w_prior = 1.0 / (in.ei_prior_sigma_ln * b_nominal);
-  A(r, 0) = 0.0;
-  A(r, 1) = w_prior;
-  y[r] = w_prior * b_nominal;
-  Eigen::ColPivHouseholderQR<Eigen::MatrixXd> qr(A);
-  if (qr.rank() < 2) return Status::Numerical("pinned-beam regression: singular least-squares system");
-  const Eigen::Vector2d ab = qr.solve(y);
-  const Eigen::VectorXd res = A * ab - y;
-  *chi2 = res.head(rows - 1).squaredNorm();
-  *axial_force_n = 4.0 * m * length * length * ab[0];
-  *bending_stiffness_nm2 = 4.0 * m * std::pow(length, 4) * ab[1] / pi2;
+  if (rows < 1) return Status::InvalidArgument("pinned-beam regression: no mode has an order");
+  const double d0 = std::sqrt(s00), d1 = std::sqrt(s11);  // column scaling
+  const double c01 = s01 / (d0 * d1);
+  const double det = 1.0 - c01 * c01;
+  if (!(d0 > 0.0 && d1 > 0.0) || !(det > 1e-13)) {
+    return Status::Numerical("pinned-beam regression: singular least-squares system");
+  }
+  const double u0 = t0 / d0, u1 = t1 / d1;
+  const double a = (u0 - c01 * u1) / det / d0;
+  const double b = (u1 - c01 * u0) / det / d1;
+  // Chi-square of the frequency rows, from their residuals (a second pass:
+  // expanding it from the sums above cancels to ~1e-12).
+  double chi = 0.0;
+  for (size_t i = 0; i < order.size(); ++i) {
+    if (order[i] <= 0) continue;
+    const double n = order[i] + order_offset, n2 = n * n;
+    const double f = in.frequency_hz[i];
+    const double sigma_f = std::max(in.frequency_std_hz[i], kOrderSearchModelTolerance * f);
+    const double w = n2 / (2.0 * f * sigma_f);
+    const double r = w * (a + b * n2) - f / (2.0 * sigma_f);
+    chi += r * r;
+  }
+  *chi2 = chi;
+  *axial_force_n = 4.0 * m * length * length * a;
+  *bending_stiffness_nm2 = 4.0 * m * l4 * b / pi2;
   return Status::Ok();
 }
 
@@ -151,8 +225,9 @@ Status SearchModeOrders(const OrderSearchInput& in, OrderHypothesis* best) {
         in.ei_prior_sigma_ln > 0.0)) {
     return Status::InvalidArgument("order search: length, mass, nominal EI and prior sigma must be > 0");
   }
-  Searcher s{in, static_cast<int>(std::min<size_t>(total, kOrderSearchMaxModes)), {}, {}, false};
+  Searcher s{in, static_cast<int>(std::min<size_t>(total, kOrderSearchMaxModes)), {}, {}, false, {}, {}};
   s.order.assign(s.modes, 0);
+  s.Tabulate();
   s.Recurse(0, 0);
   if (!s.found) {
     std::ostringstream os;
@@ -162,6 +237,52 @@ Status SearchModeOrders(const OrderSearchInput& in, OrderHypothesis* best) {
        << in.frequency_hz[0] << " Hz)";
     return Status::InvalidArgument(os.str());
   }
+  // Consecutive numberings from every first order: the tree starts within
+  // kOrderSearchMaxStep of order 1, so a record whose lowest modes are all
+  // missing (a weak fundamental on a long tie, issue 12 class 1: modes
+  // 1..4 below the noise) could only be numbered too low.
+  for (int first = 1; first + s.modes - 1 <= kOrderSearchMaxOrder; ++first) {
+    std::vector<int> consecutive(s.modes);
+    for (int i = 0; i < s.modes; ++i) consecutive[i] = first + i;
+    OrderHypothesis h;
+    const bool ok = s.Score(consecutive, &h);
+    if (ok && h.score < s.best.score) s.best = h;
+  }
+  // Shifted numberings of the best hypothesis (with its left-out modes):
+  // every shift of the whole numbering by -kOrderSearchMaxStep..
+  // +kOrderSearchMaxShift is scored the same way and competes (the
+  // missing-order penalty charges the orders skipped below).
+  {
+    const OrderHypothesis base = s.best;
+    for (int shift = -kOrderSearchMaxStep; shift <= kOrderSearchMaxShift; ++shift) {
+      if (shift == 0) continue;
+      std::vector<int> shifted = base.order;
+      bool valid = true;
+      for (int& n : shifted) {
+        if (n == 0) continue;
+        n += shift;
+        valid = valid && n >= 1 && n <= kOrderSearchMaxOrder;
+      }
+      OrderHypothesis h;
+      if (valid && s.Score(shifted, &h) && h.score < s.best.score) s.best = h;
+    }
+  }
+  // The rival: the best whole-numbering shift by +-1, +-2 of the winner.
+  for (int shift : {-2, -1, 1, 2}) {
+    std::vector<int> shifted = s.best.order;
+    bool valid = true;
+    for (int& n : shifted) {
+      if (n == 0) continue;
+      n += shift;
+      valid = valid && n >= 1 && n <= kOrderSearchMaxOrder;
+    }
+    OrderHypothesis h;
+    if (valid && s.Score(shifted, &h) && h.score < s.best.rival_score) {
+      s.best.rival_score = h.score;
+      s.best.rival_order = shifted;
+    }
+  }
+  if (!s.best.rival_order.empty()) s.best.rival_order.resize(total, 0);
   s.best.order.resize(total, 0);  // modes beyond the search are paired by the model
   *best = s.best;
   return Status::Ok();

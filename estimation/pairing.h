@@ -11,7 +11,14 @@
 //     measured shape with the pinned shape sin(n pi x / L) at the sensors,
 //     a penalty for every order below the highest that is missing although
 //     it would be visible at the sensors, and a penalty for every left-out
-//     mode. The best hypothesis also gives the first start of the update.
+//     mode. Candidates: every increasing assignment whose first order is
+//     at most kOrderSearchMaxStep, every consecutive numbering from any
+//     first order (the lowest modes of a long tie may all be missing), and
+//     shifts of the best one; a hypothesis must number at least half of
+//     the searched modes (one high mode never stands alone for the
+//     member), and end restraint enters as an effective-order offset
+//     (OrderSearchInput::max_order_offset). The best hypothesis also gives
+//     the first start of the update.
 //  2. Pairing against model modes computed at given parameters: a measured
 //     mode pairs with the model mode of closest frequency and shape, one to
 //     one, only when the relative frequency difference and the MAC are
@@ -22,6 +29,7 @@
 // sign-free.
 #pragma once
 
+#include <limits>
 #include <optional>
 #include <vector>
 
@@ -45,6 +53,9 @@ struct OrderSearchInput {
   double mass_per_length_kg_m = 0.0;  // including smeared sensor masses
   double nominal_ei_nm2 = 0.0;
   double ei_prior_sigma_ln = 0.15;  // one-sigma of ln EI around the nominal
+  // Largest effective-order offset of end restraint (0.25 per end that is
+  // not pinned: clamped-clamped bending modes have beta L = (n + 1/2) pi).
+  double max_order_offset = 0.0;
 };
 
 struct OrderHypothesis {
@@ -52,6 +63,11 @@ struct OrderHypothesis {
   double axial_force_n = 0.0;  // from the pinned-beam regression
   double bending_stiffness_nm2 = 0.0;
   double score = 0.0;  // lower is better; see pairing.cpp for the terms
+  // The best numbering shifted by +-1 or +-2 orders as a whole (the usual
+  // confusion on a record with few modes or one sensor): its orders and
+  // score (empty / +inf when no shift is admissible).
+  std::vector<int> rival_order;
+  double rival_score = std::numeric_limits<double>::infinity();
 };
 
 // Relative model tolerance used when scoring orders: the pinned-beam
@@ -62,6 +78,9 @@ inline constexpr double kOrderSearchModelTolerance = 0.01;
 // of consecutive measured modes.
 inline constexpr int kOrderSearchMaxOrder = 24;
 inline constexpr int kOrderSearchMaxStep = 3;
+// Largest upward shift of the whole numbering tried after the tree search
+// (the lowest modes of a long tie may all be missing; pairing.cpp).
+inline constexpr int kOrderSearchMaxShift = 8;
 // Only the lowest this many modes enter the search (4^8 hypotheses at
 // most); the others are paired against the model in step 2.
 inline constexpr int kOrderSearchMaxModes = 8;
@@ -71,8 +90,10 @@ inline constexpr int kOrderSearchMaxModes = 8;
 // Outputs N [N] and EI [N m^2] and the chi-square of the frequency rows
 // (frequency std floored at kOrderSearchModelTolerance f). Fails when no
 // order is positive or the normal equations are singular.
+// `order_offset` is added to every order (n + offset in the formula; end
+// restraint, OrderSearchInput::max_order_offset).
 Status PinnedBeamRegression(const OrderSearchInput& in, const std::vector<int>& order, double* axial_force_n,
-                            double* bending_stiffness_nm2, double* chi2);
+                            double* bending_stiffness_nm2, double* chi2, double order_offset = 0.0);
 
 // Step 1 above. Fails (kInvalidArgument) when the input is malformed or no
 // hypothesis gives a positive EI and a force above the pinned Euler load

@@ -122,7 +122,11 @@ Status RunSsiCov(const Eigen::MatrixXd& y, double fs, const SsiOptions& o, SsiRe
     const int i_order = (o.max_order + l - 1) / l + 1;
     const double f_low = o.lowest_hz > 0 ? o.lowest_hz : (lo > 0 ? lo : 0.0);
     const int i_lag = f_low > 0 ? static_cast<int>(std::ceil(kLagPeriods * fs / f_low)) : 0;
-    i = std::max(i_order, std::min(i_lag, kMaxHankelRows / l));
+    // The lag count also follows the record length: 2 i lags need
+    // kMinSamplesPerLag samples each (a short decay at a high rate would
+    // otherwise be refused for lags it cannot estimate; issue 12, class 7).
+    const int i_len = static_cast<int>(std::min<Eigen::Index>(n / (2 * kMinSamplesPerLag), kMaxHankelRows));
+    i = std::max(i_order, std::min({i_lag, kMaxHankelRows / l, i_len}));
   }
   if (l * (i - 1) < o.max_order)
     return Status::InvalidArgument("SSI-COV: " + std::to_string(i) + " block rows x " + std::to_string(l) +

@@ -62,7 +62,9 @@ inline constexpr double kMinClusterShare = 0.25;
 inline constexpr double kMinDampingRatio = 2e-4;
 inline constexpr double kMaxDampingRatio = 0.2;
 // Block rows: the correlation lags should span kLagPeriods periods of the
-// lowest frequency of interest; l i is capped at kMaxHankelRows.
+// lowest frequency of interest; l i is capped at kMaxHankelRows, and the
+// 2 i lags at the record length / kMinSamplesPerLag (never below what the
+// model order needs).
 inline constexpr double kLagPeriods = 1.0;
 inline constexpr int kMaxHankelRows = 150;
 inline constexpr int kMinSegmentsForStd = 3;

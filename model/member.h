@@ -86,6 +86,10 @@ struct Member {
   Section section;
   double elastic_modulus_pa = 0.0;  // nominal E
   double density_kg_m3 = 0.0;
+  // Yield (or proof) strength [Pa], optional: the plausibility bound of the
+  // estimated stress |N| / A (estimation/refusal.h; a default by material
+  // class applies when absent).
+  std::optional<double> yield_strength_pa;
   RotationEnd left;
   RotationEnd right;
   AxialEnds axial;

@@ -69,6 +69,8 @@ std::string FixedEndText(const model::RotationEnd& end, double r) {
 
 void PrintTable(std::ostream& out, const model::Member& member, const std::string& member_label,
                 const estimation::Record& record, const estimation::Estimate& e) {
+  // The verdict first: the one line the technician on site needs.
+  out << "verdict: " << e.verdict.summary << "\n\n";
   out << "member " << member_label << ", " << model::ToString(e.direction) << " plane, channels";
   for (const auto& c : e.channels) out << " " << c;
   out << "\nrecord " << Fixed(record.duration_s(), 1) << " s at " << Sig(record.sample_rate_hz) << " Hz";
@@ -118,7 +120,10 @@ void PrintTable(std::ostream& out, const model::Member& member, const std::strin
   out << "  " << e.identifiability << "\n";
   if (!e.cautions.empty()) {
     out << "\ncautions:\n";
-    for (const auto& c : e.cautions) out << "  - " << c.code << ": " << c.message << "\n";
+    for (const auto& c : e.cautions) {
+      out << "  - " << c.code << " (" << estimation::ToString(estimation::SeverityOf(c.code))
+          << "): " << c.message << "\n";
+    }
   }
   out << "\n" << e.notice << "\n";
 }
@@ -139,11 +144,17 @@ int RunIdentify(const IdentifyCliOptions& o, std::ostream& out, std::ostream& er
     return 1;
   }
   estimation::Estimate estimate;
-  if (Status s = estimation::IdentifyRecord(member, record, estimation::IdentifyRecordOptions{}, &estimate);
-      !s.ok()) {
-    err << "taut identify: " << o.record_path << ": " << s.message << "\n";
+  const Status st =
+      estimation::IdentifyRecord(member, record, estimation::IdentifyRecordOptions{}, &estimate);
+  // A refusal (verdict "unusable") still fills the estimate: it is printed
+  // so that the engineer sees why, and the exit code is 1 with the reason.
+  const bool refused = !st.ok() && estimate.verdict.code == "unusable";
+  if (!st.ok() && !refused) {
+    err << "taut identify: " << o.record_path << ": " << st.message << "\n";
     return 1;
   }
+  const int exit_code = refused ? 1 : 0;
+  if (refused) err << "taut identify: " << o.record_path << ": " << st.message << "\n";
   if (o.json) {
     nlohmann::json j = EstimateToJson(estimate);
     // Record context beside the contract keys (docs/FORMATS.md: "at least").
@@ -154,10 +165,10 @@ int RunIdentify(const IdentifyCliOptions& o, std::ostream& out, std::ostream& er
                    {"duration_s", record.duration_s()},
                    {"sample_rate_hz", record.sample_rate_hz}};
     out << j.dump(2) << "\n";
-    return 0;
+    return exit_code;
   }
   PrintTable(out, member, member.id.empty() ? o.member_path : member.id, record, estimate);
-  return 0;
+  return exit_code;
 }
 
 }  // namespace

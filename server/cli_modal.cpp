@@ -23,6 +23,7 @@
 #include "estimation/record.h"
 #include "model/modal.h"
 #include "server/cli.h"
+#include "server/estimate_json.h"
 #include "server/member_json.h"
 
 namespace taut::server {
@@ -175,8 +176,7 @@ nlohmann::json ToJson(const estimation::ModalIdentification& id, const estimatio
                                 {"frequency_hz", p.frequency_hz}});
     j["impact"] = ji;
   }
-  j["cautions"] = nlohmann::json::array();
-  for (const auto& c : id.cautions) j["cautions"].push_back({{"code", c.code}, {"message", c.message}});
+  j["cautions"] = CautionsToJson(id.cautions);
   j["notice"] = estimation::StandingNotice();
   return j;
 }

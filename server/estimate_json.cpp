@@ -27,6 +27,20 @@ nlohmann::json Shape(const estimation::Estimate& e, const estimation::Identified
 
 }  // namespace
 
+nlohmann::json CautionsToJson(const estimation::Cautions& cautions) {
+  nlohmann::json out = nlohmann::json::array();
+  for (const auto& c : cautions) {
+    out.push_back({{"code", c.code},
+                   {"severity", estimation::ToString(estimation::SeverityOf(c.code))},
+                   {"message", c.message}});
+  }
+  return out;
+}
+
+nlohmann::json VerdictToJson(const estimation::Verdict& v) {
+  return {{"code", v.code}, {"summary", v.summary}};
+}
+
 nlohmann::json EstimateToJson(const estimation::Estimate& e) {
   nlohmann::json j;
   j["axial_force_n"] = Quantity(e.axial_force_n);
@@ -97,8 +111,8 @@ nlohmann::json EstimateToJson(const estimation::Estimate& e) {
   j["plane"] = model::ToString(e.direction);
   j["identifiability"] = e.identifiability;
   j["critical_compression_n"] = Number(e.critical_compression_n);
-  j["cautions"] = nlohmann::json::array();
-  for (const auto& c : e.cautions) j["cautions"].push_back({{"code", c.code}, {"message", c.message}});
+  j["cautions"] = CautionsToJson(e.cautions);
+  j["verdict"] = VerdictToJson(e.verdict);
   j["notice"] = e.notice;
   return j;
 }

@@ -1,7 +1,9 @@
 // The identification result as JSON (docs/FORMATS.md section 3, a contract).
 //
-// Keys of the contract: axial_force_n, bending_stiffness_nm2,
-// end_fixity.{left,right}, modes[], fit, cautions, notice. An identified
+// Keys of the contract: verdict ({"code", "summary"}: the worst caution
+// severity and one line for the technician, estimation/cautions.h),
+// axial_force_n, bending_stiffness_nm2, end_fixity.{left,right}, modes[],
+// fit, cautions (each {"code", "severity", "message"}), notice. An identified
 // quantity is {"value", "std", "ci95": [low, high]}; a quantity fixed by the
 // member description is {"value", "fixed": true} with no interval. SI units;
 // axial force N > 0 in tension.
@@ -31,5 +33,11 @@
 namespace taut::server {
 
 nlohmann::json EstimateToJson(const estimation::Estimate& estimate);
+
+// [{"code", "severity", "message"}] (severity: estimation/cautions.h SeverityOf).
+nlohmann::json CautionsToJson(const estimation::Cautions& cautions);
+
+// {"code": "usable" | "reduced-confidence" | "unusable", "summary": one line}.
+nlohmann::json VerdictToJson(const estimation::Verdict& verdict);
 
 }  // namespace taut::server

@@ -192,10 +192,13 @@ void ReadMember(const json& j, Member* m, const MemberReadOptions& options) {
   {
     const json& mat = Required(j, root, "material");
     RequireObject(mat, "$.material");
-    OnlyKeys(mat, "$.material", {"elastic_modulus_pa", "density_kg_m3"});
+    OnlyKeys(mat, "$.material", {"elastic_modulus_pa", "density_kg_m3", "yield_strength_pa"});
     m->elastic_modulus_pa =
         Positive(Required(mat, "$.material", "elastic_modulus_pa"), "$.material.elastic_modulus_pa");
     m->density_kg_m3 = Positive(Required(mat, "$.material", "density_kg_m3"), "$.material.density_kg_m3");
+    if (auto it = mat.find("yield_strength_pa"); it != mat.end()) {
+      m->yield_strength_pa = Positive(*it, "$.material.yield_strength_pa");
+    }
   }
   if (auto it = j.find("ends"); it != j.end()) {
     RequireObject(*it, "$.ends");
@@ -313,6 +316,7 @@ json MemberToJson(const Member& m) {
       break;
   }
   j["material"] = {{"elastic_modulus_pa", m.elastic_modulus_pa}, {"density_kg_m3", m.density_kg_m3}};
+  if (m.yield_strength_pa) j["material"]["yield_strength_pa"] = *m.yield_strength_pa;
   auto rotation = [](const RotationEnd& e) -> json {
     switch (e.kind) {
       case RotationEnd::Kind::kPinned:

@@ -361,9 +361,11 @@ TEST(Identify, VanishingBendingStiffnessTendsToMersenne) {
   // relative stds lands at N_M (1 - mean(n^2) eps), mean(n^2) = 14/3; a
   // free EI can only reduce this. The relative difference must stay below
   // (14/3) eps * 1.05 + 1e-5 (1e-5: the mesh check's 0.1 std of 1e-4 f,
-  // doubled for f^2) and fall towards zero with eps.
+  // doubled for f^2), which falls towards zero with eps. (Where the string
+  // data contradict the nominal EI by more than three prior stds the prior
+  // is relaxed, issue 12 class 2, and the estimate moves closer to N_M, so
+  // the difference need not fall monotonically between the eps values.)
   const double L = 5.0, n_true = 20e3, area = 7.0e-4;
-  double previous = 1.0;
   for (double eps : {1e-2, 1e-4, 1e-6}) {
     model::Member m = Bar(L, 0.03, Direction::kLateral, {0.2, 0.45, 0.7}, RotationEnd::Kind::kPinned,
                           RotationEnd::Kind::kPinned);
@@ -393,8 +395,6 @@ TEST(Identify, VanishingBendingStiffnessTendsToMersenne) {
     std::printf("[ mersenne ] eps %.0e: estimate / Mersenne - 1 = %.2e\n", eps,
                 e.axial_force_n.value / n_mersenne - 1);
     EXPECT_LT(diff, 14.0 / 3.0 * eps * 1.05 + 1e-5);
-    EXPECT_LE(diff, previous + 1e-6);
-    previous = diff;
   }
 }
 

@@ -79,6 +79,8 @@ TEST_F(CliIdentify, JsonResultRecoversForceFromSyntheticRecord) {
   EXPECT_EQ(j["fit"]["model"], "modal");
   EXPECT_EQ(j["notice"], estimation::StandingNotice());
   EXPECT_EQ(j["record"]["temperature_c"], 12.5);
+  EXPECT_NE(j["verdict"]["code"], "unusable");
+  for (const auto& c : j["cautions"]) EXPECT_TRUE(c.contains("severity")) << c.dump();
   EXPECT_TRUE(err.empty()) << err;
 }
 
@@ -89,6 +91,8 @@ TEST_F(CliIdentify, TableNamesForceIntervalModesAndNotice) {
   ASSERT_EQ(
       Run({"identify", "--member", member_path_, "--record", record, "--temperature", "3.5"}, &out, &err), 0)
       << err;
+  // The verdict line comes first (SHARED-DECISIONS item 1).
+  EXPECT_EQ(out.rfind("verdict: Usable", 0), 0u) << out;
   EXPECT_NE(out.find("axial force"), std::string::npos) << out;
   EXPECT_NE(out.find("kN"), std::string::npos) << out;
   EXPECT_NE(out.find("95 %"), std::string::npos) << out;
@@ -108,6 +112,31 @@ TEST_F(CliIdentify, ChannelNotInMemberIsOneClearError) {
   EXPECT_NE(err.find("x9"), std::string::npos) << err;
   EXPECT_EQ(std::count(err.begin(), err.end(), '\n'), 1) << err;
   EXPECT_TRUE(out.empty());
+}
+
+// A refusal (issue 12): the member declares material.yield_strength_pa =
+// 20 MPa while the record's 35 kN in a 28 mm bar is a stress of
+// 35000 / (pi 0.014^2) = 56.8 MPa: the estimate is refused as implausible,
+// the JSON still printed with verdict "unusable" (so the engineer sees
+// why), the reason on stderr in one line, exit code 1.
+TEST_F(CliIdentify, ImplausibleStressIsRefusedWithExitOne) {
+  nlohmann::json m = MemberToJson(member_);
+  m["material"]["yield_strength_pa"] = 20e6;
+  const std::string member = (dir_ / "weak-material.json").string();
+  std::ofstream(member) << m.dump();
+  const std::string record = (dir_ / "tie.csv").string();
+  ASSERT_TRUE(testing::WriteSyntheticRecord(record, member_, model::Direction::kVertical, truth_, {}));
+  std::string out, err;
+  EXPECT_EQ(Run({"identify", "--member", member, "--record", record, "--json"}, &out, &err), 1);
+  const nlohmann::json j = nlohmann::json::parse(out);
+  EXPECT_EQ(j["verdict"]["code"], "unusable");
+  EXPECT_EQ(j["verdict"]["summary"].get<std::string>().rfind("Repeat the record: ", 0), 0u);
+  bool refusal = false;
+  for (const auto& c : j["cautions"])
+    refusal |= c["code"] == "implausible-stress" && c["severity"] == "unusable";
+  EXPECT_TRUE(refusal) << j["cautions"].dump();
+  EXPECT_NE(err.find("Repeat the record"), std::string::npos) << err;
+  EXPECT_EQ(std::count(err.begin(), err.end(), '\n'), 1) << err;
 }
 
 TEST_F(CliIdentify, SensorOutsideSpanIsOneClearError) {

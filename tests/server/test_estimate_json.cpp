@@ -80,7 +80,25 @@ TEST(EstimateJson, FollowsFormatsSection3) {
   // Cautions and the standing notice.
   ASSERT_EQ(j["cautions"].size(), 1u);
   EXPECT_EQ(j["cautions"][0]["code"], "unpaired-mode");
+  // Every caution carries its severity, every result a verdict
+  // (SHARED-DECISIONS item 1); an unpaired mode is information only.
+  EXPECT_EQ(j["cautions"][0]["severity"], "info");
+  EXPECT_EQ(j["verdict"]["code"], "usable");
+  EXPECT_EQ(j["verdict"]["summary"], "Usable.");
   EXPECT_EQ(j["notice"], estimation::StandingNotice());
+}
+
+// A refused estimate: verdict "unusable", summary "Repeat the record: <why>.",
+// the refusal's caution marked "unusable".
+TEST(EstimateJson, RefusalCarriesTheUnusableVerdict) {
+  estimation::Estimate e = Example();
+  e.cautions.push_back({"record-not-member", "7 of 9 strong modes pair with no mode of this member."});
+  e.verdict = estimation::MakeVerdict(e.cautions);
+  const nlohmann::json j = EstimateToJson(e);
+  EXPECT_EQ(j["verdict"]["code"], "unusable");
+  EXPECT_EQ(j["verdict"]["summary"],
+            "Repeat the record: 7 of 9 strong modes pair with no mode of this member.");
+  EXPECT_EQ(j["cautions"][1]["severity"], "unusable");
 }
 
 // A time-domain estimate keeps every key of the contract and says which
