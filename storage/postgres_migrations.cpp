@@ -234,7 +234,8 @@ StorageStatus PgSchemaVersion(PgConnection& db, int* version) {
   if (StorageStatus s = db.Query("SELECT to_regclass('schema_migration') IS NOT NULL", {}, &rows); !s.ok())
     return s;
   if (rows.empty() || rows[0][0] != "t") return {};
-  if (StorageStatus s = db.Query("SELECT coalesce(max(version), 0) FROM schema_migration", {}, &rows); !s.ok())
+  if (StorageStatus s = db.Query("SELECT coalesce(max(version), 0) FROM schema_migration", {}, &rows);
+      !s.ok())
     return s;
   *version = std::stoi(rows.at(0).at(0));
   return {};

@@ -55,8 +55,8 @@ class PostgresServer {
       as_user = "runuser -u postgres -- ";
     }
     const std::string data = dir_ + "/data";
-    if (!Run(as_user + bin + "/initdb -D " + data +
-             " -A trust -U taut -E UTF8 --locale=C --no-sync > " + dir_ + "/initdb.log 2>&1")) {
+    if (!Run(as_user + bin + "/initdb -D " + data + " -A trust -U taut -E UTF8 --locale=C --no-sync > " +
+             dir_ + "/initdb.log 2>&1")) {
       *error = "initdb failed: " + Slurp(dir_ + "/initdb.log");
       return false;
     }
@@ -64,8 +64,8 @@ class PostgresServer {
     // process could take it in between, so a failed start tries again.
     for (int attempt = 0; attempt < 3; ++attempt) {
       port_ = FreeLoopbackPort();
-      const std::string options = "-c listen_addresses=127.0.0.1 -p " + std::to_string(port_) + " -k " + dir_ +
-                                  " -c fsync=off -c synchronous_commit=off -c max_connections=200";
+      const std::string options = "-c listen_addresses=127.0.0.1 -p " + std::to_string(port_) + " -k " +
+                                  dir_ + " -c fsync=off -c synchronous_commit=off -c max_connections=200";
       if (Run(as_user + bin + "/pg_ctl -D " + data + " -l " + dir_ + "/server.log -w -t 60 -o \"" + options +
               "\" start > /dev/null 2>&1")) {
         started_ = true;

@@ -63,8 +63,8 @@ Shape SqliteShape() {
   Database db;
   EXPECT_TRUE(OpenAndMigrate(db, ":memory:").ok());
   Shape shape;
-  internal::Statement tables(db.handle(),
-                             "SELECT name FROM sqlite_master WHERE type = 'table' AND name NOT LIKE 'sqlite_%'");
+  internal::Statement tables(
+      db.handle(), "SELECT name FROM sqlite_master WHERE type = 'table' AND name NOT LIKE 'sqlite_%'");
   while (tables.Step() == SQLITE_ROW) {
     const std::string t = tables.Text(0);
     internal::Statement cols(db.handle(), "SELECT name, \"notnull\", pk FROM pragma_table_info(?1)");
@@ -90,7 +90,8 @@ Shape PostgresShape(PgConnection& db) {
 std::set<std::string> SqliteIndexes() {
   Database db;
   EXPECT_TRUE(OpenAndMigrate(db, ":memory:").ok());
-  internal::Statement s(db.handle(), "SELECT name FROM sqlite_master WHERE type = 'index' AND sql IS NOT NULL");
+  internal::Statement s(db.handle(),
+                        "SELECT name FROM sqlite_master WHERE type = 'index' AND sql IS NOT NULL");
   std::set<std::string> out;
   while (s.Step() == SQLITE_ROW) out.insert(s.Text(0));
   return out;
@@ -163,16 +164,18 @@ TEST_F(PostgresTest, NewerSchemaIsRefusedNamingBothVersions) {
 TEST_F(PostgresTest, TheSchemaKeepsOrganisationsApart) {
   PgConnection db;
   ASSERT_TRUE(PgOpenAndMigrate(db, Uri()).ok());
-  ASSERT_TRUE(db.Exec("INSERT INTO organisation (id, name, created_at_unix_ms) VALUES (1, 'a', 0), (2, 'b', 0);"
-                      "INSERT INTO structure (id, organisation_id, name, created_at_unix_ms) VALUES (1, 1, 's', 0);"
-                      "INSERT INTO member (id, organisation_id, structure_id, external_id, current_version, "
-                      "created_at_unix_ms) VALUES (1, 1, 1, 'm', 1, 0);"
-                      "INSERT INTO member_version VALUES (1, 1, '{}', 0)")
-                  .ok());
+  ASSERT_TRUE(
+      db.Exec("INSERT INTO organisation (id, name, created_at_unix_ms) VALUES (1, 'a', 0), (2, 'b', 0);"
+              "INSERT INTO structure (id, organisation_id, name, created_at_unix_ms) VALUES (1, 1, 's', 0);"
+              "INSERT INTO member (id, organisation_id, structure_id, external_id, current_version, "
+              "created_at_unix_ms) VALUES (1, 1, 1, 'm', 1, 0);"
+              "INSERT INTO member_version VALUES (1, 1, '{}', 0)")
+          .ok());
   // A record of organisation 2 pointing at organisation 1's member.
   const std::string sha(64, 'a');
   StorageStatus s = db.Exec(
-      "INSERT INTO record (organisation_id, member_id, member_version, recorded_at_unix_ms, units, excitation, "
+      "INSERT INTO record (organisation_id, member_id, member_version, recorded_at_unix_ms, units, "
+      "excitation, "
       "sample_rate_hz, channels, channel_count, sample_count, sample_format, samples, content_sha256, "
       "samples_sha256, created_at_unix_ms) VALUES (2, 1, 1, 0, 'g', 'ambient', 512, 'a1', 1, 1, 'f32le', "
       "'\\x00000000', '" +
@@ -182,7 +185,8 @@ TEST_F(PostgresTest, TheSchemaKeepsOrganisationsApart) {
   // The same record under its own organisation is stored, its samples as
   // four bytes of bytea.
   s = db.Exec(
-      "INSERT INTO record (organisation_id, member_id, member_version, recorded_at_unix_ms, units, excitation, "
+      "INSERT INTO record (organisation_id, member_id, member_version, recorded_at_unix_ms, units, "
+      "excitation, "
       "sample_rate_hz, channels, channel_count, sample_count, sample_format, samples, content_sha256, "
       "samples_sha256, created_at_unix_ms) VALUES (1, 1, 1, 0, 'g', 'ambient', 512, 'a1', 1, 1, 'f32le', "
       "'\\x00000000', '" +
