@@ -21,6 +21,7 @@
 #include "server/iso_time.h"
 #include "server/member_json.h"
 #include "server/record_csv.h"
+#include "server/record_upload.h"
 #include "server/ui_assets.h"
 #include "storage/migrations.h"
 #include "storage/repository.h"
@@ -721,11 +722,12 @@ struct ApiServer::Impl {
       record = RecordFromJson(ParseBodyJson(c.req), member);
     } else if (content_type.empty() || content_type.rfind("text/csv", 0) == 0 ||
                content_type.rfind("text/plain", 0) == 0) {
-      estimation::RecordReadOptions ro;
-      ro.member = &member;
-      std::istringstream in(c.req.body);
-      if (Status s = estimation::ParseRecordCsv(in, ro, &record); !s.ok())
-        Fail(400, "bad-request", s.message);
+      const UploadCsvParams params{Query(c.req, "recorded_at"), Query(c.req, "units"),
+                                   Query(c.req, "excitation"), Query(c.req, "profile"),
+                                   QueryNumber(c.req, "temperature_c")};
+      int status = 400;
+      if (Status s = ReadUploadedCsv(c.req.body, member, params, &record, &status); !s.ok())
+        Fail(status, status == 422 ? "unprocessable" : "bad-request", s.message);
     } else {
       Fail(415, "unsupported-media-type",
            "Content-Type \"" + content_type +
@@ -734,7 +736,7 @@ struct ApiServer::Impl {
     // Query parameters override the record's own metadata (docs/FORMATS.md section 2).
     if (auto v = Query(c.req, "recorded_at")) record.recorded_at = *v;
     if (auto v = QueryNumber(c.req, "temperature_c")) record.temperature_c = *v;
-    if (auto v = Query(c.req, "units")) {
+    if (auto v = Query(c.req, "units"); v && content_type.rfind("application/json", 0) == 0) {
       if (*v != "m/s2" && *v != "g") Fail(400, "bad-request", "units = \"" + *v + "\": must be m/s2 or g");
       if (*v != record.units) {
         record.samples *=
@@ -792,6 +794,7 @@ struct ApiServer::Impl {
       for (const auto& k : record.cautions) cautions.push_back({{"code", k.code}, {"message", k.message}});
       body["record_cautions"] = cautions;
     }
+    if (!record.notes.empty()) body["record_notes"] = record.notes;
     SendJson(c.res, result.duplicate ? 200 : 202, body);
   }
   void GetRecord(Call& c) {
