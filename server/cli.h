@@ -28,6 +28,7 @@ void RegisterModalCommand(CLI::App& app, CliContext* ctx);
 void RegisterServeCommand(CLI::App& app, CliContext* ctx);  // serve, token create
 void RegisterDemoCommand(CLI::App& app, CliContext* ctx);
 void RegisterFormatsCommand(CLI::App& app, CliContext* ctx);
+void RegisterUploadCommand(CLI::App& app, CliContext* ctx);
 
 // Sections 1 and 2 of docs/FORMATS.md (generated at build time).
 const char* FormatsSummaryText();
