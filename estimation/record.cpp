@@ -388,27 +388,24 @@ Status ParseMetadata(std::string_view line, std::int64_t ln, std::int64_t now_un
   return Status::Ok();
 }
 
-// The delimiter of a header line when a profile names none: the most
-// frequent of ',' ';' tab; a tie between two present ones is ambiguous.
-Status HeaderDelimiter(std::string_view line, std::int64_t ln, char* delim) {
-  std::size_t best = 0;
-  std::string tied;
-  *delim = ',';
+// True when `line`, split at the profile's delimiter (or the first of
+// ',' ';' tab that fits), holds every column the profile names.
+bool ProfileHeader(std::string_view line, const ImportProfile& profile, char* delim) {
+  std::vector<std::string_view> cells;
   for (char d : kDelimiters) {
-    const auto n = static_cast<std::size_t>(std::count(line.begin(), line.end(), d));
-    if (n == 0) continue;
-    if (n > best) {
-      best = n;
+    if (profile.delimiter && *profile.delimiter != d) continue;
+    Split(line, d, &cells);
+    auto has = [&](const std::string& name) {
+      return std::find(cells.begin(), cells.end(), name) != cells.end();
+    };
+    if (!profile.time_column.empty() && !has(profile.time_column)) continue;
+    if (std::all_of(profile.channels.begin(), profile.channels.end(),
+                    [&](const ImportProfile::Channel& c) { return has(c.column); })) {
       *delim = d;
-      tied.clear();
-    } else if (n == best) {
-      tied = DelimiterName(*delim) + " and " + DelimiterName(d);
+      return true;
     }
   }
-  if (!tied.empty())
-    return Status::InvalidArgument(Where(ln) + ": the header's separator is ambiguous (candidates " + tied +
-                                   ", as often each): set \"delimiter\" in the import profile");
-  return Status::Ok();
+  return false;
 }
 
 // One column of the file as the reader uses it.
@@ -494,16 +491,26 @@ Status ParseRecordCsv(std::istream& in, const RecordReadOptions& options, Record
       continue;
     }
     if (StripBlanks(line).empty()) continue;
-    if (profile != nullptr) {
-      if (profile->delimiter) {
-        delim = *profile->delimiter;
-      } else if (Status s = HeaderDelimiter(line, ln, &delim); !s.ok()) {
-        return s;
+    if (profile != nullptr && (!profile->time_column.empty() || !profile->channels.empty())) {
+      // The header is the first line that holds the columns the profile
+      // names; lines above it are logger text.
+      if (ProfileHeader(line, *profile, &delim)) {
+        header = line;
+        header_line = ln;
+        have_header = true;
+        break;
       }
-      header = line;
-      header_line = ln;
-      have_header = true;
-      break;
+      text_lines.emplace_back(ln, std::string(line));
+      if (text_lines.size() > static_cast<std::size_t>(kMaxFreeTextLines)) {
+        std::string wanted;
+        if (!profile->time_column.empty()) wanted = "time column \"" + Excerpt(profile->time_column) + "\"";
+        for (const auto& c : profile->channels)
+          wanted += (wanted.empty() ? "\"" : ", \"") + Excerpt(c.column) + "\"";
+        return Status::InvalidArgument(Where(ln) + ": more than " + std::to_string(kMaxFreeTextLines) +
+                                       " lines without a header holding the profile's columns (" + wanted +
+                                       ")");
+      }
+      continue;
     }
     {
       const std::size_t p = line.find_first_of(",;\t");
@@ -536,7 +543,7 @@ Status ParseRecordCsv(std::istream& in, const RecordReadOptions& options, Record
                                      ": a data row where the header line was expected (a header " +
                                      "starts with " + kTimeCandidates + ")");
     const auto& [hl, htext] = text_lines.back();
-    if (!meta.sample_rate_hz) {
+    if (!meta.sample_rate_hz && !(profile != nullptr && profile->sample_rate_hz)) {
       const std::size_t p = htext.find_first_of(",;\t");
       return Status::InvalidArgument(Where(hl) + ", column 1: header cell \"" +
                                      Excerpt(StripBlanks(std::string_view(htext).substr(0, p))) +

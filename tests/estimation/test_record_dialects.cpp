@@ -441,7 +441,7 @@ TEST(RecordDialects, ProfileReadsWhatDetectionCannot) {
   EXPECT_LE((r.samples - c.values).cwiseAbs().maxCoeff(), 1e-8 * peak);
   // A profile column missing from the header is named.
   p.channels[2].column = "K4";
-  ExpectError(text, {"line 3", "\"K4\"", "not in the header"}, o);
+  ExpectError(text, {"line 23", "profile's columns", "\"K4\""}, o);
 }
 
 }  // namespace
