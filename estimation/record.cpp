@@ -526,7 +526,11 @@ Status ParseRecordCsv(std::istream& in, const RecordReadOptions& options, Record
     std::vector<std::pair<char, std::size_t>> as_data;  // (delimiter, cells) under which `line` is data
     for (char d : kDelimiters) {
       std::size_t n;
-      if (LooksLikeData(line, d, &n)) as_data.emplace_back(d, n);
+      // A lone number is a data row only in a file without a time column
+      // (one channel); elsewhere it is logger text (a serial number).
+      if (LooksLikeData(line, d, &n) &&
+          (n > 1 || meta.sample_rate_hz || (profile && profile->sample_rate_hz)))
+        as_data.emplace_back(d, n);
     }
     if (as_data.empty()) {
       text_lines.emplace_back(ln, std::string(line));

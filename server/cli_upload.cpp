@@ -271,7 +271,7 @@ int RunUpload(const UploadOptions& o, std::ostream& out, std::ostream& err) {
 void RegisterUploadCommand(CLI::App& app, CliContext* ctx) {
   auto o = std::make_shared<UploadOptions>();
   CLI::App* cmd = app.add_subcommand(
-      "upload", "send record files to a taut service (token from TAUT_TOKEN or --token-file; never printed)");
+      "upload", "Send record files to a taut service (token from TAUT_TOKEN or --token-file; never printed)");
   cmd->add_option("--server", o->server, "the service's base URL, e.g. http://10.0.0.5:8080")->required();
   cmd->add_option("--member", o->member, "the member's numeric id in the service")->required();
   cmd->add_option("--token-file", o->token_file,

@@ -215,7 +215,7 @@ TEST(RecordDialects, TextDialectsReadBitForBit) {
     cases.push_back({"semicolon, decimal point", d});
     d = Canonical();
     d.preamble =
-        "\xEF\xBB\xBFLogger XR-7 firmware 2.4\r\nStation: invented yard\r\n\r\n"
+        "\xEF\xBB\xBFLogger XR-7 firmware 2.4\r\nStation: invented yard\r\n4711\r\n\r\n"
         "# recorded_at=2026-11-20T10:00:00Z\r\n# temperature_c=12.5\r\n";
     d.eol = "\r\n";
     cases.push_back({"BOM, logger text, CRLF", d});
