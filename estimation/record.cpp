@@ -132,8 +132,9 @@ std::string Where(std::int64_t line, std::size_t col, const std::string& name) {
 // goes to std::from_chars.
 // Parses the longest fast-path decimal at [p, end) and returns the pointer
 // past it, or nullptr when the text there is not one (the caller then uses
-// the general path).
-const char* FastDecimalPrefix(const char* p, const char* const end, double* v) {
+// the general path). `mark` is the decimal mark ('.', or ',' in a
+// decimal-comma dialect).
+const char* FastDecimalPrefix(const char* p, const char* const end, double* v, char mark = '.') {
   static constexpr double kPow10[] = {1e0,  1e1,  1e2,  1e3,  1e4,  1e5,  1e6,  1e7,  1e8,  1e9,  1e10, 1e11,
                                       1e12, 1e13, 1e14, 1e15, 1e16, 1e17, 1e18, 1e19, 1e20, 1e21, 1e22};
   constexpr std::uint64_t kMaxExactMantissa = std::uint64_t{1} << 53;
@@ -154,7 +155,7 @@ const char* FastDecimalPrefix(const char* p, const char* const end, double* v) {
   };
   const std::ptrdiff_t int_digits = read_digits();
   std::ptrdiff_t frac_digits = 0;
-  if (p < end && *p == '.') {
+  if (p < end && *p == mark) {
     ++p;
     frac_digits = read_digits();
   }
@@ -187,15 +188,15 @@ bool FastDecimal(std::string_view s, double* v) {
   return FastDecimalPrefix(s.data(), end, v) == end;
 }
 
-// A well-formed data row on the fast path: `cells` fast-path decimals
-// separated by single `delim` characters, nothing else (no blanks, no
-// trailing separator). Anything else returns false and the row goes through
-// the general path, which names what is wrong.
-bool FastRow(std::string_view line, char delim, std::size_t cells, double* values) {
+// A well-formed data row on the fast path: `cells` fast-path decimals with
+// the decimal mark `mark`, separated by single `delim` characters, nothing
+// else (no blanks, no trailing separator). Anything else returns false and
+// the row goes through the general path, which names what is wrong.
+bool FastRow(std::string_view line, char delim, char mark, std::size_t cells, double* values) {
   const char* p = line.data();
   const char* const end = p + line.size();
   for (std::size_t c = 0; c < cells; ++c) {
-    const char* q = FastDecimalPrefix(p, end, &values[c]);
+    const char* q = FastDecimalPrefix(p, end, &values[c], mark);
     if (q == nullptr) return false;
     if (c + 1 < cells) {
       if (q == end || *q != delim) return false;
@@ -690,35 +691,34 @@ Status ParseRecordCsv(std::istream& in, const RecordReadOptions& options, Record
   bool iso_without_zone = false;
   std::vector<std::int64_t> blank_lines;  // pending blank lines (allowed at end of file only)
   std::vector<double> row(ncols);         // one row's cells on the fast path
-  std::string comma_copy;                 // a decimal-comma row with points
   std::vector<std::string_view> rc;       // a row's cells on the general path
   const double time_scale = kind == TimeColumn::kMilliseconds ? 1e-3 : 1.0;
   auto column_name = [&](std::size_t col) { return names[col].empty() ? std::string("?") : names[col]; };
-  auto read_row = [&](std::string_view text, std::int64_t ln) -> Status {
-    if (rows >= max_rows)
-      return Status::InvalidArgument(Where(ln) + ": more than " + std::to_string(max_cells) +
-                                     " data cells (samples x channels)");
-    if (kind != TimeColumn::kIso8601) {
-      bool fast = FastRow(text, delim, ncols, row.data());
-      if (!fast && decimal_comma && text.find(',') != std::string_view::npos) {
-        comma_copy.assign(text);
-        std::replace(comma_copy.begin(), comma_copy.end(), ',', '.');
-        fast = FastRow(comma_copy, delim, ncols, row.data());
-      }
-      if (fast) {
-        const double t = time_index >= 0 ? row[static_cast<std::size_t>(time_index)] * time_scale : 0.0;
-        if (time_index < 0 || times.empty() || t > times.back()) {
-          if (time_index >= 0) times.push_back(t);
-          if (identity_plan) {
-            data.insert(data.end(), row.begin() + 1, row.end());
-          } else {
-            for (const auto& c : plan) data.push_back(row[c.column] * c.scale + c.offset);
-          }
-          ++rows;
-          return Status::Ok();
-        }
-      }
+  // The fast path: a row of fast-path decimals with increasing time (the
+  // canonical file, and the delimiter and decimal-comma dialects); false
+  // sends the row to read_row, which reads it or names what is wrong.
+  const bool fast_path = kind != TimeColumn::kIso8601;
+  const char mark = decimal_comma ? ',' : '.';
+  auto fast_row = [&](std::string_view text) {
+    // A decimal-comma dialect may also write points (accepted): the comma
+    // first, then the point.
+    if (!FastRow(text, delim, mark, ncols, row.data()) &&
+        !(decimal_comma && FastRow(text, delim, '.', ncols, row.data())))
+      return false;
+    if (time_index >= 0) {
+      const double t = row[static_cast<std::size_t>(time_index)] * time_scale;
+      if (!times.empty() && !(t > times.back())) return false;
+      times.push_back(t);
     }
+    if (identity_plan) {
+      data.insert(data.end(), row.begin() + 1, row.end());
+    } else {
+      for (const auto& c : plan) data.push_back(row[c.column] * c.scale + c.offset);
+    }
+    ++rows;
+    return true;
+  };
+  auto read_row = [&](std::string_view text, std::int64_t ln) -> Status {
     Split(text, delim, &rc);
     if (rc.size() < ncols)
       return Status::InvalidArgument(Where(ln) + ": " + std::to_string(rc.size()) + " cells, expected " +
@@ -798,7 +798,11 @@ Status ParseRecordCsv(std::istream& in, const RecordReadOptions& options, Record
   };
   const std::int64_t first_data_line = first_row_line != 0 ? first_row_line : header_line + 1;
   if (first_row_line != 0) {
-    if (Status s = read_row(first_row, first_row_line); !s.ok()) return s;
+    if (rows >= max_rows)
+      return Status::InvalidArgument(Where(first_row_line) + ": more than " + std::to_string(max_cells) +
+                                     " data cells (samples x channels)");
+    if (!(fast_path && fast_row(first_row)))
+      if (Status s = read_row(first_row, first_row_line); !s.ok()) return s;
   }
   while (reader.Next(&line)) {
     const std::int64_t ln = reader.line_number();
@@ -811,6 +815,10 @@ Status ParseRecordCsv(std::istream& in, const RecordReadOptions& options, Record
     if (line.front() == '#')
       return Status::InvalidArgument(Where(ln) +
                                      ": metadata line after the header (metadata must come first)");
+    if (rows >= max_rows)
+      return Status::InvalidArgument(Where(ln) + ": more than " + std::to_string(max_cells) +
+                                     " data cells (samples x channels)");
+    if (fast_path && fast_row(line)) continue;
     if (Status s = read_row(line, ln); !s.ok()) return s;
   }
   if (reader.too_long()) return line_too_long();
