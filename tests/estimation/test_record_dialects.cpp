@@ -398,6 +398,15 @@ TEST(RecordDialects, BrokenAndAmbiguousFilesNameLineColumnAndCandidates) {
   Record r;
   ASSERT_TRUE(Read(ReplaceLine(canon, 1, "# recorded_at=2026-12-01T13:10:00+01:00"), &r).ok());
   EXPECT_EQ(r.recorded_at, "2026-12-01T12:10:00Z");
+  // A rate that changes within the record: every spacing of the second
+  // half is 0.29 ms longer (within twice the 0.5 ms jitter of a spacing),
+  // but the stamps drift off the line through the ends by ~1.5 ms.
+  d = Canonical();
+  d.time = [](Eigen::Index i) {
+    const double t = static_cast<double>(i) / kFs, half = 5120.0 / kFs;
+    return Printf("%.9f", i < 5120 ? t : half + (t - half) * (4.2e-3 * kFs));
+  };
+  ExpectError(Write(d), {"column 1 (time_s)", "off the uniform grid", "rate changes"});
   // A time column and a sample rate both.
   ExpectError(ReplaceLine(canon, 2, "# sample_rate_hz=256"), {"line 2", "keep one"});
   // Logger text without end.
