@@ -219,7 +219,8 @@ json RecordJson(const storage::Record& r) {
           {"channels", r.channels},
           {"sample_count", r.sample_count},
           {"content_sha256", r.content_sha256},
-          {"created_at", FormatIsoUtc(r.created_at_unix_ms)}};
+          {"created_at", FormatIsoUtc(r.created_at_unix_ms)},
+          {"reader_notes", SplitReaderNotes(r.reader_notes)}};
 }
 
 // ------------------------------------------------------- query parameters
@@ -782,6 +783,7 @@ struct ApiServer::Impl {
     nr.content_sha256 = Sha256Hex(c.req.body);
     nr.samples_sha256 = Sha256Hex(storage::EncodeSamples(nr.samples));
     nr.idempotency_key = c.req.get_header_value("Idempotency-Key");
+    nr.reader_notes = JoinReaderNotes(record.notes);
     if (nr.idempotency_key.size() > kMaxIdempotencyKeyLength) {
       Fail(400, "bad-request", "Idempotency-Key longer than " + std::to_string(kMaxIdempotencyKeyLength));
     }

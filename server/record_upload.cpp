@@ -41,4 +41,22 @@ Status ReadUploadedCsv(const std::string& body, const model::Member& member, con
   return estimation::ParseRecordCsv(in, ro, record);
 }
 
+std::string JoinReaderNotes(const std::vector<std::string>& notes) {
+  std::string text;
+  for (const auto& n : notes) {
+    if (!text.empty()) text += '\n';
+    // A note is one sentence; a line break inside would split it in two.
+    for (char c : n) text += c == '\n' || c == '\r' ? ' ' : c;
+  }
+  return text;
+}
+
+std::vector<std::string> SplitReaderNotes(const std::string& text) {
+  std::vector<std::string> notes;
+  std::istringstream in(text);
+  for (std::string line; std::getline(in, line);)
+    if (!line.empty()) notes.push_back(line);
+  return notes;
+}
+
 }  // namespace taut::server

@@ -7,6 +7,7 @@
 
 #include <optional>
 #include <string>
+#include <vector>
 
 #include "estimation/record.h"
 #include "model/member.h"
@@ -27,5 +28,10 @@ struct UploadCsvParams {
 // rule (recorded_at in the future), 400 for the body or a malformed query.
 Status ReadUploadedCsv(const std::string& body, const model::Member& member, const UploadCsvParams& params,
                        estimation::Record* record, int* http_status);
+
+// The reader's notes as stored with the record (storage NewRecord::
+// reader_notes: one note per line) and back.
+std::string JoinReaderNotes(const std::vector<std::string>& notes);
+std::vector<std::string> SplitReaderNotes(const std::string& text);
 
 }  // namespace taut::server

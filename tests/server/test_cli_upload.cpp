@@ -223,8 +223,14 @@ TEST_F(CliUpload, TwentyFilesOneBrokenServerRestartedMidRun) {
 // --wait follows the job to its estimate and prints the verdict line (a
 // result without a verdict key reads "usable", docs/FORMATS.md 3.4).
 TEST_F(CliUpload, WaitPrintsTheVerdictLine) {
+  // Sent as a logger writes it (semicolons, decimal commas): the record
+  // keeps the reader's notes (GET /v1/records/{id} "reader_notes").
+  std::string csv = RecordCsv(7, 1);
+  const std::size_t header = csv.find("time_s");
+  for (std::size_t i = header; i < csv.size(); ++i)
+    csv[i] = csv[i] == ',' ? ';' : csv[i] == '.' ? ',' : csv[i];
   const std::string path = (dir_ / "one.csv").string();
-  std::ofstream(path, std::ios::binary) << RecordCsv(7, 1);
+  std::ofstream(path, std::ios::binary) << csv;
   std::vector<std::string> args = Args();
   args.insert(args.end(), {"--wait", "--wait-timeout", "120", path});
   const std::string out = (dir_ / "wait.out").string();
@@ -239,6 +245,14 @@ TEST_F(CliUpload, WaitPrintsTheVerdictLine) {
   EXPECT_EQ(CountLines(text, "kN (95 % "), 1) << text;
   EXPECT_EQ(CountLines(text, "; verdict "), 1) << text;
   EXPECT_EQ(CountLines(text, "1 of 1 files accepted"), 1) << text;
+  httplib::Client c("127.0.0.1", port_);
+  c.set_default_headers({{"Authorization", "Bearer " + token_}});
+  auto r = c.Get("/v1/records/1");
+  ASSERT_TRUE(r && r->status == 200);
+  const json notes = json::parse(r->body)["reader_notes"];
+  ASSERT_TRUE(notes.is_array());
+  ASSERT_EQ(notes.size(), 1u) << notes.dump();
+  EXPECT_EQ(notes[0], "separator ';', decimal comma accepted");
 }
 
 TEST(CliUploadArgs, WithoutATokenNothingIsSent) {
