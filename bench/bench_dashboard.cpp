@@ -37,6 +37,7 @@
 #include "server/auth.h"
 #include "server/dashboard_data.h"
 #include "server/estimate_json.h"
+#include "server/hashing.h"
 #include "server/http_api.h"
 #include "server/iso_time.h"
 #include "server/member_json.h"

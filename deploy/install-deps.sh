@@ -17,6 +17,8 @@ PACKAGES=(
   libcpp-httplib-dev  # server/: HTTP
   nlohmann-json3-dev  # server/: JSON
   libsqlite3-dev      # storage/
+  libpq-dev           # storage/: the PostgreSQL backend (libpq)
+  postgresql          # tests/storage: a real server started by test_postgres
   libssl-dev          # SHA-256 of uploads, token hashes
   libcli11-dev        # command-line parsing of the taut executable
   libgtest-dev        # tests
@@ -27,6 +29,9 @@ PACKAGES=(
   clang-format        # style check
   chromium            # tests/ui: the dashboard end to end in a headless browser
   chromium-driver     # tests/ui: WebDriver (plain HTTP + JSON) that drives it
+  dpkg-dev            # the Debian package: CPack's dpkg-shlibdeps writes Depends
+  systemd             # tests/deploy: systemd-analyze verify of the unit
+  groff-base          # tests/deploy: the man page read without warnings
 )
 
 missing=()

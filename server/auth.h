@@ -5,7 +5,8 @@
 // secret (kTokenSecretBytes random bytes from OpenSSL's RAND_bytes) is kept
 // only as HMAC-SHA256(key = a per-token random salt, message = secret)
 // (RFC 2104; FIPS 180-4), compared in constant time (CRYPTO_memcmp). The
-// plain token is shown once, when it is issued.
+// plain token is shown once, when it is issued. The primitives are in
+// hashing.h.
 #pragma once
 
 #include <cstdint>
@@ -15,13 +16,6 @@
 #include "storage/repository.h"
 
 namespace taut::server {
-
-// Hex helpers over OpenSSL (lowercase hex output).
-std::string Sha256Hex(std::string_view bytes);
-std::string HmacSha256Hex(std::string_view key, std::string_view message);
-
-// n bytes from OpenSSL's CSPRNG (RAND_bytes) as 2n lowercase hex characters.
-std::string RandomHex(std::size_t n);
 
 // Issues a token for the organisation with `role`; *token receives the
 // plain token. Fails only on storage errors (message from storage).

@@ -14,7 +14,12 @@ model::Direction ChooseDirection(const model::Member& member, const std::string&
 int Main(int argc, const char* const* argv, std::ostream& out, std::ostream& err) {
   CLI::App app{"taut: axial force, bending stiffness and end restraint of slender members from vibration"};
   app.require_subcommand(1);
-  app.set_version_flag("--version", "taut 0.1.0");
+  app.set_version_flag("--version", "taut " TAUT_VERSION_STRING);
+  // One configuration file for every subcommand: TOML/INI "key = value"
+  // lines in a section named after the subcommand ([serve]); CLI11 reads it,
+  // and a key no option knows is an error (a typo is never ignored).
+  app.set_config("--config", "", "configuration file: [serve] section of key = value lines");
+  app.allow_config_extras(CLI::config_extras_mode::error);
   CliContext ctx{&out, &err, 0};
   RegisterModesCommand(app, &ctx);
   RegisterSimulateCommand(app, &ctx);
@@ -35,6 +40,12 @@ int Main(int argc, const char* const* argv, std::ostream& out, std::ostream& err
   } catch (const CLI::CallForVersion&) {
     out << app.version() << "\n";
     return 0;
+  } catch (const CLI::ConfigError& e) {
+    // CLI11 says "INI was not able to parse KEY" for a key no option knows.
+    err << "taut: --config: " << e.what()
+        << " (unknown key or value; keys go in a section named after the subcommand, e.g. [serve] "
+           "db = \"/var/lib/taut/taut.db\")\n";
+    return 2;
   } catch (const CLI::ParseError& e) {
     err << "taut: " << e.what() << " (see taut --help)\n";
     return 2;

@@ -138,16 +138,28 @@ void RegisterServeCommand(CLI::App& app, CliContext* ctx) {
   auto o = std::make_shared<ServeCliOptions>();
   CLI::App* cmd =
       app.add_subcommand("serve", "Run the HTTP API and the identification workers (docs/API.md)");
-  cmd->add_option("--db", o->db_path, "SQLite database file (created and migrated if needed)")->required();
+  // Every setting can also come from the configuration file (`taut serve
+  // --config FILE`: the root option of cli.cpp, reached through fallthrough;
+  // keys in a [serve] section, deploy/taut.conf.example) or from a TAUT_*
+  // environment variable (a systemd EnvironmentFile). The command line wins
+  // over the file, the file over the environment (CLI11 reads the file first
+  // and takes a variable only for an option still unset).
+  cmd->fallthrough();
+  cmd->add_option("--db", o->db_path, "SQLite database file (created and migrated if needed)")
+      ->required()
+      ->envname("TAUT_DB");
   cmd->add_option("--listen", o->listen, "HOST:PORT to listen on; port 0 picks a free port")
+      ->envname("TAUT_LISTEN")
       ->capture_default_str();
   cmd->add_option("--workers", o->workers, "identification worker threads")
       ->check(CLI::Range(1, 64))
+      ->envname("TAUT_WORKERS")
       ->capture_default_str();
   cmd->add_option("--max-body", o->max_body_mib, "largest request body [MiB] (larger uploads get 413)")
       ->check(CLI::Range(1, 4096))
+      ->envname("TAUT_MAX_BODY")
       ->capture_default_str();
-  cmd->add_flag("--quiet", o->quiet, "no access log on stderr");
+  cmd->add_flag("--quiet", o->quiet, "no access log on stderr")->envname("TAUT_QUIET");
   cmd->callback([o, ctx] { ctx->exit_code = RunServe(*o, *ctx->out, *ctx->err); });
 
   auto t = std::make_shared<TokenCliOptions>();

@@ -31,8 +31,8 @@
 #include <sstream>
 #include <thread>
 
-#include "server/auth.h"
 #include "server/cli.h"
+#include "server/hashing.h"
 
 // After Eigen (through cli.h): <resolv.h> (pulled in by httplib) defines _res.
 #include <httplib.h>

@@ -1,62 +1,221 @@
-#include "server/record_upload.h"
-
+// POST /v1/members/{id}/records: a record upload (CSV, docs/FORMATS.md section
+// 2, or JSON, docs/API.md) is checked, stored and queued as a job in one
+// transaction.
+#include <algorithm>
+#include <cmath>
 #include <sstream>
 
-#include "server/import_profile_json.h"
+#include "estimation/record.h"
+#include "server/hashing.h"
+#include "server/http_router.h"
+#include "server/iso_time.h"
+#include "server/member_json.h"
+#include "server/routes.h"
+#include "server/service_limits.h"
+#include "server/upload_csv.h"
+
+// After Eigen: glibc's <resolv.h>, which httplib pulls in, defines _res.
+#include <httplib.h>
 
 namespace taut::server {
 
-Status ReadUploadedCsv(const std::string& body, const model::Member& member, const UploadCsvParams& params,
-                       estimation::Record* record, int* http_status) {
-  *http_status = 400;
-  estimation::RecordReadOptions ro;
-  if (params.recorded_at) {
-    std::string utc;
-    if (Status s = estimation::CheckRecordedAt(*params.recorded_at, "query recorded_at", 0, &utc); !s.ok()) {
-      *http_status = 422;
-      return s;
+namespace {
+
+using nlohmann::json;
+using storage::Id;
+using storage::StorageStatus;
+
+// Builds the record from a JSON body (docs/API.md), checking the same rules
+// as the CSV reader (docs/FORMATS.md section 2) with JSON paths in the messages.
+estimation::Record RecordFromJson(const json& j, const model::Member& member) {
+  static const std::vector<std::string> kKeys = {"recorded_at",    "temperature_c", "units",  "excitation",
+                                                 "sample_rate_hz", "channels",      "samples"};
+  for (const auto& [key, value] : j.items()) {
+    if (std::find(kKeys.begin(), kKeys.end(), key) == kKeys.end()) {
+      Fail(422, "unprocessable",
+           "$." + key +
+               ": unknown key (known: recorded_at, temperature_c, units, "
+               "excitation, sample_rate_hz, channels, samples)");
     }
   }
-  ro.member = &member;
-  ro.recorded_at = params.recorded_at;
-  ro.temperature_c = params.temperature_c;
-  if (params.units) {
-    if (!estimation::KnownUnits(*params.units))
-      return Status::InvalidArgument("units = \"" + *params.units + "\": must be m/s2, g, mg, V or mV");
-    ro.units = params.units;
+  estimation::Record r;
+  if (!j.contains("sample_rate_hz") || !j["sample_rate_hz"].is_number() ||
+      !(j["sample_rate_hz"].get<double>() > 0) || !std::isfinite(j["sample_rate_hz"].get<double>())) {
+    Fail(422, "unprocessable", "$.sample_rate_hz: required, a number > 0");
   }
-  if (params.excitation) {
-    estimation::Excitation e;
-    if (!estimation::ParseExcitation(*params.excitation, &e))
-      return Status::InvalidArgument("excitation = \"" + *params.excitation +
-                                     "\": must be ambient or impact");
-    ro.excitation = e;
+  r.sample_rate_hz = j["sample_rate_hz"].get<double>();
+  if (!j.contains("channels") || !j["channels"].is_array() || j["channels"].empty()) {
+    Fail(422, "unprocessable", "$.channels: required, a non-empty array of channel names");
   }
-  estimation::ImportProfile profile;
-  if (params.profile) {
-    if (Status s = ParseImportProfile(*params.profile, &profile); !s.ok()) return s;
-    ro.profile = &profile;
+  for (std::size_t c = 0; c < j["channels"].size(); ++c) {
+    const json& name = j["channels"][c];
+    const std::string path = "$.channels[" + std::to_string(c) + "]";
+    if (!name.is_string()) Fail(422, "unprocessable", path + ": must be a string");
+    const std::string s = name.get<std::string>();
+    const bool sensor = std::any_of(member.sensors.begin(), member.sensors.end(),
+                                    [&](const model::Sensor& x) { return x.channel == s; });
+    if (!sensor)
+      Fail(422, "unprocessable", path + " = \"" + s + "\": not a sensor channel of member " + member.id);
+    if (std::find(r.channels.begin(), r.channels.end(), s) != r.channels.end()) {
+      Fail(422, "unprocessable", path + " = \"" + s + "\": channel listed twice");
+    }
+    r.channels.push_back(s);
   }
-  std::istringstream in(body);
-  return estimation::ParseRecordCsv(in, ro, record);
+  if (static_cast<int>(r.channels.size()) > estimation::kMaxChannels) {
+    Fail(422, "unprocessable",
+         "$.channels: more than " + std::to_string(estimation::kMaxChannels) + " channels");
+  }
+  if (!j.contains("samples") || !j["samples"].is_array()) {
+    Fail(422, "unprocessable", "$.samples: required, an array of rows (one value per channel)");
+  }
+  const json& rows = j["samples"];
+  const auto n = static_cast<std::int64_t>(rows.size()), nc = static_cast<std::int64_t>(r.channels.size());
+  if (n * nc > estimation::kMaxCells) {
+    Fail(422, "unprocessable", "$.samples: more than " + std::to_string(estimation::kMaxCells) + " cells");
+  }
+  r.samples.resize(n, nc);
+  for (std::int64_t i = 0; i < n; ++i) {
+    const json& row = rows[i];
+    if (!row.is_array() || static_cast<std::int64_t>(row.size()) != nc) {
+      Fail(422, "unprocessable",
+           "$.samples[" + std::to_string(i) + "]: must hold " + std::to_string(nc) +
+               " numbers (one per channel)");
+    }
+    for (std::int64_t c = 0; c < nc; ++c) {
+      const json& v = row[c];
+      if (!v.is_number() || !std::isfinite(v.get<double>())) {
+        Fail(422, "unprocessable",
+             "$.samples[" + std::to_string(i) + "][" + std::to_string(c) + "]: not a finite number");
+      }
+      r.samples(i, c) = v.get<double>();
+    }
+  }
+  if (n < estimation::kMinSamples || n / r.sample_rate_hz < estimation::kMinRecordDuration_s) {
+    Fail(422, "unprocessable",
+         "$.samples: " + std::to_string(n) + " samples at " + std::to_string(r.sample_rate_hz) +
+             " Hz; a record needs at least " + std::to_string(estimation::kMinSamples) + " samples and " +
+             std::to_string(static_cast<int>(estimation::kMinRecordDuration_s)) + " s");
+  }
+  if (j.contains("recorded_at")) {
+    if (!j["recorded_at"].is_string())
+      Fail(422, "unprocessable", "$.recorded_at: must be an ISO 8601 string");
+    r.recorded_at = j["recorded_at"].get<std::string>();
+  }
+  if (j.contains("temperature_c") && !j["temperature_c"].is_null()) {
+    if (!j["temperature_c"].is_number()) Fail(422, "unprocessable", "$.temperature_c: must be a number");
+    r.temperature_c = j["temperature_c"].get<double>();
+  }
+  if (j.contains("units")) {
+    const std::string u = j["units"].is_string() ? j["units"].get<std::string>() : "";
+    if (u != "m/s2" && u != "g") Fail(422, "unprocessable", "$.units: must be \"m/s2\" or \"g\"");
+    r.units = u;
+    if (u == "g") r.samples *= estimation::kStandardGravity_m_s2;
+  }
+  if (j.contains("excitation")) {
+    const std::string e = j["excitation"].is_string() ? j["excitation"].get<std::string>() : "";
+    if (!estimation::ParseExcitation(e, &r.excitation)) {
+      Fail(422, "unprocessable", "$.excitation: must be \"ambient\" or \"impact\"");
+    }
+  }
+  return r;
 }
 
-std::string JoinReaderNotes(const std::vector<std::string>& notes) {
-  std::string text;
-  for (const auto& n : notes) {
-    if (!text.empty()) text += '\n';
-    // A note is one sentence; a line break inside would split it in two.
-    for (char c : n) text += c == '\n' || c == '\r' ? ' ' : c;
+void UploadRecord(Call& c) {
+  storage::Member stored;
+  Check(c.repo.GetMember(c.who.organisation_id, c.ids[0], &stored));
+  model::Member member;
+  if (Status s = ParseMember(stored.description_json, &member, MemberReadOptions{.require_id = true});
+      !s.ok()) {
+    Fail(500, "internal", "stored description of member " + std::to_string(stored.id) + ": " + s.message);
   }
-  return text;
+  const std::string content_type = c.req.get_header_value("Content-Type");
+  estimation::Record record;
+  if (content_type.rfind("application/json", 0) == 0) {
+    record = RecordFromJson(ParseBodyJson(c.req), member);
+  } else if (content_type.empty() || content_type.rfind("text/csv", 0) == 0 ||
+             content_type.rfind("text/plain", 0) == 0) {
+    // Overrides and ?profile= go to the reader (server/upload_csv.h).
+    const UploadCsvParams params{Query(c.req, "recorded_at"), Query(c.req, "units"),
+                                 Query(c.req, "excitation"), Query(c.req, "profile"),
+                                 QueryNumber(c.req, "temperature_c")};
+    int status = 400;
+    if (Status s = ReadUploadedCsv(c.req.body, member, params, &record, &status); !s.ok())
+      Fail(status, status == 422 ? "unprocessable" : "bad-request", s.message);
+  } else {
+    Fail(415, "unsupported-media-type",
+         "Content-Type \"" + content_type +
+             "\": send text/csv (docs/FORMATS.md section 2) or application/json");
+  }
+  // Query parameters override the record's own metadata (docs/FORMATS.md section 2).
+  if (auto v = Query(c.req, "recorded_at")) record.recorded_at = *v;
+  if (auto v = QueryNumber(c.req, "temperature_c")) record.temperature_c = *v;
+  if (auto v = Query(c.req, "units"); v && content_type.rfind("application/json", 0) == 0) {
+    if (*v != "m/s2" && *v != "g") Fail(400, "bad-request", "units = \"" + *v + "\": must be m/s2 or g");
+    if (*v != record.units) {
+      record.samples *=
+          (*v == "g") ? estimation::kStandardGravity_m_s2 : 1.0 / estimation::kStandardGravity_m_s2;
+      record.units = *v;
+    }
+  }
+  if (auto v = Query(c.req, "excitation")) {
+    if (!estimation::ParseExcitation(*v, &record.excitation)) {
+      Fail(400, "bad-request", "excitation = \"" + *v + "\": must be ambient or impact");
+    }
+  }
+  if (record.temperature_c && (*record.temperature_c < estimation::kMinTemperature_c ||
+                               *record.temperature_c > estimation::kMaxTemperature_c)) {
+    Fail(422, "unprocessable",
+         "temperature_c = " + std::to_string(*record.temperature_c) + ": outside " +
+             std::to_string(static_cast<int>(estimation::kMinTemperature_c)) + ".." +
+             std::to_string(static_cast<int>(estimation::kMaxTemperature_c)) + " C");
+  }
+  if (record.recorded_at.empty()) {
+    Fail(422, "unprocessable",
+         "recorded_at is required: a '# recorded_at=...' line in the CSV, the JSON field or the query "
+         "parameter");
+  }
+  storage::NewRecord nr;
+  nr.member_id = stored.id;
+  if (!ParseIsoUtc(record.recorded_at, &nr.recorded_at_unix_ms)) {
+    Fail(422, "unprocessable", "recorded_at = \"" + record.recorded_at + "\": not an ISO 8601 UTC time");
+  }
+  nr.temperature_c = record.temperature_c;
+  // Samples are kept in m/s^2 whatever the upload's units (the reader
+  // converted them); the original bytes keep their hash.
+  nr.units = "m/s2";
+  nr.excitation = estimation::ToString(record.excitation);
+  nr.sample_rate_hz = record.sample_rate_hz;
+  nr.channels = record.channels;
+  const Eigen::Index n = record.samples.rows(), nc = record.samples.cols();
+  nr.samples.resize(static_cast<std::size_t>(n * nc));
+  for (Eigen::Index i = 0; i < n; ++i) {
+    for (Eigen::Index j = 0; j < nc; ++j)
+      nr.samples[static_cast<std::size_t>(i * nc + j)] = record.samples(i, j);
+  }
+  nr.content_sha256 = Sha256Hex(c.req.body);
+  nr.samples_sha256 = Sha256Hex(storage::EncodeSamples(nr.samples));
+  nr.idempotency_key = c.req.get_header_value("Idempotency-Key");
+  nr.reader_notes = JoinReaderNotes(record.notes);
+  if (nr.idempotency_key.size() > kMaxIdempotencyKeyLength) {
+    Fail(400, "bad-request", "Idempotency-Key longer than " + std::to_string(kMaxIdempotencyKeyLength));
+  }
+  storage::RecordInsertResult result;
+  Check(c.repo.InsertRecord(c.who.organisation_id, nr, c.now_unix_ms, &result));
+  if (!result.duplicate && c.options.on_job_queued) c.options.on_job_queued();
+  json body = {{"record_id", result.record_id}, {"job_id", result.job_id}, {"duplicate", result.duplicate}};
+  if (!record.cautions.empty()) {
+    json cautions = json::array();
+    for (const auto& k : record.cautions) cautions.push_back({{"code", k.code}, {"message", k.message}});
+    body["record_cautions"] = cautions;
+  }
+  if (!record.notes.empty()) body["record_notes"] = record.notes;
+  SendJson(c.res, result.duplicate ? 200 : 202, body);
 }
 
-std::vector<std::string> SplitReaderNotes(const std::string& text) {
-  std::vector<std::string> notes;
-  std::istringstream in(text);
-  for (std::string line; std::getline(in, line);)
-    if (!line.empty()) notes.push_back(line);
-  return notes;
+}  // namespace
+
+void RegisterRecordUploadRoutes(Router& r) {
+  r.Add("POST", "/v1/members/{id}/records", storage::Role::kUpload, UploadRecord);
 }
 
 }  // namespace taut::server

@@ -19,6 +19,7 @@
 #include "model/ambient_synthesis.h"
 #include "server/auth.h"
 #include "server/cli.h"
+#include "server/hashing.h"
 #include "server/iso_time.h"
 #include "server/member_json.h"
 #include "server/record_csv.h"

@@ -20,6 +20,7 @@
 #include <thread>
 
 #include "server/auth.h"
+#include "server/hashing.h"
 #include "server/http_api.h"
 #include "server/iso_time.h"
 #include "server/member_json.h"

@@ -10,7 +10,7 @@
 #include <sstream>
 
 #include "server/import_profile_json.h"
-#include "server/record_upload.h"
+#include "server/upload_csv.h"
 #include "tests/server/cli_test_support.h"
 
 namespace taut::server {
