@@ -165,6 +165,50 @@ void BM_ReadCsv(benchmark::State& state) {
 }
 BENCHMARK(BM_ReadCsv)->Unit(benchmark::kMillisecond)->Repetitions(7)->ReportAggregatesOnly(true);
 
+// The same record in a logger dialect (docs/FORMATS.md section 2.1):
+// semicolons, decimal commas, time in milliseconds, a line of logger text
+// above the header, CRLF. Compare its median with BM_ReadCsv's in one run.
+const std::string& DialectCsvPath() {
+  static const std::string path = [] {
+    std::ifstream in(CsvPath());
+    const std::string p = CsvPath() + ".dialect.csv";
+    std::ofstream out(p, std::ios::binary);
+    out << "Invented logger LX-2 export\r\n";
+    std::string line;
+    bool header = false;
+    while (std::getline(in, line)) {
+      if (line.rfind("time_s", 0) == 0) {
+        out << "time_ms;a1;a2;a3\r\n";
+        header = true;
+        continue;
+      }
+      if (header) {
+        const std::size_t comma = line.find(',');
+        char ms[32];
+        std::snprintf(ms, sizeof ms, "%.3f", std::strtod(line.substr(0, comma).c_str(), nullptr) * 1000.0);
+        line = ms + line.substr(comma);
+        for (char& c : line) c = c == ',' ? ';' : c == '.' ? ',' : c;
+      }
+      out << line << "\r\n";
+    }
+    static const char* to_remove = strdup(p.c_str());
+    std::atexit([] { std::remove(to_remove); });
+    return p;
+  }();
+  return path;
+}
+
+void BM_ReadCsvDialect(benchmark::State& state) {
+  const std::string& path = DialectCsvPath();
+  for (auto _ : state) {
+    taut::estimation::Record r;
+    taut::Status s = taut::estimation::ReadRecordCsv(path, {}, &r);
+    if (!s.ok()) state.SkipWithError(s.message.c_str());
+    benchmark::DoNotOptimize(r.samples.data());
+  }
+}
+BENCHMARK(BM_ReadCsvDialect)->Unit(benchmark::kMillisecond)->Repetitions(7)->ReportAggregatesOnly(true);
+
 void BM_IdentifyModes(benchmark::State& state) {
   taut::estimation::Record r;
   if (!taut::estimation::ReadRecordCsv(CsvPath(), {}, &r).ok()) {

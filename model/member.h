@@ -77,6 +77,15 @@ struct Sensor {
   double position_m = 0.0;  // from the left end, strictly inside (0, L)
   double mass_kg = 0.0;     // sensor and mount, a point mass
   Direction direction = Direction::kVertical;
+  // Calibration as the field knows it (every field optional; default member
+  // initializers keep brace-initialised sensors valid). The record reader
+  // applies them: sensitivity to records in V or mV, polarity to every
+  // record. They describe the instrument, not the member: changing them
+  // changes no model quantity.
+  std::string serial = {};                                    // "" = not given
+  std::optional<double> sensitivity_mv_per_g = std::nullopt;  // > 0, mV per g (9.80665 m/s^2)
+  std::string calibrated_on = {};                             // ISO 8601 date "YYYY-MM-DD", "" = not given
+  int polarity = 1;  // +1, or -1: the sensor's axis points against w (docs/FORMATS.md section 1)
 };
 
 struct Member {

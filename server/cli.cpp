@@ -28,6 +28,7 @@ int Main(int argc, const char* const* argv, std::ostream& out, std::ostream& err
   RegisterServeCommand(app, &ctx);
   RegisterDemoCommand(app, &ctx);
   RegisterFormatsCommand(app, &ctx);
+  RegisterUploadCommand(app, &ctx);
   try {
     app.parse(argc, argv);
   } catch (const CLI::CallForHelp&) {

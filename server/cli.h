@@ -10,6 +10,7 @@
 #include <iosfwd>
 #include <string>
 
+#include "estimation/record.h"
 #include "model/member.h"
 
 namespace taut::server {
@@ -27,6 +28,7 @@ void RegisterModalCommand(CLI::App& app, CliContext* ctx);
 void RegisterServeCommand(CLI::App& app, CliContext* ctx);  // serve, token create
 void RegisterDemoCommand(CLI::App& app, CliContext* ctx);
 void RegisterFormatsCommand(CLI::App& app, CliContext* ctx);
+void RegisterUploadCommand(CLI::App& app, CliContext* ctx);
 
 // Sections 1 and 2 of docs/FORMATS.md (generated at build time).
 const char* FormatsSummaryText();
@@ -42,6 +44,13 @@ int WaitForStopSignal();
 // given, else the plane of most of the member's sensors (vertical on a tie,
 // and when there are none).
 model::Direction ChooseDirection(const model::Member& member, const std::string& flag);
+
+// Reads the record at `record_path` for `command` ("taut identify"): with
+// the import profile at `profile_path` unless it is empty, and the reader's
+// notes printed to `err` as "<command>: note: <path>: <note>" lines.
+Status ReadRecordForCli(const std::string& record_path, const std::string& profile_path,
+                        estimation::RecordReadOptions options, estimation::Record* record, std::ostream& err,
+                        const std::string& command);
 
 // Parses argv and runs the chosen subcommand; returns the exit code.
 int Main(int argc, const char* const* argv, std::ostream& out, std::ostream& err);

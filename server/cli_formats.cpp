@@ -10,7 +10,7 @@ namespace taut::server {
 
 void RegisterFormatsCommand(CLI::App& app, CliContext* ctx) {
   CLI::App* cmd = app.add_subcommand(
-      "formats", "print the member description (JSON) and acceleration record (CSV) formats");
+      "formats", "Print the member description (JSON) and acceleration record (CSV) formats");
   cmd->callback([ctx] {
     *ctx->out << "taut file formats (docs/FORMATS.md sections 1 and 2; section 3, the result, is in "
                  "the repository)\n\n"

@@ -23,6 +23,7 @@ struct IdentifyCliOptions {
   std::string member_path;
   std::string record_path;
   std::optional<std::string> units;
+  std::string profile_path;
   std::optional<double> temperature_c;
   bool json = false;
 };
@@ -139,7 +140,8 @@ int RunIdentify(const IdentifyCliOptions& o, std::ostream& out, std::ostream& er
   ro.units = o.units;
   ro.temperature_c = o.temperature_c;
   estimation::Record record;
-  if (Status s = estimation::ReadRecordCsv(o.record_path, ro, &record); !s.ok()) {
+  if (Status s = ReadRecordForCli(o.record_path, o.profile_path, ro, &record, err, "taut identify");
+      !s.ok()) {
     err << "taut identify: " << s.message << "\n";
     return 1;
   }
@@ -183,8 +185,13 @@ void RegisterIdentifyCommand(CLI::App& app, CliContext* ctx) {
   cmd->add_option("--record", o->record_path, "acceleration record (CSV, docs/FORMATS.md section 2)")
       ->required()
       ->check(CLI::ExistingFile);
-  cmd->add_option("--units", o->units, "units of the record samples, overriding the file (m/s2 or g)")
-      ->check(CLI::IsMember({"m/s2", "g"}));
+  cmd->add_option("--units", o->units,
+                  "units of the record samples, overriding the file (m/s2, g, mg, V, mV)")
+      ->check(CLI::IsMember({"m/s2", "g", "mg", "V", "mV"}));
+  cmd->add_option(
+         "--profile", o->profile_path,
+         "import profile (JSON, docs/FORMATS.md section 2.3) for a logger file the reader cannot detect")
+      ->check(CLI::ExistingFile);
   cmd->add_option("--temperature", o->temperature_c, "member temperature [C], overriding the file");
   cmd->add_flag("--json", o->json, "print the JSON result (docs/FORMATS.md section 3) instead of a table");
   cmd->callback([o, ctx] { ctx->exit_code = RunIdentify(*o, *ctx->out, *ctx->err); });

@@ -1,7 +1,7 @@
 // `taut modal`: modes identified from an acceleration record.
 //
 //   taut modal --record R.csv [--member M.json] [--band LO:HI] [--json]
-//              [--units m/s2|g] [--excitation ambient|impact] [--max-modes K]
+//              [--units m/s2|g|mg|V|mV] [--profile P.json] [--excitation ambient|impact] [--max-modes K]
 //
 // Prints the identified modes (frequency, its std, damping, shape at each
 // channel, MAC between the FDD and SSI-COV shapes), the cautions and the
@@ -46,6 +46,7 @@ struct ModalCliOptions {
   std::string member_path;
   std::string band;
   std::string units;
+  std::string profile_path;
   std::string excitation;
   int max_modes = 8;
   bool json = false;
@@ -247,7 +248,7 @@ int RunModal(const ModalCliOptions& o, std::ostream& out, std::ostream& err) {
     ro.excitation = e;
   }
   estimation::Record rec;
-  if (Status s = estimation::ReadRecordCsv(o.record_path, ro, &rec); !s.ok()) {
+  if (Status s = ReadRecordForCli(o.record_path, o.profile_path, ro, &rec, err, "taut modal"); !s.ok()) {
     err << "taut modal: " << s.message << "\n";
     return 1;
   }
@@ -274,7 +275,10 @@ void RegisterModalCommand(CLI::App& app, CliContext* ctx) {
       ->required();
   cmd->add_option("--member", o->member_path, "member description (JSON): channels checked, modes numbered");
   cmd->add_option("--band", o->band, "frequency band LO:HI [Hz] (either side may be empty)");
-  cmd->add_option("--units", o->units, "override the record's units")->check(CLI::IsMember({"m/s2", "g"}));
+  cmd->add_option("--units", o->units, "override the record's units")
+      ->check(CLI::IsMember({"m/s2", "g", "mg", "V", "mV"}));
+  cmd->add_option("--profile", o->profile_path, "import profile (JSON, docs/FORMATS.md section 2.3)")
+      ->check(CLI::ExistingFile);
   cmd->add_option("--excitation", o->excitation, "override the record's excitation")
       ->check(CLI::IsMember({"ambient", "impact"}));
   cmd->add_option("--max-modes", o->max_modes, "at most this many modes (default 8)")

@@ -7,16 +7,6 @@ namespace taut::server {
 
 namespace {
 
-// Days from 1970-01-01 to the civil date y-m-d of the proleptic Gregorian
-// calendar (H. Hinnant, "chrono-Compatible Low-Level Date Algorithms",
-// days_from_civil; the same algorithm as std::chrono::sys_days).
-std::int64_t DaysFromCivil(std::int64_t y, unsigned m, unsigned d) {
-  return std::chrono::sys_days(std::chrono::year_month_day(std::chrono::year(static_cast<int>(y)),
-                                                           std::chrono::month(m), std::chrono::day(d)))
-      .time_since_epoch()
-      .count();
-}
-
 bool Digits(std::string_view s, std::size_t pos, std::size_t n, int* value) {
   if (pos + n > s.size()) return false;
   int v = 0;
@@ -28,19 +18,45 @@ bool Digits(std::string_view s, std::size_t pos, std::size_t n, int* value) {
   return true;
 }
 
+// The zone designator at s[pos..]: "" (none), "Z", "+HH:MM", "+HHMM", "+HH"
+// (or '-'). Offsets above 18 h are refused (RFC 3339 allows less; 18 h is
+// the java.time bound and beyond any real zone, UTC+14 being the largest).
+bool ParseZone(std::string_view z, IsoTime* t) {
+  if (z.empty()) return true;
+  if (z == "Z") {
+    t->has_zone = true;
+    return true;
+  }
+  if (z[0] != '+' && z[0] != '-') return false;
+  int hh = 0, mm = 0;
+  if (!Digits(z, 1, 2, &hh)) return false;
+  if (z.size() == 6 && z[3] == ':') {
+    if (!Digits(z, 4, 2, &mm)) return false;
+  } else if (z.size() == 5) {
+    if (!Digits(z, 3, 2, &mm)) return false;
+  } else if (z.size() != 3) {
+    return false;
+  }
+  if (mm > 59 || hh * 60 + mm > 18 * 60) return false;
+  t->has_zone = true;
+  t->offset_minutes = (z[0] == '-' ? -1 : 1) * (hh * 60 + mm);
+  return true;
+}
+
 }  // namespace
 
-bool ParseIsoUtc(std::string_view s, std::int64_t* unix_ms) {
+bool ParseIsoTime(std::string_view s, IsoTime* out) {
+  IsoTime t;
   int y = 0, mo = 0, d = 0, h = 0, mi = 0, sec = 0;
-  if (!Digits(s, 0, 4, &y) || s.size() < 10 || s[4] != '-' || !Digits(s, 5, 2, &mo) || s[7] != '-' ||
-      !Digits(s, 8, 2, &d)) {
+  if (s.size() < 10 || !Digits(s, 0, 4, &y) || s[4] != '-' || !Digits(s, 5, 2, &mo) || s[7] != '-' ||
+      !Digits(s, 8, 2, &d) || y < 1) {
     return false;
   }
   const std::chrono::year_month_day ymd{std::chrono::year(y), std::chrono::month(static_cast<unsigned>(mo)),
                                         std::chrono::day(static_cast<unsigned>(d))};
   if (!ymd.ok()) return false;
   std::size_t pos = 10;
-  std::int64_t ms = 0;
+  std::int64_t ns = 0;  // fraction of the second
   if (pos < s.size() && (s[pos] == 'T' || s[pos] == ' ')) {
     if (!Digits(s, pos + 1, 2, &h) || pos + 3 >= s.size() || s[pos + 3] != ':' ||
         !Digits(s, pos + 4, 2, &mi) || pos + 6 >= s.size() || s[pos + 6] != ':' ||
@@ -48,13 +64,14 @@ bool ParseIsoUtc(std::string_view s, std::int64_t* unix_ms) {
       return false;
     }
     if (h > 23 || mi > 59 || sec > 59) return false;  // no leap second: UTC ms have none
+    t.has_time = true;
     pos += 9;
     if (pos < s.size() && s[pos] == '.') {
       std::size_t n = 0;
-      int scale = 100;
+      std::int64_t scale = 100'000'000;
       ++pos;
       while (pos < s.size() && s[pos] >= '0' && s[pos] <= '9') {
-        if (n < 3) ms += scale * (s[pos] - '0');
+        ns += scale * (s[pos] - '0');
         scale /= 10;
         ++pos;
         ++n;
@@ -62,10 +79,20 @@ bool ParseIsoUtc(std::string_view s, std::int64_t* unix_ms) {
       if (n == 0 || n > 9) return false;
     }
   }
-  const std::string_view zone = s.substr(pos);
-  if (!(zone.empty() || zone == "Z" || zone == "+00:00")) return false;
-  const std::int64_t days = DaysFromCivil(y, static_cast<unsigned>(mo), static_cast<unsigned>(d));
-  *unix_ms = ((days * 24 + h) * 60 + mi) * 60000LL + sec * 1000LL + ms;
+  if (!ParseZone(s.substr(pos), &t)) return false;
+  if (t.has_zone && !t.has_time) return false;  // "2026-11-20Z" is not ISO 8601
+  const std::int64_t days = std::chrono::sys_days(ymd).time_since_epoch().count();
+  const std::int64_t seconds = ((days * 24 + h) * 60 + mi - t.offset_minutes) * 60 + sec;
+  t.unix_ms = seconds * 1000 + ns / 1'000'000;
+  t.sub_ms_ns = static_cast<std::int32_t>(ns % 1'000'000);
+  *out = t;
+  return true;
+}
+
+bool ParseIsoUtc(std::string_view text, std::int64_t* unix_ms) {
+  IsoTime t;
+  if (!ParseIsoTime(text, &t)) return false;
+  *unix_ms = t.unix_ms;
   return true;
 }
 

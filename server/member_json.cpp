@@ -7,6 +7,8 @@
 #include <set>
 #include <sstream>
 
+#include "server/iso_time.h"
+
 namespace taut::server {
 
 namespace {
@@ -168,6 +170,33 @@ AxialEnds ReadAxial(const json& j, const std::string& path) {
   return a;
 }
 
+// The calibration of a sensor entry (docs/FORMATS.md section 1): serial,
+// sensitivity_mv_per_g (> 0), calibrated_on (an ISO 8601 date that exists),
+// polarity (+1 or -1).
+void ReadCalibration(const json& s, const std::string& path, model::Sensor* sensor) {
+  if (auto it = s.find("serial"); it != s.end()) {
+    sensor->serial = Str(*it, path + ".serial");
+    if (sensor->serial.empty() || sensor->serial.size() > 64)
+      Fail(path + ".serial", "must hold 1 to 64 characters");
+  }
+  if (auto it = s.find("sensitivity_mv_per_g"); it != s.end()) {
+    const double v = Number(*it, path + ".sensitivity_mv_per_g");
+    if (!(v > 0.0)) Fail(path + ".sensitivity_mv_per_g", "= " + Fmt(v) + ": must be > 0");
+    sensor->sensitivity_mv_per_g = v;
+  }
+  if (auto it = s.find("calibrated_on"); it != s.end()) {
+    sensor->calibrated_on = Str(*it, path + ".calibrated_on");
+    IsoTime t;
+    if (sensor->calibrated_on.size() != 10 || !ParseIsoTime(sensor->calibrated_on, &t))
+      Fail(path + ".calibrated_on", "\"" + sensor->calibrated_on + "\" must be a date YYYY-MM-DD");
+  }
+  if (auto it = s.find("polarity"); it != s.end()) {
+    if (!it->is_number_integer() || (it->get<long long>() != 1 && it->get<long long>() != -1))
+      Fail(path + ".polarity", "must be 1 or -1, got " + Show(*it));
+    sensor->polarity = it->get<int>();
+  }
+}
+
 void ReadMember(const json& j, Member* m, const MemberReadOptions& options) {
   const std::string root = "$";
   RequireObject(j, root);
@@ -214,7 +243,9 @@ void ReadMember(const json& j, Member* m, const MemberReadOptions& options) {
       const json& s = (*it)[i];
       const std::string path = "$.sensors[" + std::to_string(i) + "]";
       RequireObject(s, path);
-      OnlyKeys(s, path, {"channel", "position_m", "mass_kg", "direction"});
+      OnlyKeys(s, path,
+               {"channel", "position_m", "mass_kg", "direction", "serial", "sensitivity_mv_per_g",
+                "calibrated_on", "polarity"});
       model::Sensor sensor;
       sensor.channel = Str(Required(s, path, "channel"), path + ".channel");
       if (!IsToken(sensor.channel, 32, "")) {
@@ -242,6 +273,7 @@ void ReadMember(const json& j, Member* m, const MemberReadOptions& options) {
           Fail(path + ".direction", "unknown direction \"" + dir + "\" (use vertical or lateral)");
         }
       }
+      ReadCalibration(s, path, &sensor);
       m->sensors.push_back(sensor);
     }
   }
@@ -338,10 +370,15 @@ json MemberToJson(const Member& m) {
                {"axial", axial}};
   j["sensors"] = json::array();
   for (const auto& s : m.sensors) {
-    j["sensors"].push_back({{"channel", s.channel},
-                            {"position_m", s.position_m},
-                            {"mass_kg", s.mass_kg},
-                            {"direction", model::ToString(s.direction)}});
+    json sensor = {{"channel", s.channel},
+                   {"position_m", s.position_m},
+                   {"mass_kg", s.mass_kg},
+                   {"direction", model::ToString(s.direction)}};
+    if (!s.serial.empty()) sensor["serial"] = s.serial;
+    if (s.sensitivity_mv_per_g) sensor["sensitivity_mv_per_g"] = *s.sensitivity_mv_per_g;
+    if (!s.calibrated_on.empty()) sensor["calibrated_on"] = s.calibrated_on;
+    if (s.polarity != 1) sensor["polarity"] = s.polarity;
+    j["sensors"].push_back(sensor);
   }
   if (m.design_axial_force_n) j["design_axial_force_n"] = *m.design_axial_force_n;
   return j;

@@ -12,6 +12,7 @@
 #include "server/member_json.h"
 #include "server/routes.h"
 #include "server/service_limits.h"
+#include "server/upload_csv.h"
 
 // After Eigen: glibc's <resolv.h>, which httplib pulls in, defines _res.
 #include <httplib.h>
@@ -133,10 +134,13 @@ void UploadRecord(Call& c) {
     record = RecordFromJson(ParseBodyJson(c.req), member);
   } else if (content_type.empty() || content_type.rfind("text/csv", 0) == 0 ||
              content_type.rfind("text/plain", 0) == 0) {
-    estimation::RecordReadOptions ro;
-    ro.member = &member;
-    std::istringstream in(c.req.body);
-    if (Status s = estimation::ParseRecordCsv(in, ro, &record); !s.ok()) Fail(400, "bad-request", s.message);
+    // Overrides and ?profile= go to the reader (server/upload_csv.h).
+    const UploadCsvParams params{Query(c.req, "recorded_at"), Query(c.req, "units"),
+                                 Query(c.req, "excitation"), Query(c.req, "profile"),
+                                 QueryNumber(c.req, "temperature_c")};
+    int status = 400;
+    if (Status s = ReadUploadedCsv(c.req.body, member, params, &record, &status); !s.ok())
+      Fail(status, status == 422 ? "unprocessable" : "bad-request", s.message);
   } else {
     Fail(415, "unsupported-media-type",
          "Content-Type \"" + content_type +
@@ -145,7 +149,7 @@ void UploadRecord(Call& c) {
   // Query parameters override the record's own metadata (docs/FORMATS.md section 2).
   if (auto v = Query(c.req, "recorded_at")) record.recorded_at = *v;
   if (auto v = QueryNumber(c.req, "temperature_c")) record.temperature_c = *v;
-  if (auto v = Query(c.req, "units")) {
+  if (auto v = Query(c.req, "units"); v && content_type.rfind("application/json", 0) == 0) {
     if (*v != "m/s2" && *v != "g") Fail(400, "bad-request", "units = \"" + *v + "\": must be m/s2 or g");
     if (*v != record.units) {
       record.samples *=
@@ -191,6 +195,7 @@ void UploadRecord(Call& c) {
   nr.content_sha256 = Sha256Hex(c.req.body);
   nr.samples_sha256 = Sha256Hex(storage::EncodeSamples(nr.samples));
   nr.idempotency_key = c.req.get_header_value("Idempotency-Key");
+  nr.reader_notes = JoinReaderNotes(record.notes);
   if (nr.idempotency_key.size() > kMaxIdempotencyKeyLength) {
     Fail(400, "bad-request", "Idempotency-Key longer than " + std::to_string(kMaxIdempotencyKeyLength));
   }
@@ -203,6 +208,7 @@ void UploadRecord(Call& c) {
     for (const auto& k : record.cautions) cautions.push_back({{"code", k.code}, {"message", k.message}});
     body["record_cautions"] = cautions;
   }
+  if (!record.notes.empty()) body["record_notes"] = record.notes;
   SendJson(c.res, result.duplicate ? 200 : 202, body);
 }
 

@@ -3,6 +3,7 @@
 #include "server/api_json.h"
 #include "server/http_router.h"
 #include "server/iso_time.h"
+#include "server/upload_csv.h"
 
 namespace taut::server {
 
@@ -77,7 +78,8 @@ json RecordJson(const storage::Record& r) {
           {"channels", r.channels},
           {"sample_count", r.sample_count},
           {"content_sha256", r.content_sha256},
-          {"created_at", FormatIsoUtc(r.created_at_unix_ms)}};
+          {"created_at", FormatIsoUtc(r.created_at_unix_ms)},
+          {"reader_notes", SplitReaderNotes(r.reader_notes)}};
 }
 
 }  // namespace taut::server

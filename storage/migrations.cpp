@@ -258,12 +258,21 @@ ALTER TABLE estimate ADD COLUMN end_fixity_json TEXT;
 UPDATE estimate SET end_fixity_json = json_extract(result_json, '$.end_fixity') WHERE json_valid(result_json);
 )sql";
 
-constexpr std::array<Migration, 5> kMigrations = {{
+// Step 6: what the record reader detected and applied when the record was
+// read (dialect, skipped logger lines, the calibration: sensitivity, serial,
+// calibration date, polarity), one note per line, so that a record shows
+// which calibration turned its volts into m/s^2.
+constexpr const char* kV6 = R"sql(
+ALTER TABLE record ADD COLUMN reader_notes TEXT NOT NULL DEFAULT '';
+)sql";
+
+constexpr std::array<Migration, 6> kMigrations = {{
     {1, "initial schema", kV1},
     {2, "estimate: member version, temperature, standard deviations, history index", kV2},
     {3, "alerts and webhooks", kV3},
     {4, "drift checks that survive a restart, alert once per rule and estimate, drift settings", kV4},
     {5, "estimate: end fixities extracted from the result", kV5},
+    {6, "record: the reader's notes (dialect, calibration applied)", kV6},
 }};
 
 constexpr const char* kMigrationTable = R"sql(

@@ -195,10 +195,16 @@ CREATE TABLE member_drift_settings (
 );
 )sql";
 
+// SQLite step 6: the record reader's notes (dialect, calibration applied).
+constexpr const char* kV6 = R"sql(
+ALTER TABLE record ADD COLUMN reader_notes TEXT NOT NULL DEFAULT '';
+)sql";
+
 // Append-only, like the SQLite list; a step's number is its SQLite twin's.
 const std::vector<PgMigration>& Steps() {
   static const std::vector<PgMigration> steps = {
       {5, "baseline: the schema of SQLite steps 1-5", kBaseline},
+      {6, "record: the reader's notes (dialect, calibration applied)", kV6},
   };
   return steps;
 }

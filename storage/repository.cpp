@@ -613,8 +613,9 @@ StorageStatus Repository::InsertRecord(Id organisation_id, const NewRecord& reco
         db_.handle(),
         "INSERT INTO record (organisation_id, member_id, member_version, recorded_at_unix_ms, "
         "temperature_c, units, excitation, sample_rate_hz, channels, channel_count, sample_count, "
-        "sample_format, samples, content_sha256, samples_sha256, idempotency_key, created_at_unix_ms) "
-        "VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, ?11, 'f32le', ?12, ?13, ?14, ?15, ?16)");
+        "sample_format, samples, content_sha256, samples_sha256, idempotency_key, created_at_unix_ms, "
+        "reader_notes) "
+        "VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, ?11, 'f32le', ?12, ?13, ?14, ?15, ?16, ?17)");
     ins.Bind(1, organisation_id)
         .Bind(2, record.member_id)
         .Bind(3, member_version)
@@ -634,7 +635,7 @@ StorageStatus Repository::InsertRecord(Id organisation_id, const NewRecord& reco
     } else {
       ins.Bind(15, record.idempotency_key);
     }
-    ins.Bind(16, now_unix_ms);
+    ins.Bind(16, now_unix_ms).Bind(17, record.reader_notes);
     if (StorageStatus r = ins.Run(); !r.ok()) return r;
     const Id record_id = sqlite3_last_insert_rowid(db_.handle());
 
@@ -655,7 +656,7 @@ StorageStatus Repository::GetRecord(Id organisation_id, Id record_id, Record* ou
       db_.handle(),
       "SELECT id, organisation_id, member_id, member_version, recorded_at_unix_ms, temperature_c, units, "
       "excitation, sample_rate_hz, channels, channel_count, sample_count, samples, content_sha256, "
-      "samples_sha256, coalesce(idempotency_key, ''), created_at_unix_ms FROM record "
+      "samples_sha256, coalesce(idempotency_key, ''), created_at_unix_ms, reader_notes FROM record "
       "WHERE id = ?1 AND organisation_id = ?2");
   s.Bind(1, record_id).Bind(2, organisation_id);
   Record r;
@@ -679,6 +680,7 @@ StorageStatus Repository::GetRecord(Id organisation_id, Id record_id, Record* ou
     r.samples_sha256 = row.Text(14);
     r.idempotency_key = row.Text(15);
     r.created_at_unix_ms = row.Int64(16);
+    r.reader_notes = row.Text(17);
   });
   if (!st.ok()) return st;
   if (static_cast<std::int64_t>(r.channels.size()) != n_channels) {

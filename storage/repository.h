@@ -110,6 +110,9 @@ struct NewRecord {
   std::string content_sha256;
   std::string samples_sha256;
   std::string idempotency_key;  // "" = none; otherwise unique per organisation
+  // What the record reader detected and applied (estimation::Record::notes),
+  // one note per line; "" = none.
+  std::string reader_notes;
 };
 
 struct Record {
@@ -126,6 +129,7 @@ struct Record {
   std::vector<double> samples;  // decoded, layout as NewRecord::samples
   std::string content_sha256, samples_sha256, idempotency_key;
   std::int64_t created_at_unix_ms = 0;
+  std::string reader_notes;  // as NewRecord::reader_notes
 };
 
 struct RecordInsertResult {

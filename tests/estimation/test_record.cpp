@@ -173,8 +173,8 @@ TEST(RecordReader, OverridesWin) {
   EXPECT_EQ(b.excitation, Excitation::kImpact);
   EXPECT_NEAR(b.samples(5, 1), 9.80665 * a.samples(5, 1), 1e-15);
   o = {};
-  o.units = "mg";
-  ExpectError(ValidCsv(), {"units override", "\"mg\"", "m/s2"}, o);
+  o.units = "mm/s2";
+  ExpectError(ValidCsv(), {"units override", "\"mm/s2\"", "m/s2"}, o);
 }
 
 TEST(RecordReader, MetadataRules) {

@@ -457,7 +457,7 @@ TEST_F(HttpApiTest, ForceHistoryPortfolioAndAlerts) {
   EXPECT_EQ(Client(admin_b_).Get("/v1/alerts/" + a)->status, 404);
 }
 
-TEST(IsoTime, RoundTripsAndRefusesWhatIsNotUtc) {
+TEST(IsoTime, RoundTripsAppliesOffsetsAndRefusesImpossibleTimes) {
   // 2026-11-20 is 20777 days after 1970-01-01 (reference: Python's
   // datetime, (date(2026, 11, 20) - date(1970, 1, 1)).days), plus 10 h.
   std::int64_t ms = 0;
@@ -468,7 +468,9 @@ TEST(IsoTime, RoundTripsAndRefusesWhatIsNotUtc) {
   EXPECT_EQ(FormatIsoUtc(ms), "2026-11-20T10:00:00.250Z");
   ASSERT_TRUE(ParseIsoUtc("1970-01-01", &ms));
   EXPECT_EQ(ms, 0);
-  for (const char* bad : {"2026-02-30T00:00:00Z", "2026-11-20T24:00:00Z", "2026-11-20T10:00:00+01:00",
+  ASSERT_TRUE(ParseIsoUtc("2026-11-20T11:30:00+01:30", &ms));  // an offset is applied
+  EXPECT_EQ(FormatIsoUtc(ms), "2026-11-20T10:00:00Z");
+  for (const char* bad : {"2026-02-30T00:00:00Z", "2026-11-20T24:00:00Z", "2026-11-20T10:00:00+19:00",
                           "20261120", "2026-11-20T10:00Z", ""}) {
     EXPECT_FALSE(ParseIsoUtc(bad, &ms)) << bad;
   }

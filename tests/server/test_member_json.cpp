@@ -135,6 +135,39 @@ TEST(MemberJson, EveryRuleNamesItsPath) {
   ExpectError(json::array(), "$", "must be a JSON object");
 }
 
+// Sensor calibration entries (docs/FORMATS.md section 1): read, written
+// back, and every rule named by its path. 2026-02-29 does not exist (2026
+// is not a leap year: Gregorian rule, divisible by 4 but not by 100 unless
+// by 400).
+TEST(MemberJson, SensorCalibrationEntries) {
+  json j = Valid();
+  j["sensors"][0]["serial"] = "INV-0042";
+  j["sensors"][0]["sensitivity_mv_per_g"] = 101.9;
+  j["sensors"][0]["calibrated_on"] = "2026-06-01";
+  j["sensors"][0]["polarity"] = -1;
+  model::Member a, b;
+  ASSERT_TRUE(MemberFromJson(j, &a).ok());
+  EXPECT_EQ(a.sensors[0].serial, "INV-0042");
+  EXPECT_EQ(*a.sensors[0].sensitivity_mv_per_g, 101.9);
+  EXPECT_EQ(a.sensors[0].calibrated_on, "2026-06-01");
+  EXPECT_EQ(a.sensors[0].polarity, -1);
+  EXPECT_EQ(a.sensors[1].polarity, 1);  // default
+  EXPECT_FALSE(a.sensors[1].sensitivity_mv_per_g.has_value());
+  ASSERT_TRUE(MemberFromJson(MemberToJson(a), &b).ok());
+  EXPECT_EQ(MemberToJson(a), MemberToJson(b));
+  EXPECT_EQ(MemberToJson(a)["sensors"][0]["polarity"], -1);
+  EXPECT_FALSE(MemberToJson(a)["sensors"][1].contains("polarity"));
+  j = Valid(), j["sensors"][0]["polarity"] = 0, ExpectError(j, "$.sensors[0].polarity", "1 or -1");
+  j = Valid(), j["sensors"][0]["polarity"] = 1.5, ExpectError(j, "$.sensors[0].polarity", "1 or -1");
+  j = Valid(), j["sensors"][0]["sensitivity_mv_per_g"] = 0.0,
+  ExpectError(j, "$.sensors[0].sensitivity_mv_per_g", "must be > 0");
+  j = Valid(), j["sensors"][0]["calibrated_on"] = "2026-02-29",
+  ExpectError(j, "$.sensors[0].calibrated_on", "YYYY-MM-DD");
+  j = Valid(), j["sensors"][0]["calibrated_on"] = "2026-06-01T00:00:00Z",
+  ExpectError(j, "$.sensors[0].calibrated_on", "YYYY-MM-DD");
+  j = Valid(), j["sensors"][0]["serial"] = "", ExpectError(j, "$.sensors[0].serial", "1 to 64");
+}
+
 TEST(MemberJson, SyntaxErrorNamesLineAndColumn) {
   model::Member m;
   const Status s = ParseMember("{\n  \"length_m\": 6.0,\n  \"section\": [,\n}", &m);

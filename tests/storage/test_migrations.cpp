@@ -162,7 +162,9 @@ TEST(Migrations, EveryEarlierVersionUpgradesAndKeepsItsRows) {
     std::vector<Repository::FixityRow> fixity;
     ASSERT_TRUE(repo.FixityHistory(1, 1, 0, 10000, &fixity).ok());
     ASSERT_EQ(fixity.size(), 1u);
-    EXPECT_EQ(fixity[0].end_fixity_json, from == 1 ? "" : R"({"left":{"value":0.4}})");
+    // (From version 5 on the seed's raw INSERT leaves the column empty:
+    // the repository fills it at insert, the step-5 backfill ran before.)
+    EXPECT_EQ(fixity[0].end_fixity_json, from == 1 || from >= 5 ? "" : R"({"left":{"value":0.4}})");
     // Step 4: estimates stored before it count as drift-checked (their
     // alerts, if any, were the business of the service that stored them),
     // so an upgrade does not re-run the rules over the whole history.
