@@ -33,6 +33,7 @@ constexpr std::array kCatalogue = {
     CatalogueEntry{"dropout", kR, "a channel lost samples"},
     CatalogueEntry{"channel-left-out", kR, "a faulty channel was left out"},
     CatalogueEntry{"drift", kR, "a channel drifts"},
+    CatalogueEntry{"time-jitter", kI, "the time stamps jitter around a uniform step"},
     // Modal identification (estimation/modal_id.cpp).
     CatalogueEntry{"rate-too-low", kI, "the band top was lowered below Nyquist"},
     CatalogueEntry{"no-mode", kU, "no mode was found in the record"},
