@@ -61,8 +61,7 @@ std::string RunIdentification(storage::Repository& repo, const storage::Job& job
     return "member " + std::to_string(stored.member_id) + ": " + s.message;
   }
   model::Member member;
-  if (Status s = ParseMember(version.description_json, &member, MemberReadOptions{.require_id = true});
-      !s.ok()) {
+  if (Status s = ParseMember(version.description_json, &member, kStoredMember); !s.ok()) {
     return "member " + std::to_string(stored.member_id) + " version " + std::to_string(version.version) +
            ": " + s.message;
   }

@@ -11,6 +11,7 @@
 #include "server/iso_time.h"
 #include "server/member_json.h"
 #include "server/routes.h"
+#include "server/safe_text.h"
 #include "server/service_limits.h"
 
 // After Eigen: glibc's <resolv.h>, which httplib pulls in, defines _res.
@@ -54,9 +55,10 @@ estimation::Record RecordFromJson(const json& j, const model::Member& member) {
     const bool sensor = std::any_of(member.sensors.begin(), member.sensors.end(),
                                     [&](const model::Sensor& x) { return x.channel == s; });
     if (!sensor)
-      Fail(422, "unprocessable", path + " = \"" + s + "\": not a sensor channel of member " + member.id);
+      Fail(422, "unprocessable",
+           path + " = \"" + Excerpt(s) + "\": not a sensor channel of member " + member.id);
     if (std::find(r.channels.begin(), r.channels.end(), s) != r.channels.end()) {
-      Fail(422, "unprocessable", path + " = \"" + s + "\": channel listed twice");
+      Fail(422, "unprocessable", path + " = \"" + Excerpt(s) + "\": channel listed twice");
     }
     r.channels.push_back(s);
   }
@@ -123,29 +125,30 @@ void UploadRecord(Call& c) {
   storage::Member stored;
   Check(c.repo.GetMember(c.who.organisation_id, c.ids[0], &stored));
   model::Member member;
-  if (Status s = ParseMember(stored.description_json, &member, MemberReadOptions{.require_id = true});
-      !s.ok()) {
+  if (Status s = ParseMember(stored.description_json, &member, kStoredMember); !s.ok()) {
     Fail(500, "internal", "stored description of member " + std::to_string(stored.id) + ": " + s.message);
   }
   const std::string content_type = c.req.get_header_value("Content-Type");
   estimation::Record record;
   if (content_type.rfind("application/json", 0) == 0) {
-    record = RecordFromJson(ParseBodyJson(c.req), member);
+    record = RecordFromJson(ParseBodyJson(c.body), member);
   } else if (content_type.empty() || content_type.rfind("text/csv", 0) == 0 ||
              content_type.rfind("text/plain", 0) == 0) {
     estimation::RecordReadOptions ro;
     ro.member = &member;
-    std::istringstream in(c.req.body);
+    std::istringstream in(c.body);
     if (Status s = estimation::ParseRecordCsv(in, ro, &record); !s.ok()) Fail(400, "bad-request", s.message);
   } else {
     Fail(415, "unsupported-media-type",
-         "Content-Type \"" + content_type + "\": send text/csv (FORMATS.md section 2) or application/json");
+         "Content-Type \"" + Excerpt(content_type) +
+             "\": send text/csv (FORMATS.md section 2) or application/json");
   }
   // Query parameters override the record's own metadata (FORMATS.md section 2).
   if (auto v = Query(c.req, "recorded_at")) record.recorded_at = *v;
   if (auto v = QueryNumber(c.req, "temperature_c")) record.temperature_c = *v;
   if (auto v = Query(c.req, "units")) {
-    if (*v != "m/s2" && *v != "g") Fail(400, "bad-request", "units = \"" + *v + "\": must be m/s2 or g");
+    if (*v != "m/s2" && *v != "g")
+      Fail(400, "bad-request", "units = \"" + Excerpt(*v) + "\": must be m/s2 or g");
     if (*v != record.units) {
       record.samples *=
           (*v == "g") ? estimation::kStandardGravity_m_s2 : 1.0 / estimation::kStandardGravity_m_s2;
@@ -154,7 +157,7 @@ void UploadRecord(Call& c) {
   }
   if (auto v = Query(c.req, "excitation")) {
     if (!estimation::ParseExcitation(*v, &record.excitation)) {
-      Fail(400, "bad-request", "excitation = \"" + *v + "\": must be ambient or impact");
+      Fail(400, "bad-request", "excitation = \"" + Excerpt(*v) + "\": must be ambient or impact");
     }
   }
   if (record.temperature_c && (*record.temperature_c < estimation::kMinTemperature_c ||
@@ -172,7 +175,8 @@ void UploadRecord(Call& c) {
   storage::NewRecord nr;
   nr.member_id = stored.id;
   if (!ParseIsoUtc(record.recorded_at, &nr.recorded_at_unix_ms)) {
-    Fail(422, "unprocessable", "recorded_at = \"" + record.recorded_at + "\": not an ISO 8601 UTC time");
+    Fail(422, "unprocessable",
+         "recorded_at = \"" + Excerpt(record.recorded_at) + "\": not an ISO 8601 UTC time");
   }
   nr.temperature_c = record.temperature_c;
   // Samples are kept in m/s^2 whatever the upload's units (the reader
@@ -187,7 +191,7 @@ void UploadRecord(Call& c) {
     for (Eigen::Index j = 0; j < nc; ++j)
       nr.samples[static_cast<std::size_t>(i * nc + j)] = record.samples(i, j);
   }
-  nr.content_sha256 = Sha256Hex(c.req.body);
+  nr.content_sha256 = Sha256Hex(c.body);
   nr.samples_sha256 = Sha256Hex(storage::EncodeSamples(nr.samples));
   nr.idempotency_key = c.req.get_header_value("Idempotency-Key");
   if (nr.idempotency_key.size() > kMaxIdempotencyKeyLength) {

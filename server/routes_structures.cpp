@@ -15,7 +15,7 @@ using storage::Id;
 using storage::StorageStatus;
 
 void CreateStructure(Call& c) {
-  const json j = ParseBodyJson(c.req);
+  const json j = ParseBodyJson(c.body);
   for (const auto& [key, v] : j.items()) {
     if (key != "name" && key != "description") {
       Fail(422, "unprocessable", "$." + key + ": unknown key (known: name, description)");

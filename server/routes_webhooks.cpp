@@ -3,6 +3,7 @@
 #include "server/http_router.h"
 #include "server/iso_time.h"
 #include "server/routes.h"
+#include "server/safe_text.h"
 #include "server/service_limits.h"
 
 // After Eigen: glibc's <resolv.h>, which httplib pulls in, defines _res.
@@ -17,7 +18,7 @@ using storage::Id;
 using storage::StorageStatus;
 
 void CreateWebhook(Call& c) {
-  const json j = ParseBodyJson(c.req);
+  const json j = ParseBodyJson(c.body);
   for (const auto& [key, v] : j.items()) {
     if (key != "url" && key != "secret")
       Fail(422, "unprocessable", "$." + key + ": unknown key (known: url, secret)");
@@ -25,7 +26,7 @@ void CreateWebhook(Call& c) {
   if (!j.contains("url") || !j["url"].is_string()) Fail(422, "unprocessable", "$.url: required string");
   const std::string url = j["url"].get<std::string>();
   if (url.rfind("http://", 0) != 0 && url.rfind("https://", 0) != 0) {
-    Fail(422, "unprocessable", "$.url = \"" + url + "\": must start with http:// or https://");
+    Fail(422, "unprocessable", "$.url = \"" + Excerpt(url) + "\": must start with http:// or https://");
   }
   std::string secret;
   if (j.contains("secret")) {
