@@ -19,6 +19,7 @@ PACKAGES=(
   libsqlite3-dev      # storage/
   libssl-dev          # SHA-256 of uploads, token hashes
   libcli11-dev        # command-line parsing of the taut executable
+  nginx               # deploy/nginx: reverse proxy; tests/server/test_hostile_clients runs it
   libgtest-dev        # tests
   libgmock-dev
   libbenchmark-dev    # bench/

@@ -21,6 +21,9 @@ struct ServeCliOptions {
   std::string listen = "127.0.0.1:8080";
   int workers = kDefaultWorkers;
   std::size_t max_body_mib = kDefaultMaxBody_mib;
+  int header_deadline_s = kDefaultHeaderDeadline_s;
+  int request_deadline_s = kDefaultRequestDeadline_s;
+  int max_connections_per_client = kDefaultMaxConnectionsPerClient;
   bool quiet = false;
 };
 
@@ -46,6 +49,9 @@ int RunServe(const ServeCliOptions& o, std::ostream& out, std::ostream& err) {
     return 2;
   }
   so.max_body_bytes = o.max_body_mib << 20;
+  so.header_deadline_s = o.header_deadline_s;
+  so.request_deadline_s = o.request_deadline_s;
+  so.max_connections_per_client = o.max_connections_per_client;
   so.access_log = o.quiet ? nullptr : &std::cerr;
   Metrics metrics;
   so.metrics = &metrics;
@@ -146,6 +152,18 @@ void RegisterServeCommand(CLI::App& app, CliContext* ctx) {
       ->capture_default_str();
   cmd->add_option("--max-body", o->max_body_mib, "largest request body [MiB] (larger uploads get 413)")
       ->check(CLI::Range(1, 4096))
+      ->capture_default_str();
+  cmd->add_option("--header-deadline", o->header_deadline_s,
+                  "seconds a client has to send a request's line and headers")
+      ->check(CLI::Range(1, 600))
+      ->capture_default_str();
+  cmd->add_option("--request-deadline", o->request_deadline_s,
+                  "seconds a whole request may take (body upload, handling, response)")
+      ->check(CLI::Range(1, 3600))
+      ->capture_default_str();
+  cmd->add_option("--max-connections-per-client", o->max_connections_per_client,
+                  "open connections one address may hold (more get 503); 0: no cap (behind a reverse proxy)")
+      ->check(CLI::Range(0, 100000))
       ->capture_default_str();
   cmd->add_flag("--quiet", o->quiet, "no access log on stderr");
   cmd->callback([o, ctx] { ctx->exit_code = RunServe(*o, *ctx->out, *ctx->err); });

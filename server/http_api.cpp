@@ -47,7 +47,7 @@ ConnectionPool::Lease ConnectionPool::Acquire() {
 
 ConnectionLimits LimitsOf(const ServeOptions& o) {
   ConnectionLimits l;
-  l.header_deadline_s = kHeaderDeadline_s;
+  l.header_deadline_s = o.header_deadline_s;
   l.request_deadline_s = o.request_deadline_s;
   l.read_timeout_s = kReadTimeout_s;
   l.write_timeout_s = kWriteTimeout_s;
@@ -319,6 +319,7 @@ Status ApiServer::Start() {
     return Status::InvalidArgument("cannot listen on " + s.options.host + ":" +
                                    std::to_string(s.options.port));
   }
+  s.http.WidenBacklog(kListenBacklog);
   s.thread = std::thread([&s] { s.http.listen_after_bind(); });
   s.started = true;
   return Status::Ok();

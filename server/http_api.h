@@ -42,6 +42,7 @@ struct ServeOptions {
   int port = 0;                    // 0: an ephemeral port (see ApiServer::port)
   std::size_t max_body_bytes = kDefaultMaxBody_mib << 20;
   // Connection policy (service_limits.h, http_server.h).
+  int header_deadline_s = kDefaultHeaderDeadline_s;
   int request_deadline_s = kDefaultRequestDeadline_s;
   int max_connections_per_client = kDefaultMaxConnectionsPerClient;  // 0: no cap
   int http_threads = kHttpThreads;

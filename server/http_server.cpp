@@ -115,11 +115,13 @@ class DeadlineStream final : public httplib::Stream {
     const auto timeout =
         std::chrono::seconds(events == POLLIN ? limits_.read_timeout_s : limits_.write_timeout_s);
     const auto deadline = std::min(headers_done_ ? request_deadline_ : header_deadline_, request_deadline_);
-    const auto until = std::min(Clock::now() + timeout, deadline);
+    const auto now = Clock::now();
+    const bool deadline_first = deadline <= now + timeout;
+    const auto until = deadline_first ? deadline : now + timeout;
     for (;;) {
       const auto left = std::chrono::duration_cast<std::chrono::milliseconds>(until - Clock::now()).count();
       if (left <= 0) {
-        if (Clock::now() >= deadline) expired_ = true;
+        if (deadline_first) expired_ = true;
         return false;
       }
       pollfd p{sock_, events, 0};
@@ -200,6 +202,8 @@ void GuardedServer::CloseAfterResponse(httplib::Response& res) {
   res.set_header("Connection", "close");
   if (t_connection) t_connection->close_after_response = true;
 }
+
+void GuardedServer::WidenBacklog(int backlog) { ::listen(svr_sock_, backlog); }
 
 void GuardedServer::KeepAlive() {
   if (t_connection) t_connection->close_after_response = false;

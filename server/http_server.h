@@ -46,6 +46,12 @@ class GuardedServer : public httplib::Server {
   // metrics: not owned, never null. log: one key=value line, may be empty.
   GuardedServer(ConnectionLimits limits, Metrics* metrics, std::function<void(const std::string&)> log);
 
+  // After bind: the accept queue holds `backlog` connections. httplib 0.11.4
+  // is built with a backlog of 5 (CPPHTTPLIB_LISTEN_BACKLOG): a burst of
+  // connections then waits for the clients' SYN retries (1 s, 3 s, 7 s).
+  // Linux lets listen() be called again on a listening socket to change it.
+  void WidenBacklog(int backlog);
+
   // For the request being handled on this thread: close the connection
   // after its response (the request's body was not read, so the stream is
   // no longer at a request boundary). Sets "Connection: close".

@@ -12,7 +12,8 @@ namespace taut::server {
 inline constexpr std::size_t kDefaultMaxBody_mib = 64;
 // Connection policy of the HTTP server (http_server.h). A client that holds
 // a connection without sending at a reasonable pace is cut off:
-// - the request line and headers must arrive within kHeaderDeadline_s;
+// - the request line and headers must arrive within the header deadline
+//   (`--header-deadline`, default kDefaultHeaderDeadline_s);
 // - the whole request (body, handling, response) within the request deadline
 //   (`taut serve --request-deadline`, default kDefaultRequestDeadline_s: a
 //   64 MiB upload at 8 Mbit/s takes about 70 s);
@@ -22,7 +23,7 @@ inline constexpr std::size_t kDefaultMaxBody_mib = 64;
 // - one address may hold at most --max-connections-per-client connections
 //   (default kDefaultMaxConnectionsPerClient; 0 = no cap, for a reverse
 //   proxy in front, deploy/nginx/taut.conf); more are answered 503.
-inline constexpr int kHeaderDeadline_s = 10;
+inline constexpr int kDefaultHeaderDeadline_s = 10;
 inline constexpr int kDefaultRequestDeadline_s = 120;
 inline constexpr int kReadTimeout_s = 10;
 inline constexpr int kWriteTimeout_s = 30;
@@ -33,6 +34,8 @@ inline constexpr int kDefaultMaxConnectionsPerClient = 32;
 // connection). Idle threads cost a stack's address space, not memory; 128
 // leaves room for 4 clients at the per-client cap and everyone else.
 inline constexpr int kHttpThreads = 128;
+// Connections the kernel queues before they are accepted.
+inline constexpr int kListenBacklog = 1024;
 // Job workers of `taut serve` unless --workers says otherwise.
 inline constexpr int kDefaultWorkers = 2;
 // Force history without `from`: the last 30 days before `to`.

@@ -14,11 +14,13 @@
 #include <cmath>
 #include <filesystem>
 #include <fstream>
+#include <functional>
 #include <nlohmann/json.hpp>
 #include <set>
 #include <sstream>
 #include <thread>
 
+#include "raw_http.h"
 #include "server/auth.h"
 #include "server/hashing.h"
 #include "server/http_api.h"
@@ -89,12 +91,13 @@ class HttpApiTest : public ::testing::Test {
     std::filesystem::remove_all(dir_);
   }
 
-  void StartServer(std::size_t max_body) {
+  void StartServer(std::size_t max_body, const std::function<void(ServeOptions&)>& configure = {}) {
     server_.reset();
     ServeOptions o;
     o.db_path = db_path_;
     o.max_body_bytes = max_body;
     o.on_job_queued = [this] { ++queued_; };
+    if (configure) configure(o);
     server_ = std::make_unique<ApiServer>(o);
     ASSERT_TRUE(server_->Start().ok());
   }
@@ -472,6 +475,157 @@ TEST(IsoTime, RoundTripsAndRefusesWhatIsNotUtc) {
                           "20261120", "2026-11-20T10:00Z", ""}) {
     EXPECT_FALSE(ParseIsoUtc(bad, &ms)) << bad;
   }
+}
+
+// Issue 13 item 1: a body nested 100,000 levels deep killed the process by
+// stack overflow (the error path printed the value recursively). Now it is
+// refused before a value is built, and values echoed in errors are bounded.
+TEST_F(HttpApiTest, DeeplyNestedJsonIsRefusedAndEchoedValuesAreBounded) {
+  CreateMember();
+  const std::string deep = std::string(100000, '[') + std::string(100000, ']');
+  auto c = Client(admin_a_);
+  const std::string members = "/v1/structures/" + std::to_string(structure_id_) + "/members";
+  json nested = json::parse(member_text_);
+  std::string text = nested.dump();
+  text.insert(text.size() - 1, ", \"extra\": " + deep);
+  auto r = c.Post(members, text, "application/json");
+  ASSERT_TRUE(r) << "the server died";
+  EXPECT_EQ(r->status, 422) << r->body;
+  EXPECT_NE(json::parse(r->body)["error"]["message"].get<std::string>().find("nested deeper than 64"),
+            std::string::npos)
+      << r->body;
+  auto s = c.Post("/v1/structures", deep, "application/json");
+  ASSERT_TRUE(s);
+  EXPECT_EQ(s->status, 400) << s->body;
+  // A 1 MB id and a 1 MB unknown key: the message quotes at most 80 bytes of each.
+  nested["id"] = std::string(1 << 20, 'x');
+  auto big_id = c.Post(members, nested.dump(), "application/json");
+  EXPECT_EQ(big_id->status, 422);
+  EXPECT_LT(big_id->body.size(), 400u) << big_id->body.substr(0, 200);
+  json keyed = json::parse(member_text_);
+  keyed[std::string(1 << 20, 'k')] = 1;
+  auto big_key = c.Post(members, keyed.dump(), "application/json");
+  EXPECT_EQ(big_key->status, 422);
+  EXPECT_LT(big_key->body.size(), 400u) << big_key->body.substr(0, 200);
+  // Still serving.
+  EXPECT_EQ(Client("").Get("/v1/health")->status, 200);
+}
+
+// The same file through `taut identify --member` exited 139 (SIGSEGV).
+TEST_F(HttpApiTest, DeeplyNestedMemberFileIsAnErrorOfTheCli) {
+  const std::string path = (dir_ / "deep.json").string();
+  {
+    std::ofstream out(path);
+    out << std::string(100000, '[') << std::string(100000, ']');
+  }
+  const std::string record = (dir_ / "record.csv").string();
+  {
+    std::ofstream out(record);
+    out << SyntheticCsv(dir_.string(), 9);
+  }
+  const std::string cmd = std::string(TAUT_BINARY_PATH) + " identify --member " + path + " --record " +
+                          record + " > " + (dir_ / "out.txt").string() + " 2>&1";
+  const int status = std::system(cmd.c_str());
+  ASSERT_TRUE(WIFEXITED(status)) << "killed by a signal";
+  EXPECT_NE(WEXITSTATUS(status), 0);
+  EXPECT_NE(ReadFile((dir_ / "out.txt").string()).find("nested deeper than 64"), std::string::npos);
+}
+
+// Issue 13 item 3: the token is checked before any body byte is read, and a
+// chunked body is refused as it streams past --max-body.
+TEST_F(HttpApiTest, TokenIsCheckedBeforeTheBodyAndChunkedBodiesStopAtMaxBody) {
+  StartServer(1u << 20);  // 1 MiB
+  const auto member = CreateMember();
+  const std::string path = "/v1/members/" + std::to_string(member) + "/records";
+  // Headers only, no token: answered at once although no body byte was sent.
+  int fd = taut::testing::ConnectFrom("127.0.0.1", server_->port());
+  ASSERT_GE(fd, 0);
+  ASSERT_TRUE(taut::testing::SendAll(
+      fd, "POST " + path +
+              " HTTP/1.1\r\nHost: t\r\nContent-Type: text/csv\r\nTransfer-Encoding: chunked\r\n\r\n"));
+  std::string answer = taut::testing::ReadUntilClosed(fd, std::chrono::seconds(5));
+  ::close(fd);
+  EXPECT_EQ(taut::testing::StatusOf(answer), 401) << answer;
+  // 300 MB announced, no token: 413 from the headers alone.
+  fd = taut::testing::ConnectFrom("127.0.0.1", server_->port());
+  ASSERT_TRUE(taut::testing::SendAll(
+      fd, "POST " + path + " HTTP/1.1\r\nHost: t\r\nContent-Length: 300000000\r\n\r\n"));
+  answer = taut::testing::ReadUntilClosed(fd, std::chrono::seconds(5));
+  ::close(fd);
+  EXPECT_EQ(taut::testing::StatusOf(answer), 413) << answer;
+  // With a token: 64 KiB chunks until the server answers; 413 after about
+  // 1 MiB, long before the 8 MiB the client would send.
+  fd = taut::testing::ConnectFrom("127.0.0.1", server_->port());
+  ASSERT_TRUE(taut::testing::SendAll(
+      fd, "POST " + path + " HTTP/1.1\r\nHost: t\r\nAuthorization: Bearer " + upload_a_ +
+              "\r\nContent-Type: text/csv\r\nTransfer-Encoding: chunked\r\n\r\n"));
+  const std::string chunk = "10000\r\n" + std::string(0x10000, '1') + "\r\n";
+  int sent = 0;
+  while (sent < 128 && taut::testing::SendAll(fd, chunk)) {
+    ++sent;
+    pollfd p{fd, POLLIN, 0};
+    if (::poll(&p, 1, 0) > 0) break;  // the answer is there
+  }
+  answer = taut::testing::ReadUntilClosed(fd, std::chrono::seconds(5));
+  ::close(fd);
+  EXPECT_EQ(taut::testing::StatusOf(answer), 413) << answer.substr(0, 300);
+  EXPECT_LT(sent, 128);
+  // A POST without Content-Length or chunked encoding: 411 (it used to be
+  // read until the client closed).
+  fd = taut::testing::ConnectFrom("127.0.0.1", server_->port());
+  ASSERT_TRUE(taut::testing::SendAll(fd, "POST " + path + " HTTP/1.1\r\nHost: t\r\n\r\n"));
+  answer = taut::testing::ReadUntilClosed(fd, std::chrono::seconds(5));
+  ::close(fd);
+  EXPECT_EQ(taut::testing::StatusOf(answer), 411) << answer;
+}
+
+// Issue 13 item 2: a client sending a header byte now and then is cut off
+// at the header deadline and counted.
+TEST_F(HttpApiTest, SlowHeadersAreCutAtTheHeaderDeadline) {
+  StartServer(1u << 20, [](ServeOptions& o) { o.header_deadline_s = 1; });
+  const int fd = taut::testing::ConnectFrom("127.0.0.1", server_->port());
+  ASSERT_GE(fd, 0);
+  const auto t0 = std::chrono::steady_clock::now();
+  bool alive = taut::testing::SendAll(fd, "GET /v1/health HTTP/1.1\r\n");
+  // One byte every 200 ms, for at most 5 s.
+  bool closed = false;
+  while (alive && std::chrono::steady_clock::now() - t0 < std::chrono::seconds(5)) {
+    alive = taut::testing::SendAll(fd, "X");
+    taut::testing::ReadUntilClosed(fd, std::chrono::milliseconds(200), &closed);
+    if (closed) break;
+  }
+  const double seconds = std::chrono::duration<double>(std::chrono::steady_clock::now() - t0).count();
+  ::close(fd);
+  EXPECT_TRUE(closed || !alive);
+  // Header deadline 1 s plus at most one 1 s poll slice and this loop's 200 ms step.
+  EXPECT_LT(seconds, 2.5);
+  const std::string metrics = Client("").Get("/metrics")->body;
+  EXPECT_NE(metrics.find("taut_http_connection_events_total{event=\"deadline_exceeded\"} 1"),
+            std::string::npos)
+      << metrics;
+}
+
+// Issue 13 item 11: control characters in a logged path are escaped, and a
+// request the router never sees is logged and counted.
+TEST_F(HttpApiTest, LoggedPathsAreEscapedAndUnroutedRequestsCounted) {
+  std::ostringstream log;
+  StartServer(1u << 20, [&](ServeOptions& o) { o.access_log = &log; });
+  int fd = taut::testing::ConnectFrom("127.0.0.1", server_->port());
+  ASSERT_TRUE(taut::testing::SendAll(
+      fd, "GET /v1/a%0Atime=forged%20status=200 HTTP/1.1\r\nHost: t\r\nConnection: close\r\n\r\n"));
+  EXPECT_EQ(taut::testing::StatusOf(taut::testing::ReadUntilClosed(fd, std::chrono::seconds(5))), 404);
+  ::close(fd);
+  fd = taut::testing::ConnectFrom("127.0.0.1", server_->port());
+  ASSERT_TRUE(taut::testing::SendAll(fd, "\x01\x02 nonsense\r\n\r\n"));
+  EXPECT_EQ(taut::testing::StatusOf(taut::testing::ReadUntilClosed(fd, std::chrono::seconds(5))), 400);
+  ::close(fd);
+  const std::string metrics = Client("").Get("/metrics")->body;
+  EXPECT_NE(metrics.find("route=\"unrouted\",status=\"400\"} 1"), std::string::npos) << metrics;
+  server_.reset();  // joins the threads that write the log
+  const std::string text = log.str();
+  EXPECT_NE(text.find("path=/v1/a\\x0atime=forged\\x20status=200"), std::string::npos) << text;
+  EXPECT_EQ(text.find("\ntime=forged"), std::string::npos) << text;
+  EXPECT_NE(text.find("route=unrouted status=400"), std::string::npos) << text;
 }
 
 }  // namespace
