@@ -3,6 +3,7 @@
 
 #include <iostream>
 #include <ostream>
+#include <vector>
 
 #include "server/auth.h"
 #include "server/cli.h"
@@ -24,6 +25,8 @@ struct ServeCliOptions {
   int header_deadline_s = kDefaultHeaderDeadline_s;
   int request_deadline_s = kDefaultRequestDeadline_s;
   int max_connections_per_client = kDefaultMaxConnectionsPerClient;
+  int job_time_limit_s = kDefaultJobTimeLimit_s;
+  std::vector<std::string> webhook_allow;
   bool quiet = false;
 };
 
@@ -52,6 +55,15 @@ int RunServe(const ServeCliOptions& o, std::ostream& out, std::ostream& err) {
   so.header_deadline_s = o.header_deadline_s;
   so.request_deadline_s = o.request_deadline_s;
   so.max_connections_per_client = o.max_connections_per_client;
+  for (const std::string& text : o.webhook_allow) {
+    Cidr cidr;
+    if (!ParseCidr(text, &cidr)) {
+      err << "taut serve: --webhook-allow \"" << text
+          << "\": expected an address range like 10.0.0.0/8 or fd00::/8\n";
+      return 2;
+    }
+    so.webhook_policy.allow.push_back(cidr);
+  }
   so.access_log = o.quiet ? nullptr : &std::cerr;
   Metrics metrics;
   so.metrics = &metrics;
@@ -61,6 +73,8 @@ int RunServe(const ServeCliOptions& o, std::ostream& out, std::ostream& err) {
   WorkerOptions wo;
   wo.db_path = o.db_path;
   wo.workers = o.workers;
+  wo.job_time_limit = std::chrono::seconds(o.job_time_limit_s);
+  wo.webhook_policy = so.webhook_policy;
   wo.log = o.quiet ? nullptr : &std::cerr;
   WorkerPool workers(wo, &metrics);
   so.on_job_queued = [&workers] { workers.Notify(); };
@@ -165,6 +179,13 @@ void RegisterServeCommand(CLI::App& app, CliContext* ctx) {
                   "open connections one address may hold (more get 503); 0: no cap (behind a reverse proxy)")
       ->check(CLI::Range(0, 100000))
       ->capture_default_str();
+  cmd->add_option("--job-time-limit", o->job_time_limit_s,
+                  "seconds one identification may run before its job fails with that reason")
+      ->check(CLI::Range(1, 86400))
+      ->capture_default_str();
+  cmd->add_option("--webhook-allow", o->webhook_allow,
+                  "address range (CIDR) webhooks may point to although it is not public, e.g. 10.1.0.0/16; "
+                  "repeatable (loopback, private and link-local are refused otherwise)");
   cmd->add_flag("--quiet", o->quiet, "no access log on stderr");
   cmd->callback([o, ctx] { ctx->exit_code = RunServe(*o, *ctx->out, *ctx->err); });
 

@@ -33,6 +33,7 @@
 #include "model/status.h"
 #include "server/metrics.h"
 #include "server/service_limits.h"
+#include "server/webhook_policy.h"
 
 namespace taut::server {
 
@@ -46,6 +47,10 @@ struct ServeOptions {
   int request_deadline_s = kDefaultRequestDeadline_s;
   int max_connections_per_client = kDefaultMaxConnectionsPerClient;  // 0: no cap
   int http_threads = kHttpThreads;
+  // Webhooks: where they may point (webhook_policy.h) and how many one
+  // organisation may keep active.
+  WebhookPolicy webhook_policy;
+  std::size_t max_webhooks_per_organisation = kMaxWebhooksPerOrganisation;
   // Called after a new record and its job are committed (not for a
   // duplicate upload). May be empty.
   std::function<void()> on_job_queued;

@@ -3,6 +3,7 @@
 // transaction.
 #include <algorithm>
 #include <cmath>
+#include <optional>
 #include <sstream>
 
 #include "estimation/record.h"
@@ -24,6 +25,64 @@ namespace {
 using nlohmann::json;
 using storage::Id;
 using storage::StorageStatus;
+
+// The metadata a record is stored with (after the query's overrides).
+struct Metadata {
+  std::optional<std::int64_t> recorded_at_unix_ms;
+  std::optional<double> temperature_c;
+  std::string units;
+  std::string excitation;
+  bool operator==(const Metadata&) const = default;
+};
+
+Metadata MetadataOf(const estimation::Record& r) {
+  Metadata m;
+  std::int64_t ms = 0;
+  if (!r.recorded_at.empty() && ParseIsoUtc(r.recorded_at, &ms)) m.recorded_at_unix_ms = ms;
+  m.temperature_c = r.temperature_c;
+  m.units = r.units;
+  m.excitation = estimation::ToString(r.excitation);
+  return m;
+}
+
+// Every channel must be a sensor of the member, each at most once (422).
+// `path(c)` names channel c in a message.
+template <typename PathFn>
+void CheckChannels(const std::vector<std::string>& channels, const model::Member& member, PathFn path) {
+  for (std::size_t c = 0; c < channels.size(); ++c) {
+    const std::string& s = channels[c];
+    const bool sensor = std::any_of(member.sensors.begin(), member.sensors.end(),
+                                    [&](const model::Sensor& x) { return x.channel == s; });
+    if (!sensor) {
+      Fail(422, "unprocessable",
+           path(c) + " = \"" + Excerpt(s) + "\": not a sensor channel of member " + member.id);
+    }
+    if (std::find(channels.begin(), channels.begin() + static_cast<std::ptrdiff_t>(c), s) !=
+        channels.begin() + static_cast<std::ptrdiff_t>(c)) {
+      Fail(422, "unprocessable", path(c) + " = \"" + Excerpt(s) + "\": channel listed twice");
+    }
+  }
+}
+
+// Samples are stored as IEEE binary32 (storage/repository.h): a value
+// beyond kMaxAbsAcceleration_m_s2 is refused with its position rather
+// than stored as something else (1e308 read back as inf).
+void CheckSampleValues(const estimation::Record& r, bool json) {
+  const Eigen::Index n = r.samples.rows(), nc = r.samples.cols();
+  for (Eigen::Index i = 0; i < n; ++i) {
+    for (Eigen::Index j = 0; j < nc; ++j) {
+      const double v = r.samples(i, j);
+      if (std::isfinite(v) && std::abs(v) <= kMaxAbsAcceleration_m_s2) continue;
+      const std::string where = json ? "$.samples[" + std::to_string(i) + "][" + std::to_string(j) + "]"
+                                     : "data row " + std::to_string(i + 1) + ", channel " + r.channels[j];
+      std::ostringstream value;
+      value << v;
+      Fail(422, "unprocessable",
+           where + " = " + value.str() + " m/s2: not a finite acceleration within +-" +
+               std::to_string(static_cast<long long>(kMaxAbsAcceleration_m_s2)) + " m/s2");
+    }
+  }
+}
 
 // Builds the record from a JSON body (docs/API.md), checking the same rules
 // as the CSV reader (FORMATS.md section 2) with JSON paths in the messages.
@@ -49,19 +108,11 @@ estimation::Record RecordFromJson(const json& j, const model::Member& member) {
   }
   for (std::size_t c = 0; c < j["channels"].size(); ++c) {
     const json& name = j["channels"][c];
-    const std::string path = "$.channels[" + std::to_string(c) + "]";
-    if (!name.is_string()) Fail(422, "unprocessable", path + ": must be a string");
-    const std::string s = name.get<std::string>();
-    const bool sensor = std::any_of(member.sensors.begin(), member.sensors.end(),
-                                    [&](const model::Sensor& x) { return x.channel == s; });
-    if (!sensor)
-      Fail(422, "unprocessable",
-           path + " = \"" + Excerpt(s) + "\": not a sensor channel of member " + member.id);
-    if (std::find(r.channels.begin(), r.channels.end(), s) != r.channels.end()) {
-      Fail(422, "unprocessable", path + " = \"" + Excerpt(s) + "\": channel listed twice");
-    }
-    r.channels.push_back(s);
+    if (!name.is_string())
+      Fail(422, "unprocessable", "$.channels[" + std::to_string(c) + "]: must be a string");
+    r.channels.push_back(name.get<std::string>());
   }
+  CheckChannels(r.channels, member, [](std::size_t c) { return "$.channels[" + std::to_string(c) + "]"; });
   if (static_cast<int>(r.channels.size()) > estimation::kMaxChannels) {
     Fail(422, "unprocessable",
          "$.channels: more than " + std::to_string(estimation::kMaxChannels) + " channels");
@@ -130,19 +181,24 @@ void UploadRecord(Call& c) {
   }
   const std::string content_type = c.req.get_header_value("Content-Type");
   estimation::Record record;
-  if (content_type.rfind("application/json", 0) == 0) {
+  const bool json_body = content_type.rfind("application/json", 0) == 0;
+  if (json_body) {
     record = RecordFromJson(ParseBodyJson(c.body), member);
   } else if (content_type.empty() || content_type.rfind("text/csv", 0) == 0 ||
              content_type.rfind("text/plain", 0) == 0) {
+    // The member's channels are checked here, not by the reader: a channel
+    // that is not a sensor breaks a rule (422), a malformed file is 400.
     estimation::RecordReadOptions ro;
-    ro.member = &member;
     std::istringstream in(c.body);
     if (Status s = estimation::ParseRecordCsv(in, ro, &record); !s.ok()) Fail(400, "bad-request", s.message);
+    CheckChannels(record.channels, member,
+                  [](std::size_t i) { return "header column " + std::to_string(i + 2); });
   } else {
     Fail(415, "unsupported-media-type",
          "Content-Type \"" + Excerpt(content_type) +
              "\": send text/csv (FORMATS.md section 2) or application/json");
   }
+  const Metadata own = MetadataOf(record);
   // Query parameters override the record's own metadata (FORMATS.md section 2).
   if (auto v = Query(c.req, "recorded_at")) record.recorded_at = *v;
   if (auto v = QueryNumber(c.req, "temperature_c")) record.temperature_c = *v;
@@ -178,6 +234,14 @@ void UploadRecord(Call& c) {
     Fail(422, "unprocessable",
          "recorded_at = \"" + Excerpt(record.recorded_at) + "\": not an ISO 8601 UTC time");
   }
+  if (nr.recorded_at_unix_ms < kEarliestRecordedAt_unix_ms ||
+      nr.recorded_at_unix_ms > c.now_unix_ms + kMaxClockSkew_ms) {
+    Fail(422, "unprocessable",
+         "recorded_at = \"" + Excerpt(record.recorded_at) + "\": must lie between 1900-01-01 and " +
+             std::to_string(kMaxClockSkew_ms / 60000) + " minutes after the server's time (" +
+             FormatIsoUtc(c.now_unix_ms) + ")");
+  }
+  CheckSampleValues(record, json_body);
   nr.temperature_c = record.temperature_c;
   // Samples are kept in m/s^2 whatever the upload's units (the reader
   // converted them); the original bytes keep their hash.
@@ -191,7 +255,27 @@ void UploadRecord(Call& c) {
     for (Eigen::Index j = 0; j < nc; ++j)
       nr.samples[static_cast<std::size_t>(i * nc + j)] = record.samples(i, j);
   }
-  nr.content_sha256 = Sha256Hex(c.body);
+  // The upload's identity (docs/API.md "content_sha256"): the body's
+  // SHA-256 when the query changed none of its metadata; otherwise the
+  // SHA-256 of the body followed by the effective metadata, so that the
+  // same body with other overrides is a new record (and the same
+  // Idempotency-Key with other overrides a conflict), not a duplicate.
+  const Metadata effective = MetadataOf(record);
+  if (effective == own) {
+    nr.content_sha256 = Sha256Hex(c.body);
+  } else {
+    std::ostringstream meta;
+    meta.precision(17);
+    meta << "\n# taut effective metadata: recorded_at_unix_ms=" << nr.recorded_at_unix_ms
+         << ";temperature_c=";
+    if (record.temperature_c) {
+      meta << *record.temperature_c;
+    } else {
+      meta << "null";
+    }
+    meta << ";units=" << effective.units << ";excitation=" << effective.excitation << "\n";
+    nr.content_sha256 = Sha256Hex(c.body + meta.str());
+  }
   nr.samples_sha256 = Sha256Hex(storage::EncodeSamples(nr.samples));
   nr.idempotency_key = c.req.get_header_value("Idempotency-Key");
   if (nr.idempotency_key.size() > kMaxIdempotencyKeyLength) {

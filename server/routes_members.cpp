@@ -81,7 +81,7 @@ void GetMember(Call& c) {
 
 void GetMemberVersion(Call& c) {
   storage::Member m;
-  Check(c.repo.GetMemberVersion(c.who.organisation_id, c.ids[0], static_cast<int>(c.ids[1]), &m));
+  Check(c.repo.GetMemberVersion(c.who.organisation_id, c.ids[0], c.ids[1], &m));
   SendJson(c.res, 200, MemberJson(m));
 }
 
@@ -93,7 +93,7 @@ void UpdateMember(Call& c) {
     Fail(422, "unprocessable",
          "$.id = \"" + member.id + "\": a member keeps its id (\"" + current.external_id + "\")");
   }
-  int version = 0;
+  std::int64_t version = 0;
   Check(c.repo.UpdateMember(c.who.organisation_id, c.ids[0], c.body, c.now_unix_ms, &version));
   storage::Member m;
   Check(c.repo.GetMember(c.who.organisation_id, c.ids[0], &m));

@@ -38,8 +38,31 @@ inline constexpr int kHttpThreads = 128;
 inline constexpr int kListenBacklog = 1024;
 // Job workers of `taut serve` unless --workers says otherwise.
 inline constexpr int kDefaultWorkers = 2;
+// Wall-time limit of one identification job (`taut serve --job-time-limit`):
+// a modal identification takes well under a second, a time-domain fit of a
+// long impact record some tens of seconds.
+inline constexpr int kDefaultJobTimeLimit_s = 300;
+// Active webhooks per organisation.
+inline constexpr std::size_t kMaxWebhooksPerOrganisation = 20;
+// Webhook URL length.
+inline constexpr std::size_t kMaxWebhookUrlLength = 2048;
+// Organisations whose webhooks are delivered at the same time (each on its
+// own thread, so that a dead receiver delays only its own organisation).
+inline constexpr int kMaxParallelWebhookOrganisations = 8;
+// Structure names and descriptions.
+inline constexpr std::size_t kMaxStructureNameLength = 200;  // the schema's CHECK
+inline constexpr std::size_t kMaxStructureDescriptionLength = 4000;
 // Force history without `from`: the last 30 days before `to`.
 inline constexpr std::int64_t kDefaultHistoryWindow_ms = 30LL * 24 * 3600 * 1000;
+// Uploaded samples: at most this magnitude after conversion to m/s^2
+// (shock accelerometers reach about 1e5 g = 1e6 m/s^2; anything beyond is a
+// unit or encoding error, and binary32 storage overflows near 3.4e38).
+inline constexpr double kMaxAbsAcceleration_m_s2 = 1e6;
+// recorded_at: not before 1900-01-01T00:00:00Z (-2208988800 s), not more
+// than kMaxClockSkew_ms after the server's clock (a gateway's clock may run
+// ahead; a record from the future is a clock or typing error).
+inline constexpr std::int64_t kEarliestRecordedAt_unix_ms = -2208988800LL * 1000;
+inline constexpr std::int64_t kMaxClockSkew_ms = 15LL * 60 * 1000;
 // Idempotency-Key header length, 1..200 characters.
 inline constexpr std::size_t kMaxIdempotencyKeyLength = 200;
 // Bytes of randomness in a token's secret part (256 bits: far beyond

@@ -114,7 +114,9 @@ class ServiceTest : public ::testing::Test {
   }
 
   void StartServe(int workers) {
-    port_ = serve_.Start(db_, (dir_ / "serve.log").string(), workers);
+    // The webhook receivers of these tests listen on loopback, which taut
+    // refuses unless allowed (webhook_policy.h).
+    port_ = serve_.Start(db_, (dir_ / "serve.log").string(), workers, {"--webhook-allow", "127.0.0.0/8"});
     ASSERT_GT(port_, 0) << "taut serve did not report a port; see " << (dir_ / "serve.log");
   }
   httplib::Client Client() const {
@@ -482,6 +484,9 @@ TEST(Webhooks, FailedDeliveriesAreRetriedWithBackOffAndLogged) {
   wo.workers = 1;
   wo.poll_interval = 20ms;
   wo.webhook_first_backoff = 100ms;
+  Cidr loopback;  // the receivers below listen on loopback (webhook_policy.h)
+  ASSERT_TRUE(ParseCidr("127.0.0.0/8", &loopback));
+  wo.webhook_policy.allow.push_back(loopback);
   WorkerPool pool(wo, nullptr);
   ASSERT_TRUE(pool.Start().ok());
   std::vector<storage::DeliveryAttempt> log;

@@ -86,7 +86,7 @@ TEST_F(RepositoryTest, TokensKeepSaltHashAndRole) {
 
 TEST_F(RepositoryTest, MemberEditsCreateVersionsAndSoftDeleteKeepsHistory) {
   const Fixture f = MakeFixture(repo_, "Kiln Lane Trust");
-  int v = 0;
+  std::int64_t v = 0;
   ASSERT_TRUE(repo_.UpdateMember(f.org, f.member, R"({"id":"east-tie-2","length_m":6.25})", 2000, &v).ok());
   EXPECT_EQ(v, 2);
   Member m;
@@ -176,7 +176,7 @@ TEST_F(RepositoryTest, NoReadReturnsAnotherOrganisationsRows) {
   ASSERT_EQ(structures.size(), 1u);
   EXPECT_EQ(structures[0].id, b.structure);
   // ... and cannot write through them either.
-  int v = 0;
+  std::int64_t v = 0;
   RecordInsertResult ins;
   Id id = 0;
   EXPECT_TRUE(repo_.UpdateMember(b.org, a.member, "{}", 5, &v).not_found());
