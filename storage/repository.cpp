@@ -495,8 +495,8 @@ StorageStatus Repository::UpdateMember(Id organisation_id, Id member_id, std::st
                    "RETURNING current_version");
     bump.Bind(1, member_id).Bind(2, organisation_id);
     std::int64_t version = 0;
-    if (StorageStatus r = ReadOne(bump, IdText("member", member_id),
-                                  [&](const Statement& row) { version = row.Int64(0); });
+    if (StorageStatus r =
+            ReadOne(bump, IdText("member", member_id), [&](const Statement& row) { version = row.Int64(0); });
         !r.ok()) {
       return r;
     }
@@ -505,10 +505,7 @@ StorageStatus Repository::UpdateMember(Id organisation_id, Id member_id, std::st
     Statement v(db_.handle(),
                 "INSERT INTO member_version (member_id, version, description_json, created_at_unix_ms) "
                 "VALUES (?1, ?2, ?3, ?4)");
-    v.Bind(1, member_id)
-        .Bind(2, version)
-        .Bind(3, description_json)
-        .Bind(4, now_unix_ms);
+    v.Bind(1, member_id).Bind(2, version).Bind(3, description_json).Bind(4, now_unix_ms);
     if (StorageStatus r = v.Run(); !r.ok()) return r;
     *new_version = version;
     return {};
@@ -714,21 +711,22 @@ StorageStatus Repository::ClaimNextJob(std::int64_t now_unix_ms, Job* out, bool*
   *claimed = false;
   return Write([&]() -> StorageStatus {
     if (StorageStatus f = Fault(); !f.ok()) return f;
-    Statement s(db_.handle(),
-                std::string("UPDATE job SET state = 'running', progress = 0, attempts = attempts + 1, "
-                            "started_at_unix_ms = ?1, finished_at_unix_ms = NULL "
-                            // Fair between organisations: the oldest queued job of
-                            // the organisation with the fewest running jobs (ties:
-                            // the one whose oldest queued job is oldest), so one
-                            // organisation's backlog delays another's job by at
-                            // most one job.
-                            "WHERE id = (SELECT q.id FROM job q WHERE q.state = 'queued' AND "
-                            "q.organisation_id = (SELECT o.organisation_id FROM job o WHERE o.state = 'queued' "
-                            "GROUP BY o.organisation_id ORDER BY (SELECT COUNT(*) FROM job r WHERE "
-                            "r.state = 'running' AND r.organisation_id = o.organisation_id), MIN(o.id) LIMIT 1) "
-                            "ORDER BY q.id LIMIT 1) "
-                            "RETURNING ") +
-                    kJobColumns);
+    Statement s(
+        db_.handle(),
+        std::string("UPDATE job SET state = 'running', progress = 0, attempts = attempts + 1, "
+                    "started_at_unix_ms = ?1, finished_at_unix_ms = NULL "
+                    // Fair between organisations: the oldest queued job of
+                    // the organisation with the fewest running jobs (ties:
+                    // the one whose oldest queued job is oldest), so one
+                    // organisation's backlog delays another's job by at
+                    // most one job.
+                    "WHERE id = (SELECT q.id FROM job q WHERE q.state = 'queued' AND "
+                    "q.organisation_id = (SELECT o.organisation_id FROM job o WHERE o.state = 'queued' "
+                    "GROUP BY o.organisation_id ORDER BY (SELECT COUNT(*) FROM job r WHERE "
+                    "r.state = 'running' AND r.organisation_id = o.organisation_id), MIN(o.id) LIMIT 1) "
+                    "ORDER BY q.id LIMIT 1) "
+                    "RETURNING ") +
+            kJobColumns);
     s.Bind(1, now_unix_ms);
     const int rc = s.Step();
     if (rc == SQLITE_DONE) return {};

@@ -80,7 +80,7 @@ struct Member {
   Id id = 0;
   Id organisation_id = 0;
   Id structure_id = 0;
-  std::string external_id;  // the description's "id", 1..64 characters
+  std::string external_id;           // the description's "id", 1..64 characters
   std::int64_t version = 0;          // the version described by description_json (64-bit)
   std::int64_t current_version = 0;  // the newest version of the member
   std::string description_json;
