@@ -101,7 +101,56 @@ int RunServe(const ServeCliOptions& o, std::ostream& out, std::ostream& err) {
 
 struct TokenCliOptions {
   std::string db_path, org, role, label;
+  storage::Id id = 0;
 };
+
+// Opens the database and finds the organisation by name (not created).
+bool OpenOrganisation(const TokenCliOptions& o, const char* what, storage::Database& db,
+                      storage::Organisation* org, std::ostream& err) {
+  if (storage::StorageStatus s = storage::OpenAndMigrate(db, o.db_path); !s.ok()) {
+    err << "taut token " << what << ": " << o.db_path << ": " << s.message << "\n";
+    return false;
+  }
+  storage::Repository repo(db);
+  if (storage::StorageStatus s = repo.FindOrganisationByName(o.org, org); !s.ok()) {
+    err << "taut token " << what << ": organisation \"" << o.org << "\": " << s.message << "\n";
+    return false;
+  }
+  return true;
+}
+
+// One line per token: id, role, created, revoked (or "active"), public id, label.
+int RunTokenList(const TokenCliOptions& o, std::ostream& out, std::ostream& err) {
+  storage::Database db;
+  storage::Organisation org;
+  if (!OpenOrganisation(o, "list", db, &org, err)) return 1;
+  storage::Repository repo(db);
+  std::vector<storage::Token> tokens;
+  if (storage::StorageStatus s = repo.ListTokens(org.id, &tokens); !s.ok()) {
+    err << "taut token list: " << s.message << "\n";
+    return 1;
+  }
+  out << "id\trole\tcreated_at\trevoked_at\tpublic_id\tlabel\n";
+  for (const auto& t : tokens) {
+    out << t.id << "\t" << storage::RoleName(t.role) << "\t" << FormatIsoUtc(t.created_at_unix_ms) << "\t"
+        << (t.revoked_at_unix_ms ? FormatIsoUtc(*t.revoked_at_unix_ms) : std::string("active")) << "\t"
+        << t.public_id << "\t" << t.label << "\n";
+  }
+  return 0;
+}
+
+int RunTokenRevoke(const TokenCliOptions& o, std::ostream& out, std::ostream& err) {
+  storage::Database db;
+  storage::Organisation org;
+  if (!OpenOrganisation(o, "revoke", db, &org, err)) return 1;
+  storage::Repository repo(db);
+  if (storage::StorageStatus s = repo.RevokeToken(org.id, o.id, NowUnixMs()); !s.ok()) {
+    err << "taut token revoke: " << s.message << "\n";
+    return 1;
+  }
+  out << "token " << o.id << " revoked\n";
+  return 0;
+}
 
 int RunTokenCreate(const TokenCliOptions& o, std::ostream& out, std::ostream& err) {
   storage::Database db;
@@ -201,6 +250,15 @@ void RegisterServeCommand(CLI::App& app, CliContext* ctx) {
       ->check(CLI::IsMember({"read", "upload", "admin"}));
   create->add_option("--label", t->label, "free text to recognise the token by");
   create->callback([t, ctx] { ctx->exit_code = RunTokenCreate(*t, *ctx->out, *ctx->err); });
+  CLI::App* list = token->add_subcommand("list", "List an organisation's tokens (never their secrets)");
+  list->add_option("--db", t->db_path, "SQLite database file")->required();
+  list->add_option("--org", t->org, "organisation name")->required();
+  list->callback([t, ctx] { ctx->exit_code = RunTokenList(*t, *ctx->out, *ctx->err); });
+  CLI::App* revoke = token->add_subcommand("revoke", "Revoke a token at once (requests with it get 401)");
+  revoke->add_option("--db", t->db_path, "SQLite database file")->required();
+  revoke->add_option("--org", t->org, "organisation name")->required();
+  revoke->add_option("--id", t->id, "token id (first column of taut token list)")->required();
+  revoke->callback([t, ctx] { ctx->exit_code = RunTokenRevoke(*t, *ctx->out, *ctx->err); });
 }
 
 }  // namespace taut::server

@@ -364,24 +364,38 @@ StorageStatus Repository::CreateToken(Id organisation_id, const NewToken& token,
   });
 }
 
+namespace {
+
+constexpr const char* kTokenColumns =
+    "id, organisation_id, public_id, salt, hash, label, role, created_at_unix_ms, revoked_at_unix_ms";
+
+Token ReadToken(const Statement& r) {
+  Token t;
+  t.id = r.Int64(0);
+  t.organisation_id = r.Int64(1);
+  t.public_id = r.Text(2);
+  t.salt = r.Blob(3);
+  t.hash = r.Blob(4);
+  t.label = r.Text(5);
+  t.role = ParseRole(r.Text(6)).value_or(Role::kRead);
+  t.created_at_unix_ms = r.Int64(7);
+  t.revoked_at_unix_ms = r.OptionalInt64(8);
+  return t;
+}
+
+}  // namespace
+
 StorageStatus Repository::FindToken(std::string_view public_id, Token* out) {
-  Statement s(db_.handle(),
-              "SELECT id, organisation_id, public_id, salt, hash, label, role, created_at_unix_ms, "
-              "revoked_at_unix_ms FROM api_token WHERE public_id = ?1");
+  Statement s(db_.handle(), std::string("SELECT ") + kTokenColumns + " FROM api_token WHERE public_id = ?1");
   s.Bind(1, public_id);
-  return ReadOne(s, "token", [&](const Statement& r) {
-    Token t;
-    t.id = r.Int64(0);
-    t.organisation_id = r.Int64(1);
-    t.public_id = r.Text(2);
-    t.salt = r.Blob(3);
-    t.hash = r.Blob(4);
-    t.label = r.Text(5);
-    t.role = ParseRole(r.Text(6)).value_or(Role::kRead);
-    t.created_at_unix_ms = r.Int64(7);
-    t.revoked_at_unix_ms = r.OptionalInt64(8);
-    *out = std::move(t);
-  });
+  return ReadOne(s, "token", [&](const Statement& r) { *out = ReadToken(r); });
+}
+
+StorageStatus Repository::ListTokens(Id organisation_id, std::vector<Token>* out) {
+  Statement s(db_.handle(), std::string("SELECT ") + kTokenColumns +
+                                " FROM api_token WHERE organisation_id = ?1 ORDER BY id");
+  s.Bind(1, organisation_id);
+  return ReadAll(s, out, ReadToken);
 }
 
 StorageStatus Repository::RevokeToken(Id organisation_id, Id token_id, std::int64_t now_unix_ms) {

@@ -245,6 +245,9 @@ class Repository {
   // the organisation. Revoked tokens are returned (with the revocation
   // time) so the caller can refuse them explicitly.
   StorageStatus FindToken(std::string_view public_id, Token* out);
+  // The organisation's tokens, revoked ones included, by id.
+  StorageStatus ListTokens(Id organisation_id, std::vector<Token>* out);
+  // Idempotent: revoking a revoked token keeps its first revocation time.
   StorageStatus RevokeToken(Id organisation_id, Id token_id, std::int64_t now_unix_ms);
 
   // --- structures -------------------------------------------------------

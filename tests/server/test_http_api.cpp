@@ -26,6 +26,7 @@
 #include "server/http_api.h"
 #include "server/iso_time.h"
 #include "server/member_json.h"
+#include "server/webhook_policy.h"
 #include "storage/migrations.h"
 #include "storage/repository.h"
 #include "synthetic_record.h"
@@ -626,6 +627,164 @@ TEST_F(HttpApiTest, LoggedPathsAreEscapedAndUnroutedRequestsCounted) {
   EXPECT_NE(text.find("path=/v1/a\\x0atime=forged\\x20status=200"), std::string::npos) << text;
   EXPECT_EQ(text.find("\ntime=forged"), std::string::npos) << text;
   EXPECT_NE(text.find("route=unrouted status=400"), std::string::npos) << text;
+}
+
+// Issue 13 item 7: the same body with other overrides is another record,
+// not a duplicate that silently drops them; the same key with other
+// metadata is a conflict.
+TEST_F(HttpApiTest, ReuploadWithOtherOverridesIsANewRecordAndTheSameKeyWithThemIs409) {
+  const auto member = CreateMember();
+  const std::string path = "/v1/members/" + std::to_string(member) + "/records";
+  const std::string csv = SyntheticCsv(dir_.string(), 21);
+  auto c = Client(upload_a_);
+  auto first = c.Post(path, csv, "text/csv");
+  ASSERT_EQ(first->status, 202) << first->body;
+  EXPECT_EQ(c.Post(path, csv, "text/csv")->status, 200);  // a true duplicate
+  auto warmer = c.Post(path + "?temperature_c=5", csv, "text/csv");
+  ASSERT_EQ(warmer->status, 202) << warmer->body;
+  const auto id = json::parse(warmer->body)["record_id"].get<std::int64_t>();
+  EXPECT_NE(id, json::parse(first->body)["record_id"].get<std::int64_t>());
+  EXPECT_EQ(json::parse(c.Get("/v1/records/" + std::to_string(id))->body)["temperature_c"], 5.0);
+  EXPECT_EQ(c.Post(path + "?temperature_c=5", csv, "text/csv")->status, 200);
+  // The same key, same body, other units: 409.
+  const std::string other = SyntheticCsv(dir_.string(), 22);
+  httplib::Headers key = {{"Idempotency-Key", "gw-7-0001"}};
+  EXPECT_EQ(c.Post(path, key, other, "text/csv")->status, 202);
+  EXPECT_EQ(c.Post(path, key, other, "text/csv")->status, 200);
+  auto conflict = c.Post(path + "?units=g", key, other, "text/csv");
+  EXPECT_EQ(conflict->status, 409) << conflict->body;
+}
+
+// Issue 13 item 8 (JSON path): values binary32 storage cannot hold, and
+// recorded_at outside 1900 .. now + 15 min, are refused with their place.
+TEST_F(HttpApiTest, SampleValuesAndRecordTimesOutOfRangeAre422) {
+  const auto member = CreateMember();
+  const std::string path = "/v1/members/" + std::to_string(member) + "/records";
+  json body = {
+      {"recorded_at", "2026-11-21T08:00:00Z"}, {"sample_rate_hz", 128.0}, {"channels", {"v1", "v2"}}};
+  json rows = json::array();
+  for (int i = 0; i < 128 * 12; ++i) rows.push_back({std::sin(0.3 * i), std::cos(0.17 * i)});
+  body["samples"] = rows;
+  auto c = Client(upload_a_);
+  json huge = body;
+  huge["samples"][7][1] = 1e300;
+  auto r = c.Post(path, huge.dump(), "application/json");
+  EXPECT_EQ(r->status, 422);
+  EXPECT_NE(r->body.find("$.samples[7][1]"), std::string::npos) << r->body;
+  json overflow = body;  // 1e400 is no double at all: a JSON error naming where
+  std::string text = overflow.dump();
+  text.replace(text.find("\"samples\":[[") + 12, 1, "1e400,0");
+  text.erase(text.find(",0", text.find("1e400")) + 2,
+             text.find(']', text.find("1e400")) - text.find(",0", text.find("1e400")) - 2);
+  r = c.Post(path, text, "application/json");
+  EXPECT_EQ(r->status, 400);
+  EXPECT_NE(r->body.find("$.samples[0][0]"), std::string::npos) << r->body;
+  for (const std::string& when :
+       {std::string("1850-06-01T00:00:00Z"), FormatIsoUtc(NowUnixMs() + 86400000)}) {
+    json t = body;
+    t["recorded_at"] = when;
+    r = c.Post(path, t.dump(), "application/json");
+    EXPECT_EQ(r->status, 422) << when;
+    EXPECT_NE(r->body.find("recorded_at"), std::string::npos) << r->body;
+  }
+  EXPECT_EQ(queued_.load(), 0);
+}
+
+// Issue 13 item 9: client mistakes are 422 naming the JSON path, not 500
+// or 409; member descriptions that describe no monitorable member are 422.
+TEST_F(HttpApiTest, ClientMistakesAre422NamingTheJsonPath) {
+  auto c = Client(admin_a_);
+  auto expect = [&](const httplib::Result& r, int status, const std::string& path) {
+    ASSERT_TRUE(r);
+    EXPECT_EQ(r->status, status) << r->body;
+    EXPECT_NE(r->body.find(path), std::string::npos) << path << " not in " << r->body;
+  };
+  expect(c.Post("/v1/structures", R"({"name": "Hall", "description": 7})", "application/json"), 422,
+         "$.description");
+  expect(c.Post("/v1/structures", R"({"name": ""})", "application/json"), 422, "$.name");
+  expect(c.Post("/v1/structures", json{{"name", std::string(201, 'n')}}.dump(), "application/json"), 422,
+         "$.name");
+  expect(c.Post("/v1/webhooks", json{{"url", "https://" + std::string(3000, 'h') + ".example/"}}.dump(),
+                "application/json"),
+         422, "$.url");
+  CreateMember();
+  const std::string members = "/v1/structures/" + std::to_string(structure_id_) + "/members";
+  const json base = json::parse(member_text_);
+  auto with = [&](const std::string& pointer, const json& value) {
+    json m = base;
+    m["id"] = "variant";
+    m[json::json_pointer(pointer)] = value;
+    return m.dump();
+  };
+  expect(c.Post(members, with("/material/elastic_modulus_pa", 1e300), "application/json"), 422,
+         "$.material.elastic_modulus_pa");
+  expect(c.Post(members, with("/section/diameter_m", 100.0), "application/json"), 422,
+         "$.section.diameter_m");
+  expect(c.Post(members, with("/sensors", json::array()), "application/json"), 422, "$.sensors");
+  expect(c.Post(members, with("/sensors/1/position_m", base["sensors"][0]["position_m"]), "application/json"),
+         422, "$.sensors[1].position_m");
+  expect(c.Post(members, with("/design_axial_force_n", 0), "application/json"), 422,
+         "$.design_axial_force_n");
+  json many = base;
+  many["id"] = "many";
+  many["sensors"] = json::array();
+  for (int i = 0; i < 65; ++i) {
+    many["sensors"].push_back({{"channel", "c" + std::to_string(i)}, {"position_m", 0.05 + 0.08 * i}});
+  }
+  expect(c.Post(members, many.dump(), "application/json"), 422, "$.sensors");
+  std::string overflow = with("/length_m", 5.8);
+  overflow.replace(overflow.find("5.8"), 3, "1e400");
+  expect(c.Post(members, overflow, "application/json"), 422, "$.length_m");
+  // Versions are 64-bit: 2^32 + 1 is not version 1.
+  expect(c.Get("/v1/members/" +
+               std::to_string(json::parse(c.Get(members)->body)["members"][0]["id"].get<int>()) +
+               "/versions/4294967297"),
+         404, "version 4294967297");
+}
+
+// Issue 13 item 6: webhooks may not point into the service's own network.
+TEST_F(HttpApiTest, WebhooksToNonPublicAddressesAreRefused) {
+  auto c = Client(admin_a_);
+  for (const char* url : {"http://127.0.0.1:22/", "http://0.0.0.0:8080/", "http://2130706433:80/",
+                          "http://[::1]/", "http://169.254.169.254/latest/meta-data/", "http://10.1.2.3/",
+                          "http://[::ffff:127.0.0.1]/", "http://localhost:9/"}) {
+    auto r = c.Post("/v1/webhooks", json{{"url", url}}.dump(), "application/json");
+    ASSERT_TRUE(r);
+    EXPECT_EQ(r->status, 422) << url << ": " << r->body;
+  }
+  // Allowed when the operator says so.
+  Cidr ten;
+  ASSERT_TRUE(ParseCidr("10.0.0.0/8", &ten));
+  StartServer(64u << 20, [&](ServeOptions& o) {
+    o.webhook_policy.allow.push_back(ten);
+    o.max_webhooks_per_organisation = 2;
+  });
+  auto d = Client(admin_a_);
+  EXPECT_EQ(d.Post("/v1/webhooks", R"({"url": "http://10.1.2.3/a"})", "application/json")->status, 201);
+  EXPECT_EQ(d.Post("/v1/webhooks", R"({"url": "http://127.0.0.1/a"})", "application/json")->status, 422);
+  EXPECT_EQ(d.Post("/v1/webhooks", R"({"url": "http://10.1.2.4/b"})", "application/json")->status, 201);
+  auto third = d.Post("/v1/webhooks", R"({"url": "http://10.1.2.5/c"})", "application/json");
+  EXPECT_EQ(third->status, 422) << "per-organisation limit";
+}
+
+// Issue 13 item 10: an admin lists and revokes the organisation's tokens.
+TEST_F(HttpApiTest, TokensAreListedAndRevokedByAnAdmin) {
+  auto c = Client(admin_a_);
+  EXPECT_EQ(Client(read_a_).Get("/v1/tokens")->status, 403);
+  const json list = json::parse(c.Get("/v1/tokens")->body)["tokens"];
+  ASSERT_EQ(list.size(), 3u);  // org A's admin, gateway and viewer; not org B's
+  std::int64_t viewer = 0;
+  for (const auto& t : list) {
+    EXPECT_FALSE(t.contains("hash"));
+    EXPECT_FALSE(t.contains("salt"));
+    if (t["label"] == "a viewer") viewer = t["id"].get<std::int64_t>();
+  }
+  ASSERT_NE(viewer, 0);
+  EXPECT_EQ(Client(read_a_).Get("/v1/me")->status, 200);
+  EXPECT_EQ(Client(admin_b_).Delete("/v1/tokens/" + std::to_string(viewer))->status, 404);
+  EXPECT_EQ(c.Delete("/v1/tokens/" + std::to_string(viewer))->status, 204);
+  EXPECT_EQ(Client(read_a_).Get("/v1/me")->status, 401);
+  EXPECT_FALSE(json::parse(c.Get("/v1/tokens")->body)["tokens"][2]["revoked_at"].is_null());
 }
 
 }  // namespace
