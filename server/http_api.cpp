@@ -321,6 +321,12 @@ Status ApiServer::Start() {
   }
   s.http.WidenBacklog(kListenBacklog);
   s.thread = std::thread([&s] { s.http.listen_after_bind(); });
+  // httplib's stop() does nothing until the listening thread has marked
+  // itself running; a Stop() right after Start() then left that thread
+  // blocked in accept() for good (seen under load in test_http_api). Start
+  // returns once the thread runs.
+  for (int i = 0; i < 10000 && !s.http.is_running(); ++i)
+    std::this_thread::sleep_for(std::chrono::milliseconds(1));
   s.started = true;
   return Status::Ok();
 }
