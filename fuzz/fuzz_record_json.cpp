@@ -30,6 +30,14 @@ const taut::model::Member& Tie() {
 
 extern "C" int LLVMFuzzerTestOneInput(const std::uint8_t* data, std::size_t size) {
   const std::string text(reinterpret_cast<const char*>(data), size);
+  // The streaming reader the upload route uses.
+  try {
+    const taut::estimation::Record r = taut::server::ParseRecordJson(text, Tie());
+    if (r.samples.cols() != static_cast<Eigen::Index>(r.channels.size())) std::abort();
+  } catch (const taut::server::ApiError& e) {
+    if ((e.status != 422 && e.status != 400) || e.message.size() > 4096) std::abort();
+  }
+  // The DOM reader on the same input.
   nlohmann::json j;
   if (!taut::server::ParseJsonBounded(text, &j).ok() || !j.is_object()) return 0;
   try {

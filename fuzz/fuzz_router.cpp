@@ -16,8 +16,9 @@ const taut::server::Router& Table() {
   static const taut::server::Router router = [] {
     taut::server::Router r;
     using taut::storage::Role;
-    for (const char* p : {"/v1/health", "/v1/structures", "/v1/structures/{id}", "/v1/structures/{id}/members",
-                          "/v1/members/{id}/versions/{version}", "/v1/members/{id}/records", "/", "/ui/**"}) {
+    for (const char* p :
+         {"/v1/health", "/v1/structures", "/v1/structures/{id}", "/v1/structures/{id}/members",
+          "/v1/members/{id}/versions/{version}", "/v1/members/{id}/records", "/", "/ui/**"}) {
       r.Add("GET", p, Role::kRead, Nop);
       r.Add("POST", p, Role::kAdmin, Nop);
     }

@@ -77,7 +77,7 @@ void UploadRecord(Call& c) {
   estimation::Record record;
   const bool json_body = content_type.rfind("application/json", 0) == 0;
   if (json_body) {
-    record = RecordFromJson(ParseBodyJson(c.body), member);
+    record = ParseRecordJson(c.body, member);
   } else if (content_type.empty() || content_type.rfind("text/csv", 0) == 0 ||
              content_type.rfind("text/plain", 0) == 0) {
     // The member's channels are checked here, not by the reader: a channel
@@ -149,6 +149,7 @@ void UploadRecord(Call& c) {
     for (Eigen::Index j = 0; j < nc; ++j)
       nr.samples[static_cast<std::size_t>(i * nc + j)] = record.samples(i, j);
   }
+  record.samples = Eigen::MatrixXd();  // peak memory: one copy of the samples at a time
   // The upload's identity (docs/API.md "content_sha256"): the body's
   // SHA-256 when the query changed none of its metadata; otherwise the
   // SHA-256 of the body followed by the effective metadata, so that the
