@@ -65,6 +65,8 @@ class ServeProcess {
     return port;
   }
 
+  pid_t pid() const { return pid_; }
+
   // Sends `sig` without reaping (SIGSTOP / SIGCONT).
   void Signal(int sig) {
     if (pid_ > 0) ::kill(pid_, sig);
