@@ -327,6 +327,28 @@ TEST_F(RepositoryTest, UploadCostDoesNotGrowWithStoredRecords) {
   EXPECT_LT(static_cast<double>(late), 1.25 * static_cast<double>(early)) << early << " -> " << late;
 }
 
+// Issue 13 item 5: one organisation's backlog must not starve another's
+// job. A free worker takes the oldest job of the organisation with the
+// fewest running jobs.
+TEST_F(RepositoryTest, ClaimingIsFairBetweenOrganisations) {
+  const Fixture a = MakeFixture(repo_, "Backlog Estates");
+  const Fixture b = MakeFixture(repo_, "Quiet Lane Trust");
+  std::vector<RecordInsertResult> mass(4);
+  for (int i = 0; i < 4; ++i) {
+    ASSERT_TRUE(repo_.InsertRecord(a.org, SmallRecord(a.member, 10 + i, 100 + i), 1, &mass[i]).ok());
+  }
+  RecordInsertResult single;
+  ASSERT_TRUE(repo_.InsertRecord(b.org, SmallRecord(b.member, 50, 500), 2, &single).ok());
+  Job j;
+  bool claimed = false;
+  ASSERT_TRUE(repo_.ClaimNextJob(10, &j, &claimed).ok());
+  EXPECT_EQ(j.id, mass[0].job_id) << "both idle: the oldest job first";
+  ASSERT_TRUE(repo_.ClaimNextJob(11, &j, &claimed).ok());
+  EXPECT_EQ(j.id, single.job_id) << "A has a job running, B none: B's job next, not A's backlog";
+  ASSERT_TRUE(repo_.ClaimNextJob(12, &j, &claimed).ok());
+  EXPECT_EQ(j.id, mass[1].job_id) << "then A again (both have one running; A's queued job is older)";
+}
+
 TEST_F(RepositoryTest, JobLifeCycleAndRequeue) {
   const Fixture f = MakeFixture(repo_, "Signal Box Row");
   RecordInsertResult r1, r2, r3;
