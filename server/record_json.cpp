@@ -176,6 +176,7 @@ class RecordSax {
     if (depth_ == 1) {
       (*meta_)[key_] = json::array();
       if (key_ == "samples") in_samples_ = true;
+      if (key_ == "channels") in_channels_ = true;
       return Open();
     }
     if (in_samples_ && depth_ == 2) {
@@ -183,7 +184,8 @@ class RecordSax {
       return Open();
     }
     if (InSamples()) return SampleError("not a finite number");
-    if (depth_ == 2 && key_ == "channels") (*meta_)["channels"].push_back(json::array());
+    if (in_channels_ && depth_ == 2)
+      (*meta_)["channels"].push_back(json::array());  // reported as not a string
     return Open();
   }
   bool end_array() {
@@ -193,6 +195,7 @@ class RecordSax {
       ++samples_->rows;
     }
     if (in_samples_ && depth_ == 2) in_samples_ = false;
+    if (in_channels_ && depth_ == 2) in_channels_ = false;
     return Close();
   }
   bool parse_error(std::size_t position, const std::string&, const nlohmann::detail::exception& e) {
@@ -252,7 +255,7 @@ class RecordSax {
     }
     if (depth_ == 1) {
       (*meta_)[key_] = std::move(value);
-    } else if (depth_ == 2 && key_ == "channels") {
+    } else if (in_channels_ && depth_ == 2) {
       (*meta_)["channels"].push_back(std::move(value));
     }
     return true;
@@ -263,6 +266,7 @@ class RecordSax {
   int depth_ = 0;
   std::string key_;
   bool in_samples_ = false;
+  bool in_channels_ = false;  // directly inside the "channels" array
   std::int64_t column_ = 0;
   int status_ = 0;
   std::string error_;
