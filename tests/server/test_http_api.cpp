@@ -785,6 +785,25 @@ TEST_F(HttpApiTest, TokensAreListedAndRevokedByAnAdmin) {
   EXPECT_EQ(c.Delete("/v1/tokens/" + std::to_string(viewer))->status, 204);
   EXPECT_EQ(Client(read_a_).Get("/v1/me")->status, 401);
   EXPECT_FALSE(json::parse(c.Get("/v1/tokens")->body)["tokens"][2]["revoked_at"].is_null());
+  // The same from the command line: taut token list / revoke.
+  auto run = [&](const std::string& args) {
+    const std::string out = (dir_ / "cli.txt").string();
+    const int status =
+        std::system((std::string(TAUT_BINARY_PATH) + " token " + args + " > " + out + " 2>&1").c_str());
+    EXPECT_TRUE(WIFEXITED(status) && WEXITSTATUS(status) == 0) << args << ": " << ReadFile(out);
+    return ReadFile(out);
+  };
+  const std::string listed = run("list --db " + db_path_ + " --org org-a");
+  EXPECT_NE(listed.find("a gateway"), std::string::npos) << listed;
+  EXPECT_EQ(listed.find("b admin"), std::string::npos) << listed;
+  std::int64_t gateway = 0;
+  const json tokens = json::parse(c.Get("/v1/tokens")->body)["tokens"];
+  for (const auto& t : tokens) {
+    if (t["label"] == "a gateway") gateway = t["id"].get<std::int64_t>();
+  }
+  EXPECT_EQ(Client(upload_a_).Get("/v1/me")->status, 200);
+  run("revoke --db " + db_path_ + " --org org-a --id " + std::to_string(gateway));
+  EXPECT_EQ(Client(upload_a_).Get("/v1/me")->status, 401);
 }
 
 }  // namespace
