@@ -58,7 +58,7 @@ if [ "${TAUT_SKIP_TSAN:-0}" != "1" ]; then
   cmake -S . -B build-tsan -G Ninja -DCMAKE_BUILD_TYPE=RelWithDebInfo -DTAUT_WERROR=ON -DTAUT_TSAN=ON \
     -DTAUT_BUILD_BENCH=OFF
   cmake --build build-tsan -j"$JOBS" --target taut test_storage test_http_api test_service
-  export TSAN_OPTIONS=halt_on_error=1:second_deadlock_stack=1
+  export TSAN_OPTIONS="halt_on_error=1:second_deadlock_stack=1:suppressions=$PWD/deploy/tsan-suppressions.txt"
   build-tsan/tests/storage/test_storage
   build-tsan/tests/server/test_http_api
   build-tsan/tests/server/test_service
