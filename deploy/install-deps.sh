@@ -21,6 +21,7 @@ PACKAGES=(
   postgresql          # tests/storage: a real server started by test_postgres
   libssl-dev          # SHA-256 of uploads, token hashes
   libcli11-dev        # command-line parsing of the taut executable
+  nginx               # deploy/nginx: reverse proxy; tests/server/test_hostile_clients runs it
   libgtest-dev        # tests
   libgmock-dev
   libbenchmark-dev    # bench/

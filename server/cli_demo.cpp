@@ -256,12 +256,18 @@ int RunDemo(const DemoOptions& o, std::ostream& out, std::ostream& err) {
   wo.db_path = db_path;
   wo.workers = o.workers;
   wo.poll_interval = std::chrono::milliseconds(200);
+  // The demo's own webhook receiver listens on loopback, which the service
+  // refuses for webhooks unless allowed (webhook_policy.h).
+  Cidr loopback;
+  ParseCidr("127.0.0.0/8", &loopback);
+  wo.webhook_policy.allow.push_back(loopback);
   WorkerPool workers(wo, &metrics);
   ServeOptions so;
   so.db_path = db_path;
   so.host = o.listen_host;
   so.metrics = &metrics;
   so.on_job_queued = [&workers] { workers.Notify(); };
+  so.webhook_policy = wo.webhook_policy;
   ApiServer api(so);
   if (Status s = api.Start(); !s.ok()) {
     err << "taut demo: " << s.message << "\n";

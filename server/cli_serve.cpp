@@ -3,6 +3,7 @@
 
 #include <iostream>
 #include <ostream>
+#include <vector>
 
 #include "server/auth.h"
 #include "server/cli.h"
@@ -21,6 +22,11 @@ struct ServeCliOptions {
   std::string listen = "127.0.0.1:8080";
   int workers = kDefaultWorkers;
   std::size_t max_body_mib = kDefaultMaxBody_mib;
+  int header_deadline_s = kDefaultHeaderDeadline_s;
+  int request_deadline_s = kDefaultRequestDeadline_s;
+  int max_connections_per_client = kDefaultMaxConnectionsPerClient;
+  int job_time_limit_s = kDefaultJobTimeLimit_s;
+  std::vector<std::string> webhook_allow;
   bool quiet = false;
 };
 
@@ -46,6 +52,18 @@ int RunServe(const ServeCliOptions& o, std::ostream& out, std::ostream& err) {
     return 2;
   }
   so.max_body_bytes = o.max_body_mib << 20;
+  so.header_deadline_s = o.header_deadline_s;
+  so.request_deadline_s = o.request_deadline_s;
+  so.max_connections_per_client = o.max_connections_per_client;
+  for (const std::string& text : o.webhook_allow) {
+    Cidr cidr;
+    if (!ParseCidr(text, &cidr)) {
+      err << "taut serve: --webhook-allow \"" << text
+          << "\": expected an address range like 10.0.0.0/8 or fd00::/8\n";
+      return 2;
+    }
+    so.webhook_policy.allow.push_back(cidr);
+  }
   so.access_log = o.quiet ? nullptr : &std::cerr;
   Metrics metrics;
   so.metrics = &metrics;
@@ -55,6 +73,8 @@ int RunServe(const ServeCliOptions& o, std::ostream& out, std::ostream& err) {
   WorkerOptions wo;
   wo.db_path = o.db_path;
   wo.workers = o.workers;
+  wo.job_time_limit = std::chrono::seconds(o.job_time_limit_s);
+  wo.webhook_policy = so.webhook_policy;
   wo.log = o.quiet ? nullptr : &std::cerr;
   WorkerPool workers(wo, &metrics);
   so.on_job_queued = [&workers] { workers.Notify(); };
@@ -81,7 +101,56 @@ int RunServe(const ServeCliOptions& o, std::ostream& out, std::ostream& err) {
 
 struct TokenCliOptions {
   std::string db_path, org, role, label;
+  storage::Id id = 0;
 };
+
+// Opens the database and finds the organisation by name (not created).
+bool OpenOrganisation(const TokenCliOptions& o, const char* what, storage::Database& db,
+                      storage::Organisation* org, std::ostream& err) {
+  if (storage::StorageStatus s = storage::OpenAndMigrate(db, o.db_path); !s.ok()) {
+    err << "taut token " << what << ": " << o.db_path << ": " << s.message << "\n";
+    return false;
+  }
+  storage::Repository repo(db);
+  if (storage::StorageStatus s = repo.FindOrganisationByName(o.org, org); !s.ok()) {
+    err << "taut token " << what << ": organisation \"" << o.org << "\": " << s.message << "\n";
+    return false;
+  }
+  return true;
+}
+
+// One line per token: id, role, created, revoked (or "active"), public id, label.
+int RunTokenList(const TokenCliOptions& o, std::ostream& out, std::ostream& err) {
+  storage::Database db;
+  storage::Organisation org;
+  if (!OpenOrganisation(o, "list", db, &org, err)) return 1;
+  storage::Repository repo(db);
+  std::vector<storage::Token> tokens;
+  if (storage::StorageStatus s = repo.ListTokens(org.id, &tokens); !s.ok()) {
+    err << "taut token list: " << s.message << "\n";
+    return 1;
+  }
+  out << "id\trole\tcreated_at\trevoked_at\tpublic_id\tlabel\n";
+  for (const auto& t : tokens) {
+    out << t.id << "\t" << storage::RoleName(t.role) << "\t" << FormatIsoUtc(t.created_at_unix_ms) << "\t"
+        << (t.revoked_at_unix_ms ? FormatIsoUtc(*t.revoked_at_unix_ms) : std::string("active")) << "\t"
+        << t.public_id << "\t" << t.label << "\n";
+  }
+  return 0;
+}
+
+int RunTokenRevoke(const TokenCliOptions& o, std::ostream& out, std::ostream& err) {
+  storage::Database db;
+  storage::Organisation org;
+  if (!OpenOrganisation(o, "revoke", db, &org, err)) return 1;
+  storage::Repository repo(db);
+  if (storage::StorageStatus s = repo.RevokeToken(org.id, o.id, NowUnixMs()); !s.ok()) {
+    err << "taut token revoke: " << s.message << "\n";
+    return 1;
+  }
+  out << "token " << o.id << " revoked\n";
+  return 0;
+}
 
 int RunTokenCreate(const TokenCliOptions& o, std::ostream& out, std::ostream& err) {
   storage::Database db;
@@ -159,6 +228,25 @@ void RegisterServeCommand(CLI::App& app, CliContext* ctx) {
       ->check(CLI::Range(1, 4096))
       ->envname("TAUT_MAX_BODY")
       ->capture_default_str();
+  cmd->add_option("--header-deadline", o->header_deadline_s,
+                  "seconds a client has to send a request's line and headers")
+      ->check(CLI::Range(1, 600))
+      ->capture_default_str();
+  cmd->add_option("--request-deadline", o->request_deadline_s,
+                  "seconds a whole request may take (body upload, handling, response)")
+      ->check(CLI::Range(1, 3600))
+      ->capture_default_str();
+  cmd->add_option("--max-connections-per-client", o->max_connections_per_client,
+                  "open connections one address may hold (more get 503); 0: no cap (behind a reverse proxy)")
+      ->check(CLI::Range(0, 100000))
+      ->capture_default_str();
+  cmd->add_option("--job-time-limit", o->job_time_limit_s,
+                  "seconds one identification may run before its job fails with that reason")
+      ->check(CLI::Range(1, 86400))
+      ->capture_default_str();
+  cmd->add_option("--webhook-allow", o->webhook_allow,
+                  "address range (CIDR) webhooks may point to although it is not public, e.g. 10.1.0.0/16; "
+                  "repeatable (loopback, private and link-local are refused otherwise)");
   cmd->add_flag("--quiet", o->quiet, "no access log on stderr")->envname("TAUT_QUIET");
   cmd->callback([o, ctx] { ctx->exit_code = RunServe(*o, *ctx->out, *ctx->err); });
 
@@ -174,6 +262,15 @@ void RegisterServeCommand(CLI::App& app, CliContext* ctx) {
       ->check(CLI::IsMember({"read", "upload", "admin"}));
   create->add_option("--label", t->label, "free text to recognise the token by");
   create->callback([t, ctx] { ctx->exit_code = RunTokenCreate(*t, *ctx->out, *ctx->err); });
+  CLI::App* list = token->add_subcommand("list", "List an organisation's tokens (never their secrets)");
+  list->add_option("--db", t->db_path, "SQLite database file")->required();
+  list->add_option("--org", t->org, "organisation name")->required();
+  list->callback([t, ctx] { ctx->exit_code = RunTokenList(*t, *ctx->out, *ctx->err); });
+  CLI::App* revoke = token->add_subcommand("revoke", "Revoke a token at once (requests with it get 401)");
+  revoke->add_option("--db", t->db_path, "SQLite database file")->required();
+  revoke->add_option("--org", t->org, "organisation name")->required();
+  revoke->add_option("--id", t->id, "token id (first column of taut token list)")->required();
+  revoke->callback([t, ctx] { ctx->exit_code = RunTokenRevoke(*t, *ctx->out, *ctx->err); });
 }
 
 }  // namespace taut::server

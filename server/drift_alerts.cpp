@@ -67,8 +67,7 @@ bool CheckDriftAndRaiseAlerts(storage::Repository& repo, Id organisation_id, Id 
     return false;
   }
   model::Member member;
-  if (Status s = ParseMember(stored.description_json, &member, MemberReadOptions{.require_id = true});
-      !s.ok()) {
+  if (Status s = ParseMember(stored.description_json, &member, kStoredMember); !s.ok()) {
     {
       log("level=error " + where + ": " + s.message);
       return false;

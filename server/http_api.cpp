@@ -13,8 +13,11 @@
 #include "server/auth.h"
 #include "server/connection_pool.h"
 #include "server/http_router.h"
+#include "server/http_server.h"
 #include "server/iso_time.h"
 #include "server/routes.h"
+#include "server/safe_text.h"
+#include "server/service_limits.h"
 #include "storage/migrations.h"
 #include "storage/repository.h"
 
@@ -42,43 +45,73 @@ ConnectionPool::Lease ConnectionPool::Acquire() {
   return Lease(this, std::move(db));
 }
 
+ConnectionLimits LimitsOf(const ServeOptions& o) {
+  ConnectionLimits l;
+  l.header_deadline_s = o.header_deadline_s;
+  l.request_deadline_s = o.request_deadline_s;
+  l.read_timeout_s = kReadTimeout_s;
+  l.write_timeout_s = kWriteTimeout_s;
+  l.keep_alive_idle_s = kKeepAliveIdle_s;
+  l.keep_alive_max_requests = kKeepAliveMaxRequests;
+  l.max_per_client = o.max_connections_per_client;
+  return l;
+}
+
 struct ApiServer::Impl {
-  explicit Impl(ServeOptions o) : options(std::move(o)), pool(options.db_path) {
-    if (!options.metrics) options.metrics = &own_metrics;
+  explicit Impl(ServeOptions o)
+      : options(WithMetrics(std::move(o), &own_metrics)),
+        pool(options.db_path),
+        http(LimitsOf(options), options.metrics, [this](const std::string& line) { LogLine(line); }) {
     RegisterRoutes(router);
   }
+  static ServeOptions WithMetrics(ServeOptions o, Metrics* own) {
+    if (!o.metrics) o.metrics = own;
+    return o;
+  }
 
+  Metrics own_metrics;  // before options: options.metrics may point here
   ServeOptions options;
-  Metrics own_metrics;
   ConnectionPool pool;
-  httplib::Server http;
+  GuardedServer http;
   std::thread thread;
   int port = 0;
   bool started = false;
   Router router;
 
+  // Set on the handling thread while Dispatch runs a request: the logger
+  // callback then knows the router saw it.
+  static thread_local bool t_dispatched;
+
   // The one entry point of every request (see the header's diagram).
-  void Dispatch(const httplib::Request& req, httplib::Response& res) {
+  // `reader`: the body is still unread (POST, PUT, PATCH) and is read here,
+  // after the token and role checks, at most max_body_bytes of it; null:
+  // httplib read it (other methods, whose bodies the pre-routing check
+  // limits to none).
+  void Dispatch(const httplib::Request& req, httplib::Response& res, const httplib::ContentReader* reader) {
+    t_dispatched = true;
     const auto t0 = std::chrono::steady_clock::now();
     std::string route_label = "unmatched";
     Id organisation = 0;
+    std::string body;
     try {
       std::vector<Id> ids;
       std::string allow;
       const Route* route = router.Find(req.method, req.path, &ids, &allow);
       if (!route) {
+        if (reader) GuardedServer::CloseAfterResponse(res);  // body left unread
         if (!allow.empty()) {
           res.set_header("Allow", allow);
           Fail(405, "method-not-allowed",
-               req.method + " is not allowed on " + req.path + " (allowed: " + allow + ")");
+               req.method + " is not allowed on " + Excerpt(req.path) + " (allowed: " + allow + ")");
         }
-        Fail(404, "not-found", "no route " + req.path);
+        Fail(404, "not-found", "no route " + Excerpt(req.path));
       }
       route_label = route->pattern;
       auto lease = pool.Acquire();
       storage::Repository repo(lease.db());
-      Call call{req, res, lease.db(), repo, {}, std::move(ids), NowUnixMs(), options};
+      Call call{req, res, lease.db(), repo, {}, std::move(ids), NowUnixMs(), options, body};
       if (route->auth) {
+        if (reader) GuardedServer::CloseAfterResponse(res);  // until the body is read
         std::string storage_error;
         switch (Authenticate(repo, req.get_header_value("Authorization"), &call.who, &storage_error)) {
           case AuthOutcome::kOk:
@@ -100,39 +133,139 @@ struct ApiServer::Impl {
                    " role; the token has " + storage::RoleName(call.who.role));
         }
       }
+      if (reader) {
+        ReadBody(req, *reader, res, &body);
+        res.headers.erase("Connection");
+        GuardedServer::KeepAlive();
+      } else {
+        body = req.body;
+      }
       route->handler(call);
     } catch (const ApiError& e) {
       SendJson(res, e.status, ErrorBody(e.code, e.message));
     } catch (const std::exception& e) {
       Log("error", req, "exception: " + std::string(e.what()));
-      SendJson(res, 500, ErrorBody("internal", std::string("internal error: ") + e.what()));
+      SendJson(res, 500, ErrorBody("internal", std::string("internal error: ") + Excerpt(e.what(), 400)));
     } catch (...) {
       Log("error", req, "unknown exception");
       SendJson(res, 500, ErrorBody("internal", "internal error"));
     }
     const double seconds = std::chrono::duration<double>(std::chrono::steady_clock::now() - t0).count();
     options.metrics->RecordRequest(req.method, route_label, res.status, seconds);
-    if (options.access_log) {
-      std::ostringstream line;
-      line << "time=" << FormatIsoUtc(NowUnixMs()) << " remote=" << req.remote_addr
-           << " method=" << req.method << " path=" << req.path << " route=" << route_label
-           << " status=" << res.status << " ms=" << std::fixed << std::setprecision(2) << seconds * 1e3
-           << " org=" << organisation << " in=" << req.body.size()
-           << " out=" << std::max(res.body.size(), res.content_length_) << "\n";
-      std::lock_guard<std::mutex> lock(log_mu);
-      *options.access_log << line.str() << std::flush;
+    AccessLog(req, res, route_label, seconds, organisation, body.size());
+  }
+
+  // Reads the request body through httplib's content reader, refusing it
+  // (413) as soon as it passes max_body_bytes: a chunked body has no
+  // Content-Length to check up front (one with a length was checked in
+  // PreRoute).
+  void ReadBody(const httplib::Request& req, const httplib::ContentReader& reader, httplib::Response& res,
+                std::string* body) {
+    bool too_large = false;
+    // A known length is reserved at once (growing by doubling would hold up
+    // to twice the body); PreRoute has checked it against the limit.
+    if (req.has_header("Content-Length")) {
+      body->reserve(std::strtoull(req.get_header_value("Content-Length").c_str(), nullptr, 10));
+    }
+    const bool ok = reader([&](const char* data, std::size_t n) {
+      if (body->size() + n > options.max_body_bytes) {
+        too_large = true;
+        return false;
+      }
+      body->append(data, n);
+      return true;
+    });
+    if (too_large) {
+      GuardedServer::CloseAfterResponse(res);
+      Fail(413, "payload-too-large",
+           "the request body exceeds the server's --max-body limit (" +
+               std::to_string(options.max_body_bytes >> 20) + " MiB)");
+    }
+    if (!ok) {
+      GuardedServer::CloseAfterResponse(res);
+      Fail(400, "bad-request", "the request body could not be read (malformed chunked encoding or timeout)");
     }
   }
 
+  // Runs when the request line and headers are complete, before any body
+  // byte is read: refuses bodies that are too large by their
+  // Content-Length, bodies on methods that take none, and bodies whose end
+  // the server could only learn by the client closing the connection.
+  httplib::Server::HandlerResponse PreRoute(const httplib::Request& req, httplib::Response& res) {
+    GuardedServer::HeadersDone();
+    t_dispatched = false;
+    const bool chunked = req.get_header_value("Transfer-Encoding").find("chunked") != std::string::npos;
+    const bool has_length = req.has_header("Content-Length");
+    const std::uint64_t length =
+        has_length ? std::strtoull(req.get_header_value("Content-Length").c_str(), nullptr, 10) : 0;
+    const bool takes_body = req.method == "POST" || req.method == "PUT" || req.method == "PATCH";
+    int status = 0;
+    std::string code, message;
+    if (has_length && length > options.max_body_bytes) {
+      status = 413;
+      code = "payload-too-large";
+      message = "the request body (" + std::to_string(length) +
+                " bytes) exceeds the server's --max-body limit (" +
+                std::to_string(options.max_body_bytes >> 20) + " MiB)";
+    } else if (!takes_body && (chunked || length > 0)) {
+      status = 400;
+      code = "bad-request";
+      message = req.method + " takes no request body";
+    } else if (takes_body && !chunked && !has_length) {
+      status = 411;
+      code = "length-required";
+      message = "send Content-Length (or Transfer-Encoding: chunked) with a " + req.method;
+    }
+    if (status == 0) return httplib::Server::HandlerResponse::Unhandled;
+    t_dispatched = true;
+    GuardedServer::CloseAfterResponse(res);
+    SendJson(res, status, ErrorBody(code, message));
+    options.metrics->RecordRequest(req.method, "refused-before-routing", status, 0);
+    AccessLog(req, res, "refused-before-routing", 0, 0, 0);
+    return httplib::Server::HandlerResponse::Handled;
+  }
+
+  // Requests httplib answered without routing them (unparsable request
+  // line, URI too long, a body that could not be read): logged and counted
+  // under the route label "unrouted".
+  void LogUnrouted(const httplib::Request& req, const httplib::Response& res) {
+    if (t_dispatched) {
+      t_dispatched = false;
+      return;
+    }
+    options.metrics->RecordRequest(req.method.empty() ? "-" : req.method, "unrouted", res.status, 0);
+    AccessLog(req, res, "unrouted", 0, 0, req.body.size());
+  }
+
   std::mutex log_mu;
+  void AccessLog(const httplib::Request& req, const httplib::Response& res, const std::string& route_label,
+                 double seconds, Id organisation, std::size_t in_bytes) {
+    if (!options.access_log) return;
+    std::ostringstream line;
+    line << "time=" << FormatIsoUtc(NowUnixMs()) << " remote=" << EscapeForLog(req.remote_addr, 64)
+         << " method=" << EscapeForLog(req.method, 16) << " path=" << EscapeForLog(req.path)
+         << " route=" << route_label << " status=" << res.status << " ms=" << std::fixed
+         << std::setprecision(2) << seconds * 1e3 << " org=" << organisation << " in=" << in_bytes
+         << " out=" << std::max(res.body.size(), res.content_length_) << "\n";
+    std::lock_guard<std::mutex> lock(log_mu);
+    *options.access_log << line.str() << std::flush;
+  }
   void Log(const char* level, const httplib::Request& req, const std::string& what) {
     if (!options.access_log) return;
     std::lock_guard<std::mutex> lock(log_mu);
     *options.access_log << "time=" << FormatIsoUtc(NowUnixMs()) << " level=" << level
-                        << " method=" << req.method << " path=" << req.path << " " << what << "\n"
+                        << " method=" << EscapeForLog(req.method, 16) << " path=" << EscapeForLog(req.path)
+                        << " " << EscapeForLog(what, 2000) << "\n"
                         << std::flush;
   }
+  void LogLine(const std::string& line) {
+    if (!options.access_log) return;
+    std::lock_guard<std::mutex> lock(log_mu);
+    *options.access_log << "time=" << FormatIsoUtc(NowUnixMs()) << " " << line << "\n" << std::flush;
+  }
 };
+
+thread_local bool ApiServer::Impl::t_dispatched = false;
 
 ApiServer::ApiServer(ServeOptions options) : impl_(std::make_unique<Impl>(std::move(options))) {}
 
@@ -146,19 +279,30 @@ Status ApiServer::Start() {
       return Status::InvalidArgument(s.options.db_path + ": " + st.message);
     }
   }
-  s.http.new_task_queue = [] { return new httplib::ThreadPool(kHttpThreads); };
+  const int threads = s.options.http_threads;
+  s.http.new_task_queue = [threads] { return new httplib::ThreadPool(static_cast<std::size_t>(threads)); };
   s.http.set_payload_max_length(s.options.max_body_bytes);
   // Responses go out as header and body writes; without TCP_NODELAY the
   // body waits for the peer's delayed ACK (Nagle's algorithm, RFC 896, with
   // delayed ACKs of RFC 1122: about 40 ms on Linux) on keep-alive
   // connections.
   s.http.set_tcp_nodelay(true);
-  s.http.set_read_timeout(kReadTimeout_s, 0);
-  s.http.set_write_timeout(kWriteTimeout_s, 0);
-  auto dispatch = [&s](const httplib::Request& req, httplib::Response& res) { s.Dispatch(req, res); };
-  // Every method and path goes to Dispatch, which owns routing (404 vs 405).
-  s.http.Get(".*", dispatch).Post(".*", dispatch).Put(".*", dispatch);
-  s.http.Delete(".*", dispatch).Patch(".*", dispatch).Options(".*", dispatch);
+  // Read/write timeouts, keep-alive and deadlines: GuardedServer's
+  // ConnectionLimits (LimitsOf), not httplib's own settings.
+  auto dispatch = [&s](const httplib::Request& req, httplib::Response& res) {
+    s.Dispatch(req, res, nullptr);
+  };
+  auto dispatch_reading = [&s](const httplib::Request& req, httplib::Response& res,
+                               const httplib::ContentReader& reader) { s.Dispatch(req, res, &reader); };
+  // Every method and path goes to Dispatch, which owns routing (404 vs
+  // 405). Methods with a body get it unread, so that the token is checked
+  // before the body is read.
+  s.http.Get(".*", dispatch).Delete(".*", dispatch).Options(".*", dispatch);
+  s.http.Post(".*", dispatch_reading).Put(".*", dispatch_reading).Patch(".*", dispatch_reading);
+  s.http.set_pre_routing_handler(
+      [&s](const httplib::Request& req, httplib::Response& res) { return s.PreRoute(req, res); });
+  s.http.set_logger(
+      [&s](const httplib::Request& req, const httplib::Response& res) { s.LogUnrouted(req, res); });
   // Errors produced by httplib itself (413 body too large, 400 unreadable
   // request) get the API's error body too.
   s.http.set_error_handler([](const httplib::Request&, httplib::Response& res) {
@@ -181,7 +325,14 @@ Status ApiServer::Start() {
     return Status::InvalidArgument("cannot listen on " + s.options.host + ":" +
                                    std::to_string(s.options.port));
   }
+  s.http.WidenBacklog(kListenBacklog);
   s.thread = std::thread([&s] { s.http.listen_after_bind(); });
+  // httplib's stop() does nothing until the listening thread has marked
+  // itself running; a Stop() right after Start() then left that thread
+  // blocked in accept() for good (seen under load in test_http_api). Start
+  // returns once the thread runs.
+  for (int i = 0; i < 10000 && !s.http.is_running(); ++i)
+    std::this_thread::sleep_for(std::chrono::milliseconds(1));
   s.started = true;
   return Status::Ok();
 }

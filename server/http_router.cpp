@@ -6,6 +6,8 @@
 #include <memory>
 
 #include "server/iso_time.h"
+#include "server/json_limits.h"
+#include "server/safe_text.h"
 
 // glibc's <resolv.h>, which httplib pulls in, defines the macro _res (a
 // parameter name inside Eigen): include httplib after anything Eigen.
@@ -64,9 +66,9 @@ void SendJson(httplib::Response& res, int status, const json& body) {
 
 json Optional(const std::optional<double>& v) { return v ? json(*v) : json(nullptr); }
 
-json ParseBodyJson(const httplib::Request& req) {
-  json j = json::parse(req.body, nullptr, /*allow_exceptions=*/false);
-  if (j.is_discarded()) Fail(400, "bad-request", "the body is not valid JSON");
+json ParseBodyJson(const std::string& body) {
+  json j;
+  if (Status s = ParseJsonBounded(body, &j); !s.ok()) Fail(400, "bad-request", "the body: " + s.message);
   if (!j.is_object()) Fail(400, "bad-request", "the body must be a JSON object");
   return j;
 }
@@ -82,7 +84,8 @@ std::optional<std::int64_t> QueryTime(const httplib::Request& req, const char* n
   std::int64_t ms = 0;
   if (!ParseIsoUtc(*text, &ms)) {
     Fail(400, "bad-request",
-         std::string(name) + " = \"" + *text + "\": not an ISO 8601 UTC time (e.g. 2026-11-20T10:00:00Z)");
+         std::string(name) + " = \"" + Excerpt(*text) +
+             "\": not an ISO 8601 UTC time (e.g. 2026-11-20T10:00:00Z)");
   }
   return ms;
 }
@@ -93,7 +96,7 @@ std::optional<double> QueryNumber(const httplib::Request& req, const char* name)
   char* end = nullptr;
   const double v = std::strtod(text->c_str(), &end);
   if (text->empty() || end != text->c_str() + text->size() || !std::isfinite(v)) {
-    Fail(400, "bad-request", std::string(name) + " = \"" + *text + "\": not a finite number");
+    Fail(400, "bad-request", std::string(name) + " = \"" + Excerpt(*text) + "\": not a finite number");
   }
   return v;
 }
@@ -102,7 +105,7 @@ std::optional<Id> QueryId(const httplib::Request& req, const char* name) {
   auto text = Query(req, name);
   if (!text) return std::nullopt;
   if (text->empty() || text->size() > 18 || text->find_first_not_of("0123456789") != std::string::npos) {
-    Fail(400, "bad-request", std::string(name) + " = \"" + *text + "\": not an id");
+    Fail(400, "bad-request", std::string(name) + " = \"" + Excerpt(*text) + "\": not an id");
   }
   return std::stoll(*text);
 }

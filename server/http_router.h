@@ -54,8 +54,8 @@ void SendJson(httplib::Response& res, int status, const nlohmann::json& body);
 // ------------------------------------------------------------ JSON helpers
 
 nlohmann::json Optional(const std::optional<double>& v);
-// The body as a JSON object, else 400.
-nlohmann::json ParseBodyJson(const httplib::Request& req);
+// The body as a JSON object (nesting bounded: json_limits.h), else 400.
+nlohmann::json ParseBodyJson(const std::string& body);
 
 // ------------------------------------------------------- query parameters
 
@@ -80,6 +80,7 @@ struct Call {
   std::vector<storage::Id> ids;  // the path's numeric captures, in order
   std::int64_t now_unix_ms;
   const ServeOptions& options;  // metrics always set
+  const std::string& body;      // the request body (at most options.max_body_bytes)
 };
 
 using Handler = void (*)(Call&);

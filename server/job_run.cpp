@@ -1,6 +1,7 @@
 #include "server/job_run.h"
 
 #include <algorithm>
+#include <chrono>
 
 #include "estimation/identify_record.h"
 #include "server/estimate_json.h"
@@ -14,6 +15,11 @@ namespace {
 
 using storage::Id;
 using storage::StorageStatus;
+
+// Thrown from the progress callback to abandon an identification that
+// overran its time limit (the callback runs between the identification's
+// stages, outside Ceres).
+struct TimeLimitExceeded {};
 
 // Progress is written to the database at most this often (a write per
 // percent would contend with uploads for the write lock for nothing).
@@ -43,9 +49,11 @@ estimation::Record ToEstimationRecord(const storage::Record& stored) {
 
 }  // namespace
 
-// Returns "" on success, else the failure reason kept with the job.
 std::string RunIdentification(storage::Repository& repo, const storage::Job& job, Id* estimate_id,
-                              Id* member_id) {
+                              Id* member_id, std::chrono::seconds time_limit) {
+  const auto deadline = std::chrono::steady_clock::now() + time_limit;
+  const std::string over_time = "the identification ran longer than the job time limit of " +
+                                std::to_string(time_limit.count()) + " s (taut serve --job-time-limit)";
   storage::Record stored;
   if (StorageStatus s = repo.GetRecord(job.organisation_id, job.record_id, &stored); !s.ok()) {
     return "record " + std::to_string(job.record_id) + ": " + s.message;
@@ -61,8 +69,7 @@ std::string RunIdentification(storage::Repository& repo, const storage::Job& job
     return "member " + std::to_string(stored.member_id) + ": " + s.message;
   }
   model::Member member;
-  if (Status s = ParseMember(version.description_json, &member, MemberReadOptions{.require_id = true});
-      !s.ok()) {
+  if (Status s = ParseMember(version.description_json, &member, kStoredMember); !s.ok()) {
     return "member " + std::to_string(stored.member_id) + " version " + std::to_string(version.version) +
            ": " + s.message;
   }
@@ -70,13 +77,19 @@ std::string RunIdentification(storage::Repository& repo, const storage::Job& job
   estimation::IdentifyRecordOptions io;
   double written = 0;
   io.progress = [&](double share) {
+    if (std::chrono::steady_clock::now() > deadline) throw TimeLimitExceeded();
     if (share < 1.0 && share - written >= kProgressStep) {
       written = share;
       repo.SetJobProgress(job.id, share);  // best effort: progress is advisory
     }
   };
   estimation::Estimate estimate;
-  if (Status s = estimation::IdentifyRecord(member, record, io, &estimate); !s.ok()) return s.message;
+  try {
+    if (Status s = estimation::IdentifyRecord(member, record, io, &estimate); !s.ok()) return s.message;
+  } catch (const TimeLimitExceeded&) {
+    return over_time;
+  }
+  if (std::chrono::steady_clock::now() > deadline) return over_time;
   storage::NewEstimate ne;
   ne.record_id = stored.id;
   ne.axial_force_n = estimate.axial_force_n.value;

@@ -4,6 +4,7 @@
 // with the job (CompleteJobWithEstimate).
 #pragma once
 
+#include <chrono>
 #include <string>
 
 #include "storage/repository.h"
@@ -12,8 +13,10 @@ namespace taut::server {
 
 // Returns "" on success (*estimate_id, *member_id set), else the failure
 // reason to keep with the job. The job's progress is written as it runs
-// (best effort). Does not fail the job itself.
+// (best effort). An identification still running after `time_limit` is
+// abandoned at its next progress point and fails with that reason. Does not
+// fail the job itself.
 std::string RunIdentification(storage::Repository& repo, const storage::Job& job, storage::Id* estimate_id,
-                              storage::Id* member_id);
+                              storage::Id* member_id, std::chrono::seconds time_limit);
 
 }  // namespace taut::server

@@ -8,6 +8,8 @@
 #include <sstream>
 
 #include "server/iso_time.h"
+#include "server/json_limits.h"
+#include "server/safe_text.h"
 
 namespace taut::server {
 
@@ -29,11 +31,7 @@ struct PathError {
   throw PathError{path + ": " + rule};
 }
 
-std::string Show(const json& v) {
-  std::string s = v.dump();
-  if (s.size() > 40) s = s.substr(0, 37) + "...";
-  return s;
-}
+std::string Show(const json& v) { return ShowJson(v); }
 
 void RequireObject(const json& j, const std::string& path) {
   if (!j.is_object()) Fail(path, "must be a JSON object, got " + Show(j));
@@ -47,7 +45,7 @@ void OnlyKeys(const json& j, const std::string& path, std::initializer_list<cons
     if (!ok) {
       std::string list;
       for (const char* a : allowed) list += std::string(list.empty() ? "" : ", ") + a;
-      Fail(path + "." + it.key(), "unknown key (allowed here: " + list + ")");
+      Fail(path + "." + Excerpt(it.key(), 64), "unknown key (allowed here: " + list + ")");
     }
   }
 }
@@ -114,7 +112,8 @@ Section ReadSection(const json& j, const std::string& path) {
     s.area_m2 = Positive(Required(j, path, "area_m2"), path + ".area_m2");
     s.second_moment_m4 = Positive(Required(j, path, "second_moment_m4"), path + ".second_moment_m4");
   } else {
-    Fail(path + ".shape", "unknown section shape \"" + shape + "\" (use circle, rectangle or general)");
+    Fail(path + ".shape",
+         "unknown section shape \"" + Excerpt(shape) + "\" (use circle, rectangle or general)");
   }
   return s;
 }
@@ -130,8 +129,8 @@ RotationEnd ReadRotation(const json& j, const std::string& path) {
     } else if (k == "elastic") {
       e.kind = RotationEnd::Kind::kElastic;
     } else {
-      Fail(path,
-           "unknown rotation \"" + k + "\" (use pinned, clamped, elastic or {\"stiffness_nm_per_rad\": k})");
+      Fail(path, "unknown rotation \"" + Excerpt(k) +
+                     "\" (use pinned, clamped, elastic or {\"stiffness_nm_per_rad\": k})");
     }
     return e;
   }
@@ -159,7 +158,7 @@ AxialEnds ReadAxial(const json& j, const std::string& path) {
     } else if (k == "free") {
       a.kind = AxialEnds::Kind::kFree;
     } else {
-      Fail(path, "unknown axial end \"" + k + "\" (use fixed, free or {\"stiffness_n_per_m\": k})");
+      Fail(path, "unknown axial end \"" + Excerpt(k) + "\" (use fixed, free or {\"stiffness_n_per_m\": k})");
     }
     return a;
   }
@@ -197,6 +196,63 @@ void ReadCalibration(const json& s, const std::string& path, model::Sensor* sens
   }
 }
 
+// Values that pass the format's types but describe no member this service
+// can monitor: refused with the path, so that a typo (a diameter in mm
+// given as m, a modulus with three extra zeros) is not stored.
+void CheckPlausible(const Member& m, const MemberReadOptions& options) {
+  if (m.length_m > kMaxLength_m) {
+    Fail("$.length_m", "= " + Fmt(m.length_m) + ": longer than " + Fmt(kMaxLength_m) + " m");
+  }
+  if (m.elastic_modulus_pa < kMinElasticModulus_pa || m.elastic_modulus_pa > kMaxElasticModulus_pa) {
+    Fail("$.material.elastic_modulus_pa", "= " + Fmt(m.elastic_modulus_pa) + ": outside " +
+                                              Fmt(kMinElasticModulus_pa) + ".." + Fmt(kMaxElasticModulus_pa) +
+                                              " Pa (structural materials)");
+  }
+  if (m.density_kg_m3 < kMinDensity_kg_m3 || m.density_kg_m3 > kMaxDensity_kg_m3) {
+    Fail("$.material.density_kg_m3", "= " + Fmt(m.density_kg_m3) + ": outside " + Fmt(kMinDensity_kg_m3) +
+                                         ".." + Fmt(kMaxDensity_kg_m3) + " kg/m3");
+  }
+  // The beam model is for slender members: the section's largest
+  // dimension at most kMaxSectionShareOfLength of the length.
+  const double limit = kMaxSectionShareOfLength * m.length_m;
+  const auto too_big = [&](double value, const char* path) {
+    if (value > limit) {
+      Fail(path, "= " + Fmt(value) + ": more than " + Fmt(kMaxSectionShareOfLength) + " of the length (" +
+                     Fmt(m.length_m) + " m); not a slender member (is the unit m?)");
+    }
+  };
+  switch (m.section.shape) {
+    case Section::Shape::kCircle:
+      too_big(m.section.diameter_m, "$.section.diameter_m");
+      break;
+    case Section::Shape::kRectangle:
+      too_big(m.section.width_m, "$.section.width_m");
+      too_big(m.section.depth_m, "$.section.depth_m");
+      break;
+    case Section::Shape::kGeneral:
+      // A solid square of the same area: its side is the size compared.
+      too_big(std::sqrt(m.section.area_m2), "$.section.area_m2");
+      break;
+  }
+  if (m.sensors.size() > static_cast<std::size_t>(kMaxSensors)) {
+    Fail("$.sensors", std::to_string(m.sensors.size()) + " sensors: at most " + std::to_string(kMaxSensors) +
+                          " (a record's channel limit)");
+  }
+  if (options.require_sensors && m.sensors.empty()) {
+    Fail("$.sensors", "at least one sensor is needed to monitor the member");
+  }
+  for (std::size_t a = 0; a < m.sensors.size(); ++a) {
+    for (std::size_t b = 0; b < a; ++b) {
+      if (std::abs(m.sensors[a].position_m - m.sensors[b].position_m) < kMinSensorSpacing_m &&
+          m.sensors[a].direction == m.sensors[b].direction) {
+        Fail("$.sensors[" + std::to_string(a) + "].position_m",
+             "= " + Fmt(m.sensors[a].position_m) + ": the same position and direction as $.sensors[" +
+                 std::to_string(b) + "] (two sensors cannot share one point)");
+      }
+    }
+  }
+}
+
 void ReadMember(const json& j, Member* m, const MemberReadOptions& options) {
   const std::string root = "$";
   RequireObject(j, root);
@@ -206,7 +262,7 @@ void ReadMember(const json& j, Member* m, const MemberReadOptions& options) {
   *m = Member{};
   if (auto it = j.find("id"); it != j.end()) {
     m->id = Str(*it, "$.id");
-    if (!IsToken(m->id, 64, ".-")) Fail("$.id", "\"" + m->id + "\" must match [A-Za-z0-9._-]{1,64}");
+    if (!IsToken(m->id, 64, ".-")) Fail("$.id", "\"" + Excerpt(m->id) + "\" must match [A-Za-z0-9._-]{1,64}");
   } else if (options.require_id) {
     Fail("$.id", "required key is missing");
   }
@@ -249,10 +305,10 @@ void ReadMember(const json& j, Member* m, const MemberReadOptions& options) {
       model::Sensor sensor;
       sensor.channel = Str(Required(s, path, "channel"), path + ".channel");
       if (!IsToken(sensor.channel, 32, "")) {
-        Fail(path + ".channel", "\"" + sensor.channel + "\" must match [A-Za-z0-9_]{1,32}");
+        Fail(path + ".channel", "\"" + Excerpt(sensor.channel) + "\" must match [A-Za-z0-9_]{1,32}");
       }
       if (!seen.insert(sensor.channel).second) {
-        Fail(path + ".channel", "\"" + sensor.channel + "\" is used by an earlier sensor");
+        Fail(path + ".channel", "\"" + Excerpt(sensor.channel) + "\" is used by an earlier sensor");
       }
       sensor.position_m = Number(Required(s, path, "position_m"), path + ".position_m");
       if (!(sensor.position_m > 0.0 && sensor.position_m < m->length_m)) {
@@ -270,7 +326,7 @@ void ReadMember(const json& j, Member* m, const MemberReadOptions& options) {
         } else if (dir == "lateral") {
           sensor.direction = Direction::kLateral;
         } else {
-          Fail(path + ".direction", "unknown direction \"" + dir + "\" (use vertical or lateral)");
+          Fail(path + ".direction", "unknown direction \"" + Excerpt(dir) + "\" (use vertical or lateral)");
         }
       }
       ReadCalibration(s, path, &sensor);
@@ -279,7 +335,12 @@ void ReadMember(const json& j, Member* m, const MemberReadOptions& options) {
   }
   if (auto it = j.find("design_axial_force_n"); it != j.end()) {
     m->design_axial_force_n = Number(*it, "$.design_axial_force_n");
+    if (!(*m->design_axial_force_n > 0.0)) {
+      Fail("$.design_axial_force_n",
+           "= " + Fmt(*m->design_axial_force_n) + ": must be > 0 (the design tension, N)");
+    }
   }
+  if (options.check_plausible) CheckPlausible(*m, options);
 }
 
 }  // namespace
@@ -297,25 +358,7 @@ Status MemberFromJson(const json& j, Member* member, MemberReadOptions options) 
 
 Status ParseMember(const std::string& text, Member* member, MemberReadOptions options) {
   json j;
-  try {
-    j = json::parse(text);
-  } catch (const json::parse_error& e) {
-    // Convert the byte offset to line:column for the person fixing the file.
-    size_t line = 1, col = 1;
-    const size_t stop = std::min(e.byte == 0 ? 0 : e.byte - 1, text.size());
-    for (size_t i = 0; i < stop; ++i) {
-      if (text[i] == '\n') {
-        ++line;
-        col = 1;
-      } else {
-        ++col;
-      }
-    }
-    std::string what = e.what();
-    if (auto p = what.find("syntax error"); p != std::string::npos) what = what.substr(p);
-    return Status::InvalidArgument("line " + std::to_string(line) + ", column " + std::to_string(col) +
-                                   ": not valid JSON (" + what + ")");
-  }
+  if (Status s = ParseJsonBounded(text, &j); !s.ok()) return s;
   return MemberFromJson(j, member, options);
 }
 

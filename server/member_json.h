@@ -16,12 +16,36 @@
 namespace taut::server {
 
 struct MemberReadOptions {
-  bool require_id = false;  // the API requires `id`; the CLI does not
+  bool require_id = false;       // the API requires `id`; the CLI does not
+  bool require_sensors = false;  // the API (monitoring) needs >= 1 sensor
+  // The plausibility bounds below. Off only for descriptions already stored
+  // (accepted under the rules of their day; they are not refused later).
+  bool check_plausible = true;
 };
 
-// Parses `text` (a JSON document) into `member`. On error returns
-// kInvalidArgument with a message as above (JSON syntax errors name the
-// line and column); `member` is then unspecified.
+// How the service reads a description it stored itself.
+inline constexpr MemberReadOptions kStoredMember{.require_id = true, .check_plausible = false};
+
+// Plausibility bounds of a member description (beyond the format's types).
+// Structural materials: timber ~1e10 Pa, aluminium 7e10, steel 2.1e11,
+// carbon fibre composites up to ~4e11 (values of common practice).
+inline constexpr double kMinElasticModulus_pa = 1e9;
+inline constexpr double kMaxElasticModulus_pa = 1e12;
+inline constexpr double kMinDensity_kg_m3 = 100;
+inline constexpr double kMaxDensity_kg_m3 = 25000;
+inline constexpr double kMaxLength_m = 500;
+// Largest section dimension over the length: the Euler-Bernoulli beam the
+// model uses wants slender members (common practice: L/d >= 10; 1/4 only
+// refuses the absurd).
+inline constexpr double kMaxSectionShareOfLength = 0.25;
+// At most one sensor per record channel (estimation::kMaxChannels).
+inline constexpr int kMaxSensors = 64;
+// Two sensors of one direction closer than this are at "one position".
+inline constexpr double kMinSensorSpacing_m = 1e-3;
+
+// Parses `text` (a JSON document, nesting bounded: json_limits.h) into
+// `member`. On error returns kInvalidArgument with a message as above (JSON
+// syntax errors name the line and column); `member` is then unspecified.
 Status ParseMember(const std::string& text, model::Member* member, MemberReadOptions options = {});
 
 // As ParseMember, from an already parsed JSON value.

@@ -78,6 +78,11 @@ void Metrics::RecordWebhookAttempt(bool ok) {
   ++(ok ? webhook_ok_ : webhook_failed_);
 }
 
+void Metrics::RecordConnectionEvent(const std::string& event) {
+  std::lock_guard<std::mutex> lock(mu_);
+  ++connection_events_[event];
+}
+
 std::string Metrics::Render(const std::map<std::string, std::int64_t>& jobs_by_state) const {
   std::lock_guard<std::mutex> lock(mu_);
   std::string out;
@@ -109,6 +114,11 @@ std::string Metrics::Render(const std::map<std::string, std::int64_t>& jobs_by_s
   out += "# TYPE taut_webhook_attempts_total counter\n";
   out += "taut_webhook_attempts_total{outcome=\"ok\"} " + std::to_string(webhook_ok_) + "\n";
   out += "taut_webhook_attempts_total{outcome=\"failed\"} " + std::to_string(webhook_failed_) + "\n";
+  out += "# HELP taut_http_connection_events_total Connections closed before the router saw a request.\n";
+  out += "# TYPE taut_http_connection_events_total counter\n";
+  for (const auto& [event, n] : connection_events_) {
+    out += "taut_http_connection_events_total{event=\"" + Escape(event) + "\"} " + std::to_string(n) + "\n";
+  }
   return out;
 }
 

@@ -38,6 +38,9 @@ class Metrics {
   void RecordIdentify(double seconds, bool ok);
   // One webhook delivery attempt.
   void RecordWebhookAttempt(bool ok);
+  // A connection the router never saw a request of: `event` is a fixed
+  // word ("refused_per_client_cap", "deadline_exceeded").
+  void RecordConnectionEvent(const std::string& event);
 
   // The exposition text. `jobs_by_state` (state name -> count, read from
   // the database by the caller) becomes the gauge taut_jobs{state=...}.
@@ -50,6 +53,7 @@ class Metrics {
   Histogram identify_latency_{{0.05, 0.1, 0.2, 0.5, 1, 2, 5, 10, 30, 60}};
   std::uint64_t identify_ok_ = 0, identify_failed_ = 0;
   std::uint64_t webhook_ok_ = 0, webhook_failed_ = 0;
+  std::map<std::string, std::uint64_t> connection_events_;
 };
 
 }  // namespace taut::server

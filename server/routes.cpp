@@ -11,6 +11,7 @@ void RegisterRoutes(Router& r) {
   RegisterEstimateRoutes(r);
   RegisterAlertRoutes(r);
   RegisterWebhookRoutes(r);
+  RegisterTokenRoutes(r);
   RegisterUiRoutes(r);
 }
 

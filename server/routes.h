@@ -21,6 +21,7 @@ void RegisterRecordRoutes(Router& r);        // routes_records.cpp
 void RegisterEstimateRoutes(Router& r);      // routes_estimates.cpp
 void RegisterAlertRoutes(Router& r);         // routes_alerts.cpp
 void RegisterWebhookRoutes(Router& r);       // routes_webhooks.cpp
+void RegisterTokenRoutes(Router& r);         // routes_tokens.cpp
 void RegisterUiRoutes(Router& r);            // routes_ui.cpp (keep last: "/ui/**")
 
 // The stored description of a member version as the model reads it (500 if

@@ -4,6 +4,7 @@
 #include "server/http_router.h"
 #include "server/iso_time.h"
 #include "server/routes.h"
+#include "server/safe_text.h"
 
 // After Eigen: glibc's <resolv.h>, which httplib pulls in, defines _res.
 #include <httplib.h>
@@ -27,7 +28,7 @@ void ListAlerts(Call& c) {
     } else if (*state == "resolved") {
       filter.state = storage::AlertState::kResolved;
     } else {
-      Fail(400, "bad-request", "state = \"" + *state + "\": must be open, acknowledged or resolved");
+      Fail(400, "bad-request", "state = \"" + Excerpt(*state) + "\": must be open, acknowledged or resolved");
     }
   }
   std::vector<storage::Alert> list;

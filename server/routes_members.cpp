@@ -18,7 +18,7 @@ using storage::StorageStatus;
 
 model::Member StoredDescription(const storage::Member& m) {
   model::Member member;
-  if (Status s = ParseMember(m.description_json, &member, MemberReadOptions{.require_id = true}); !s.ok()) {
+  if (Status s = ParseMember(m.description_json, &member, kStoredMember); !s.ok()) {
     Fail(500, "internal", "stored description of member " + std::to_string(m.id) + ": " + s.message);
   }
   return member;
@@ -45,18 +45,19 @@ json DriftSettingsBody(Call& c, const storage::Member& m) {
 namespace {
 
 // Validates a member description body (docs/FORMATS.md section 1, id required).
-model::Member ParseMemberBody(const httplib::Request& req) {
+model::Member ParseMemberBody(const std::string& body) {
   model::Member member;
-  if (Status s = ParseMember(req.body, &member, MemberReadOptions{.require_id = true}); !s.ok()) {
+  if (Status s = ParseMember(body, &member, MemberReadOptions{.require_id = true, .require_sensors = true});
+      !s.ok()) {
     Fail(422, "unprocessable", s.message);
   }
   return member;
 }
 
 void CreateMember(Call& c) {
-  const model::Member member = ParseMemberBody(c.req);
+  const model::Member member = ParseMemberBody(c.body);
   Id id = 0;
-  Check(c.repo.CreateMember(c.who.organisation_id, c.ids[0], member.id, c.req.body, c.now_unix_ms, &id));
+  Check(c.repo.CreateMember(c.who.organisation_id, c.ids[0], member.id, c.body, c.now_unix_ms, &id));
   storage::Member m;
   Check(c.repo.GetMember(c.who.organisation_id, id, &m));
   SendJson(c.res, 201, MemberJson(m));
@@ -80,20 +81,20 @@ void GetMember(Call& c) {
 
 void GetMemberVersion(Call& c) {
   storage::Member m;
-  Check(c.repo.GetMemberVersion(c.who.organisation_id, c.ids[0], static_cast<int>(c.ids[1]), &m));
+  Check(c.repo.GetMemberVersion(c.who.organisation_id, c.ids[0], c.ids[1], &m));
   SendJson(c.res, 200, MemberJson(m));
 }
 
 void UpdateMember(Call& c) {
   storage::Member current;
   Check(c.repo.GetMember(c.who.organisation_id, c.ids[0], &current));
-  const model::Member member = ParseMemberBody(c.req);
+  const model::Member member = ParseMemberBody(c.body);
   if (member.id != current.external_id) {
     Fail(422, "unprocessable",
          "$.id = \"" + member.id + "\": a member keeps its id (\"" + current.external_id + "\")");
   }
-  int version = 0;
-  Check(c.repo.UpdateMember(c.who.organisation_id, c.ids[0], c.req.body, c.now_unix_ms, &version));
+  std::int64_t version = 0;
+  Check(c.repo.UpdateMember(c.who.organisation_id, c.ids[0], c.body, c.now_unix_ms, &version));
   storage::Member m;
   Check(c.repo.GetMember(c.who.organisation_id, c.ids[0], &m));
   SendJson(c.res, 200, MemberJson(m));
@@ -114,7 +115,7 @@ void PutDriftSettings(Call& c) {
   storage::Member m;
   Check(c.repo.GetMember(c.who.organisation_id, c.ids[0], &m));
   estimation::DriftSettings settings;  // a PUT replaces: absent keys take the defaults
-  if (Status s = DriftSettingsFromJson(ParseBodyJson(c.req), &settings); !s.ok()) {
+  if (Status s = DriftSettingsFromJson(ParseBodyJson(c.body), &settings); !s.ok()) {
     Fail(422, "unprocessable", s.message);
   }
   Check(c.repo.SetDriftSettings(c.who.organisation_id, m.id, DriftSettingsToJson(settings).dump(),

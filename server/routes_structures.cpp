@@ -2,6 +2,8 @@
 #include "server/http_router.h"
 #include "server/routes.h"
 #include "server/row_json.h"
+#include "server/safe_text.h"
+#include "server/service_limits.h"
 
 // After Eigen: glibc's <resolv.h>, which httplib pulls in, defines _res.
 #include <httplib.h>
@@ -15,17 +17,31 @@ using storage::Id;
 using storage::StorageStatus;
 
 void CreateStructure(Call& c) {
-  const json j = ParseBodyJson(c.req);
+  const json j = ParseBodyJson(c.body);
   for (const auto& [key, v] : j.items()) {
     if (key != "name" && key != "description") {
-      Fail(422, "unprocessable", "$." + key + ": unknown key (known: name, description)");
+      Fail(422, "unprocessable", "$." + Excerpt(key, 64) + ": unknown key (known: name, description)");
     }
   }
   if (!j.contains("name") || !j["name"].is_string()) Fail(422, "unprocessable", "$.name: required string");
-  const std::string description = j.value("description", std::string());
+  const std::string name = j["name"].get<std::string>();
+  if (name.empty() || name.size() > kMaxStructureNameLength) {
+    Fail(422, "unprocessable",
+         "$.name: " + std::to_string(name.size()) + " bytes; must be 1.." +
+             std::to_string(kMaxStructureNameLength));
+  }
+  std::string description;
+  if (j.contains("description")) {
+    if (!j["description"].is_string()) Fail(422, "unprocessable", "$.description: must be a string");
+    description = j["description"].get<std::string>();
+    if (description.size() > kMaxStructureDescriptionLength) {
+      Fail(422, "unprocessable",
+           "$.description: " + std::to_string(description.size()) + " bytes; at most " +
+               std::to_string(kMaxStructureDescriptionLength));
+    }
+  }
   Id id = 0;
-  Check(c.repo.CreateStructure(c.who.organisation_id, j["name"].get<std::string>(), description,
-                               c.now_unix_ms, &id));
+  Check(c.repo.CreateStructure(c.who.organisation_id, name, description, c.now_unix_ms, &id));
   storage::Structure s;
   Check(c.repo.GetStructure(c.who.organisation_id, id, &s));
   SendJson(c.res, 201, StructureJson(s));

@@ -3,7 +3,9 @@
 #include "server/http_router.h"
 #include "server/iso_time.h"
 #include "server/routes.h"
+#include "server/safe_text.h"
 #include "server/service_limits.h"
+#include "server/webhook_policy.h"
 
 // After Eigen: glibc's <resolv.h>, which httplib pulls in, defines _res.
 #include <httplib.h>
@@ -17,15 +19,27 @@ using storage::Id;
 using storage::StorageStatus;
 
 void CreateWebhook(Call& c) {
-  const json j = ParseBodyJson(c.req);
+  const json j = ParseBodyJson(c.body);
   for (const auto& [key, v] : j.items()) {
     if (key != "url" && key != "secret")
-      Fail(422, "unprocessable", "$." + key + ": unknown key (known: url, secret)");
+      Fail(422, "unprocessable", "$." + Excerpt(key, 64) + ": unknown key (known: url, secret)");
   }
   if (!j.contains("url") || !j["url"].is_string()) Fail(422, "unprocessable", "$.url: required string");
   const std::string url = j["url"].get<std::string>();
-  if (url.rfind("http://", 0) != 0 && url.rfind("https://", 0) != 0) {
-    Fail(422, "unprocessable", "$.url = \"" + url + "\": must start with http:// or https://");
+  if (url.size() > kMaxWebhookUrlLength) {
+    Fail(422, "unprocessable",
+         "$.url: " + std::to_string(url.size()) + " bytes; at most " + std::to_string(kMaxWebhookUrlLength));
+  }
+  WebhookTarget target;
+  if (Status s = ResolveWebhookTarget(url, c.options.webhook_policy, &target); !s.ok()) {
+    Fail(422, "unprocessable", "$.url = \"" + Excerpt(url) + "\": " + s.message);
+  }
+  std::vector<storage::Webhook> active;
+  Check(c.repo.ListWebhooks(c.who.organisation_id, /*active_only=*/true, &active));
+  if (active.size() >= c.options.max_webhooks_per_organisation) {
+    Fail(422, "unprocessable",
+         "the organisation has " + std::to_string(active.size()) +
+             " active webhooks, the limit (delete one first)");
   }
   std::string secret;
   if (j.contains("secret")) {

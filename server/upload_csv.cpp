@@ -38,7 +38,13 @@ Status ReadUploadedCsv(const std::string& body, const model::Member& member, con
     ro.profile = &profile;
   }
   std::istringstream in(body);
-  return estimation::ParseRecordCsv(in, ro, record);
+  Status s = estimation::ParseRecordCsv(in, ro, record);
+  // A channel that is not a sensor of the member is a rule the upload
+  // breaks, not a malformed file (docs/API.md: 422). The reader reports it
+  // as an invalid argument like any other error, so it is told apart by its
+  // message (record.cpp, the header check).
+  if (!s.ok() && s.message.find("is not a sensor of member") != std::string::npos) *http_status = 422;
+  return s;
 }
 
 std::string JoinReaderNotes(const std::vector<std::string>& notes) {

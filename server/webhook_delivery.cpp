@@ -7,6 +7,7 @@
 #include "server/api_json.h"
 #include "server/hashing.h"
 #include "server/iso_time.h"
+#include "server/webhook_policy.h"
 
 // glibc's <resolv.h>, which httplib pulls in, defines the macro _res (a
 // parameter name inside Eigen): include httplib after anything Eigen.
@@ -33,19 +34,25 @@ void DeliverWebhook(storage::Repository& repo, const storage::Repository::DueDel
     }
   }
   const std::string body = AlertToJson(alert).dump();
-  // "scheme://host[:port]" and the path (CreateWebhook checked the scheme).
-  const auto host_start = d.url.find("://");
-  const auto path_start =
-      host_start == std::string::npos ? std::string::npos : d.url.find('/', host_start + 3);
-  const std::string origin = d.url.substr(0, path_start);
-  const std::string path = path_start == std::string::npos ? "/" : d.url.substr(path_start);
-  httplib::Client client(origin);
+  // The URL is resolved and checked again now (DNS may have changed since
+  // the webhook was created), and the connection goes to the address that
+  // was checked.
+  WebhookTarget target;
+  const Status allowed = ResolveWebhookTarget(d.url, options.webhook_policy, &target);
+  const std::string host_text =
+      target.host.find(':') != std::string::npos ? "[" + target.host + "]" : target.host;
+  httplib::Client client(target.scheme + "://" + host_text + ":" + std::to_string(target.port));
+  client.set_hostname_addr_map({{target.host, target.address}});
   const auto timeout_s = std::chrono::duration_cast<std::chrono::seconds>(options.webhook_timeout).count();
   client.set_connection_timeout(std::max<long>(1, timeout_s), 0);
   client.set_read_timeout(std::max<long>(1, timeout_s), 0);
+  client.set_write_timeout(std::max<long>(1, timeout_s), 0);
   httplib::Headers headers = {{"X-Taut-Signature", "sha256=" + HmacSha256Hex(d.secret, body)},
                               {"X-Taut-Delivery-Attempt", std::to_string(d.attempt)}};
-  if (!client.is_valid()) {
+  const std::string& path = target.path;
+  if (!allowed.ok()) {
+    attempt.error = "refused: " + allowed.message;
+  } else if (!client.is_valid()) {
     attempt.error = "invalid webhook URL " + d.url;
   } else if (auto res = client.Post(path, headers, body, "application/json")) {
     attempt.http_status = res->status;

@@ -1,6 +1,9 @@
 #include "server/worker.h"
 
+#include <atomic>
 #include <iostream>
+#include <map>
+#include <memory>
 
 #include "server/drift_alerts.h"
 #include "server/iso_time.h"
@@ -17,8 +20,9 @@ using storage::StorageStatus;
 
 // Pending drift checks taken per pass (a backlog is worked off in passes).
 constexpr std::size_t kDriftBatch = 64;
-// Deliveries taken per pass of the webhook thread.
-constexpr std::size_t kDeliveryBatch = 32;
+// Deliveries read per pass of the webhook thread (deliveries of
+// organisations still busy are skipped, so the batch is generous).
+constexpr std::size_t kDeliveryBatch = 256;
 
 }  // namespace
 
@@ -95,7 +99,7 @@ struct WorkerPool::Impl {
                 " times (the service stopped while it ran); not retried";
     } else {
       try {
-        failure = RunIdentification(repo, job, &estimate_id, &member_id);
+        failure = RunIdentification(repo, job, &estimate_id, &member_id, options.job_time_limit);
       } catch (const std::exception& e) {
         failure = std::string("internal error: ") + e.what();
       }
@@ -138,24 +142,70 @@ struct WorkerPool::Impl {
 
   // ---- webhooks
 
+  // Deliveries run per organisation, each organisation's on its own thread
+  // (at most kMaxParallelWebhookOrganisations at once): a dead receiver of
+  // one organisation (each attempt waits up to webhook_timeout) delays no
+  // other. An organisation with deliveries in flight is skipped until they
+  // finish, so no delivery is attempted twice at once.
   void WebhookLoop() {
     storage::Database db;
     if (StorageStatus s = db.Open(options.db_path); !s.ok()) {
       return Log("level=error webhooks database: " + s.message);
     }
     storage::Repository repo(db);
+    std::vector<std::pair<std::thread, std::shared_ptr<std::atomic<bool>>>> running;
+    std::map<Id, std::shared_ptr<std::atomic<bool>>> busy;  // organisation -> its thread's done flag
+    auto reap = [&](bool all) {
+      for (auto it = running.begin(); it != running.end();) {
+        if (all || it->second->load()) {
+          it->first.join();
+          it = running.erase(it);
+        } else {
+          ++it;
+        }
+      }
+      for (auto it = busy.begin(); it != busy.end();)
+        it = it->second->load() ? busy.erase(it) : std::next(it);
+    };
     while (!Stopping()) {
+      reap(false);
       std::vector<storage::Repository::DueDelivery> due;
       if (StorageStatus s = repo.DueDeliveries(NowUnixMs(), kDeliveryBatch, &due); !s.ok()) {
         Log("level=error webhooks: " + s.message);
         due.clear();
       }
-      for (const auto& d : due) {
-        if (Stopping()) return;
-        DeliverWebhook(repo, d, options, metrics, [this](const std::string& line) { Log(line); });
+      std::map<Id, std::vector<storage::Repository::DueDelivery>> by_org;
+      for (auto& d : due) {
+        if (!busy.count(d.organisation_id)) by_org[d.organisation_id].push_back(std::move(d));
       }
-      if (!due.empty()) continue;
-      if (!Wait(webhook_cv, webhook_signals, options.poll_interval)) break;
+      for (auto& [org, list] : by_org) {
+        if (static_cast<int>(busy.size()) >= kMaxParallelWebhookOrganisations) break;
+        auto done = std::make_shared<std::atomic<bool>>(false);
+        busy[org] = done;
+        running.emplace_back(std::thread([this, list = std::move(list), done] {
+                               DeliverAll(list);
+                               done->store(true);
+                               SignalWebhooks();
+                             }),
+                             done);
+      }
+      if (!Wait(webhook_cv, webhook_signals,
+                by_org.empty() ? options.poll_interval : std::chrono::milliseconds(0)))
+        break;
+    }
+    reap(true);
+  }
+
+  // One organisation's due deliveries, in order, on a connection of its own.
+  void DeliverAll(const std::vector<storage::Repository::DueDelivery>& list) {
+    storage::Database db;
+    if (StorageStatus s = db.Open(options.db_path); !s.ok()) {
+      return Log("level=error webhooks database: " + s.message);
+    }
+    storage::Repository repo(db);
+    for (const auto& d : list) {
+      if (Stopping()) return;
+      DeliverWebhook(repo, d, options, metrics, [this](const std::string& line) { Log(line); });
     }
   }
 };

@@ -29,6 +29,8 @@
 
 #include "model/status.h"
 #include "server/metrics.h"
+#include "server/service_limits.h"
+#include "server/webhook_policy.h"
 
 namespace taut::server {
 
@@ -46,6 +48,11 @@ struct WorkerOptions {
   // A job claimed this many times without finishing (the process stopped
   // during it each time) fails instead of running again.
   int max_job_attempts = 3;
+  // Wall-time limit of one identification: past it the job fails with that
+  // reason (checked at the identification's progress points and at its end).
+  std::chrono::seconds job_time_limit{kDefaultJobTimeLimit_s};
+  // Where webhooks may point (webhook_policy.h); checked before each delivery.
+  WebhookPolicy webhook_policy;
   // One key=value line per job, alert and delivery. Not owned; may be null.
   std::ostream* log = nullptr;
 };

@@ -128,8 +128,8 @@ Member ReadMember(const Statement& s) {
   m.organisation_id = s.Int64(1);
   m.structure_id = s.Int64(2);
   m.external_id = s.Text(3);
-  m.version = static_cast<int>(s.Int64(4));
-  m.current_version = static_cast<int>(s.Int64(5));
+  m.version = s.Int64(4);
+  m.current_version = s.Int64(5);
   m.description_json = s.Text(6);
   m.created_at_unix_ms = s.Int64(7);
   m.version_created_at_unix_ms = s.Int64(8);
@@ -167,7 +167,7 @@ Estimate ReadEstimate(const Statement& s) {
   e.id = s.Int64(0);
   e.organisation_id = s.Int64(1);
   e.member_id = s.Int64(2);
-  e.member_version = static_cast<int>(s.Int64(3));
+  e.member_version = s.Int64(3);
   e.record_id = s.Int64(4);
   e.job_id = s.OptionalInt64(5);
   e.measured_at_unix_ms = s.Int64(6);
@@ -364,24 +364,38 @@ StorageStatus Repository::CreateToken(Id organisation_id, const NewToken& token,
   });
 }
 
+namespace {
+
+constexpr const char* kTokenColumns =
+    "id, organisation_id, public_id, salt, hash, label, role, created_at_unix_ms, revoked_at_unix_ms";
+
+Token ReadToken(const Statement& r) {
+  Token t;
+  t.id = r.Int64(0);
+  t.organisation_id = r.Int64(1);
+  t.public_id = r.Text(2);
+  t.salt = r.Blob(3);
+  t.hash = r.Blob(4);
+  t.label = r.Text(5);
+  t.role = ParseRole(r.Text(6)).value_or(Role::kRead);
+  t.created_at_unix_ms = r.Int64(7);
+  t.revoked_at_unix_ms = r.OptionalInt64(8);
+  return t;
+}
+
+}  // namespace
+
 StorageStatus Repository::FindToken(std::string_view public_id, Token* out) {
-  Statement s(db_.handle(),
-              "SELECT id, organisation_id, public_id, salt, hash, label, role, created_at_unix_ms, "
-              "revoked_at_unix_ms FROM api_token WHERE public_id = ?1");
+  Statement s(db_.handle(), std::string("SELECT ") + kTokenColumns + " FROM api_token WHERE public_id = ?1");
   s.Bind(1, public_id);
-  return ReadOne(s, "token", [&](const Statement& r) {
-    Token t;
-    t.id = r.Int64(0);
-    t.organisation_id = r.Int64(1);
-    t.public_id = r.Text(2);
-    t.salt = r.Blob(3);
-    t.hash = r.Blob(4);
-    t.label = r.Text(5);
-    t.role = ParseRole(r.Text(6)).value_or(Role::kRead);
-    t.created_at_unix_ms = r.Int64(7);
-    t.revoked_at_unix_ms = r.OptionalInt64(8);
-    *out = std::move(t);
-  });
+  return ReadOne(s, "token", [&](const Statement& r) { *out = ReadToken(r); });
+}
+
+StorageStatus Repository::ListTokens(Id organisation_id, std::vector<Token>* out) {
+  Statement s(db_.handle(), std::string("SELECT ") + kTokenColumns +
+                                " FROM api_token WHERE organisation_id = ?1 ORDER BY id");
+  s.Bind(1, organisation_id);
+  return ReadAll(s, out, ReadToken);
 }
 
 StorageStatus Repository::RevokeToken(Id organisation_id, Id token_id, std::int64_t now_unix_ms) {
@@ -486,7 +500,7 @@ StorageStatus Repository::CreateMember(Id organisation_id, Id structure_id, std:
 }
 
 StorageStatus Repository::UpdateMember(Id organisation_id, Id member_id, std::string_view description_json,
-                                       std::int64_t now_unix_ms, int* new_version) {
+                                       std::int64_t now_unix_ms, std::int64_t* new_version) {
   return Write([&]() -> StorageStatus {
     if (StorageStatus f = Fault(); !f.ok()) return f;
     Statement bump(db_.handle(),
@@ -494,9 +508,9 @@ StorageStatus Repository::UpdateMember(Id organisation_id, Id member_id, std::st
                    "WHERE id = ?1 AND organisation_id = ?2 AND deleted_at_unix_ms IS NULL "
                    "RETURNING current_version");
     bump.Bind(1, member_id).Bind(2, organisation_id);
-    int version = 0;
-    if (StorageStatus r = ReadOne(bump, IdText("member", member_id),
-                                  [&](const Statement& row) { version = static_cast<int>(row.Int64(0)); });
+    std::int64_t version = 0;
+    if (StorageStatus r =
+            ReadOne(bump, IdText("member", member_id), [&](const Statement& row) { version = row.Int64(0); });
         !r.ok()) {
       return r;
     }
@@ -505,10 +519,7 @@ StorageStatus Repository::UpdateMember(Id organisation_id, Id member_id, std::st
     Statement v(db_.handle(),
                 "INSERT INTO member_version (member_id, version, description_json, created_at_unix_ms) "
                 "VALUES (?1, ?2, ?3, ?4)");
-    v.Bind(1, member_id)
-        .Bind(2, static_cast<std::int64_t>(version))
-        .Bind(3, description_json)
-        .Bind(4, now_unix_ms);
+    v.Bind(1, member_id).Bind(2, version).Bind(3, description_json).Bind(4, now_unix_ms);
     if (StorageStatus r = v.Run(); !r.ok()) return r;
     *new_version = version;
     return {};
@@ -525,11 +536,12 @@ StorageStatus Repository::GetMember(Id organisation_id, Id member_id, Member* ou
   return ReadOne(s, IdText("member", member_id), [&](const Statement& r) { *out = ReadMember(r); });
 }
 
-StorageStatus Repository::GetMemberVersion(Id organisation_id, Id member_id, int version, Member* out) {
+StorageStatus Repository::GetMemberVersion(Id organisation_id, Id member_id, std::int64_t version,
+                                           Member* out) {
   Statement s(db_.handle(), std::string("SELECT ") + kMemberColumns +
                                 " FROM member m JOIN member_version v ON v.member_id = m.id "
                                 "WHERE m.id = ?1 AND m.organisation_id = ?2 AND v.version = ?3");
-  s.Bind(1, member_id).Bind(2, organisation_id).Bind(3, static_cast<std::int64_t>(version));
+  s.Bind(1, member_id).Bind(2, organisation_id).Bind(3, version);
   return ReadOne(s, IdText("member", member_id) + " version " + std::to_string(version),
                  [&](const Statement& r) { *out = ReadMember(r); });
 }
@@ -666,7 +678,7 @@ StorageStatus Repository::GetRecord(Id organisation_id, Id record_id, Record* ou
     r.id = row.Int64(0);
     r.organisation_id = row.Int64(1);
     r.member_id = row.Int64(2);
-    r.member_version = static_cast<int>(row.Int64(3));
+    r.member_version = row.Int64(3);
     r.recorded_at_unix_ms = row.Int64(4);
     r.temperature_c = row.OptionalDouble(5);
     r.units = row.Text(6);
@@ -715,12 +727,22 @@ StorageStatus Repository::ClaimNextJob(std::int64_t now_unix_ms, Job* out, bool*
   *claimed = false;
   return Write([&]() -> StorageStatus {
     if (StorageStatus f = Fault(); !f.ok()) return f;
-    Statement s(db_.handle(),
-                std::string("UPDATE job SET state = 'running', progress = 0, attempts = attempts + 1, "
-                            "started_at_unix_ms = ?1, finished_at_unix_ms = NULL "
-                            "WHERE id = (SELECT id FROM job WHERE state = 'queued' ORDER BY id LIMIT 1) "
-                            "RETURNING ") +
-                    kJobColumns);
+    Statement s(
+        db_.handle(),
+        std::string("UPDATE job SET state = 'running', progress = 0, attempts = attempts + 1, "
+                    "started_at_unix_ms = ?1, finished_at_unix_ms = NULL "
+                    // Fair between organisations: the oldest queued job of
+                    // the organisation with the fewest running jobs (ties:
+                    // the one whose oldest queued job is oldest), so one
+                    // organisation's backlog delays another's job by at
+                    // most one job.
+                    "WHERE id = (SELECT q.id FROM job q WHERE q.state = 'queued' AND "
+                    "q.organisation_id = (SELECT o.organisation_id FROM job o WHERE o.state = 'queued' "
+                    "GROUP BY o.organisation_id ORDER BY (SELECT COUNT(*) FROM job r WHERE "
+                    "r.state = 'running' AND r.organisation_id = o.organisation_id), MIN(o.id) LIMIT 1) "
+                    "ORDER BY q.id LIMIT 1) "
+                    "RETURNING ") +
+            kJobColumns);
     s.Bind(1, now_unix_ms);
     const int rc = s.Step();
     if (rc == SQLITE_DONE) return {};

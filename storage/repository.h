@@ -80,9 +80,9 @@ struct Member {
   Id id = 0;
   Id organisation_id = 0;
   Id structure_id = 0;
-  std::string external_id;  // the description's "id", 1..64 characters
-  int version = 0;          // the version described by description_json
-  int current_version = 0;  // the newest version of the member
+  std::string external_id;           // the description's "id", 1..64 characters
+  std::int64_t version = 0;          // the version described by description_json (64-bit)
+  std::int64_t current_version = 0;  // the newest version of the member
   std::string description_json;
   std::int64_t created_at_unix_ms = 0;             // of the member
   std::int64_t version_created_at_unix_ms = 0;     // of this version
@@ -119,7 +119,7 @@ struct Record {
   Id id = 0;
   Id organisation_id = 0;
   Id member_id = 0;
-  int member_version = 0;  // member version current at upload
+  std::int64_t member_version = 0;  // member version current at upload
   std::int64_t recorded_at_unix_ms = 0;
   std::optional<double> temperature_c;
   std::string units, excitation;
@@ -168,7 +168,7 @@ struct Estimate {
   Id id = 0;
   Id organisation_id = 0;
   Id member_id = 0;
-  int member_version = 0;
+  std::int64_t member_version = 0;
   Id record_id = 0;
   std::optional<Id> job_id;
   std::int64_t measured_at_unix_ms = 0;  // the record's recorded_at
@@ -249,6 +249,9 @@ class Repository {
   // the organisation. Revoked tokens are returned (with the revocation
   // time) so the caller can refuse them explicitly.
   StorageStatus FindToken(std::string_view public_id, Token* out);
+  // The organisation's tokens, revoked ones included, by id.
+  StorageStatus ListTokens(Id organisation_id, std::vector<Token>* out);
+  // Idempotent: revoking a revoked token keeps its first revocation time.
   StorageStatus RevokeToken(Id organisation_id, Id token_id, std::int64_t now_unix_ms);
 
   // --- structures -------------------------------------------------------
@@ -267,10 +270,10 @@ class Repository {
   // Stores `description_json` as version current+1 and makes it current;
   // earlier versions stay readable (estimates keep the version they used).
   StorageStatus UpdateMember(Id organisation_id, Id member_id, std::string_view description_json,
-                             std::int64_t now_unix_ms, int* new_version);
+                             std::int64_t now_unix_ms, std::int64_t* new_version);
   StorageStatus GetMember(Id organisation_id, Id member_id, Member* out);  // current version, not deleted
   // Any version, also of a deleted member (history).
-  StorageStatus GetMemberVersion(Id organisation_id, Id member_id, int version, Member* out);
+  StorageStatus GetMemberVersion(Id organisation_id, Id member_id, std::int64_t version, Member* out);
   StorageStatus ListMembers(Id organisation_id, Id structure_id, std::vector<Member>* out);  // live, by id
   StorageStatus DeleteMember(Id organisation_id, Id member_id, std::int64_t now_unix_ms);
 
@@ -289,8 +292,10 @@ class Repository {
   StorageStatus GetJobForRecord(Id organisation_id, Id record_id, Job* out);
 
   // Worker side (unscoped: the worker pool serves every organisation).
-  // Atomically moves the oldest queued job to running (attempts + 1,
-  // progress 0); *claimed = false if the queue is empty. Two workers never
+  // Atomically moves a queued job to running (attempts + 1, progress 0):
+  // the oldest of the organisation with the fewest running jobs (fair
+  // claiming: one organisation's backlog cannot starve another's);
+  // *claimed = false if the queue is empty. Two workers never
   // claim the same job: the claim is one UPDATE under the write lock.
   StorageStatus ClaimNextJob(std::int64_t now_unix_ms, Job* out, bool* claimed);
   // progress in [0, 1]; the job must be running.

@@ -326,8 +326,12 @@ TEST(RecordDialects, UnitsAndCalibrationToThePrintedPrecision) {
 // construction: same samples, same rate). Tolerance: the rate of the 1 ms
 // stamps is off by at most 2.5e-5 relative (above), which moves every
 // frequency by that share and N = 4 m L^2 f^2 (taut string, Irvine 1981)
-// by 5e-5 relative = 0.6 N at 12 kN; the mV values by 5e-9 relative. 2 N
-// covers both, well below the estimate's own std.
+// by 5e-5 relative = 0.6 N at 12 kN; the mV values by 5e-9 relative. On
+// top of that each fit stops where Ceres' function tolerance (1e-6 relative
+// change of the cost, its default) is met, a few thousandths of a standard
+// deviation from the exact minimum, and the multi-start search may stop on
+// either side of it: 2 % of the estimate's std covers both, far below the
+// std itself.
 TEST(RecordDialects, SameEstimate) {
   const Canon& c = C();
   Record canon, iso, mv;
@@ -347,12 +351,14 @@ TEST(RecordDialects, SameEstimate) {
   ASSERT_TRUE(IdentifyRecord(c.member, canon, {}, &e0).ok());
   ASSERT_TRUE(IdentifyRecord(c.member, iso, {}, &e1).ok());
   ASSERT_TRUE(IdentifyRecord(c.member, mv, {}, &e2).ok());
-  EXPECT_NEAR(e1.axial_force_n.value, e0.axial_force_n.value, 2.0);
-  EXPECT_NEAR(e2.axial_force_n.value, e0.axial_force_n.value, 2.0);
-  EXPECT_LT(2.0, e0.axial_force_n.std);
-  // EI scales with f^2 too: 5e-5 relative, doubled.
+  const double tol_n = 2.0 + 0.02 * e0.axial_force_n.std;
+  EXPECT_NEAR(e1.axial_force_n.value, e0.axial_force_n.value, tol_n);
+  EXPECT_NEAR(e2.axial_force_n.value, e0.axial_force_n.value, tol_n);
+  EXPECT_LT(tol_n, 0.05 * e0.axial_force_n.std);
+  // EI scales with f^2 too: 5e-5 relative, doubled, plus the same stopping
+  // allowance.
   EXPECT_NEAR(e1.bending_stiffness_nm2.value, e0.bending_stiffness_nm2.value,
-              1e-4 * e0.bending_stiffness_nm2.value);
+              1e-4 * e0.bending_stiffness_nm2.value + 0.02 * e0.bending_stiffness_nm2.std);
 }
 
 TEST(RecordDialects, BrokenAndAmbiguousFilesNameLineColumnAndCandidates) {

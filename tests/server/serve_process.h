@@ -1,8 +1,9 @@
-// Test helper: the real `taut serve` executable (TAUT_BINARY_PATH) as a
-// child process on a loopback port with a real SQLite file. Readiness: the
-// child prints its bound port once it listens (cpp-httplib test/test.cc
-// style: ephemeral port, wait until ready, stop and reap); every wait is
-// bounded.
+// `taut serve` as a child process for the service tests (test_service,
+// test_hostile_clients, test_cli_upload) on a loopback port with a real
+// SQLite file. TAUT_BINARY_PATH is set by tests/CMakeLists.txt. Readiness:
+// the child prints its bound port once it listens; every wait is bounded.
+// `listen` is HOST:PORT ("127.0.0.1:0" picks a free port; a restart passes
+// the port the first start got).
 #pragma once
 
 #include <fcntl.h>
@@ -15,8 +16,9 @@
 #include <cstring>
 #include <string>
 #include <thread>
+#include <vector>
 
-namespace taut::server {
+namespace taut::testing {
 
 // `taut serve` as a child process; stdout is read for the bound port.
 class ServeProcess {
@@ -25,10 +27,8 @@ class ServeProcess {
 
   // Starts the child and waits (at most 60 s) until it listens. Returns the
   // port, or 0 on failure.
-  // `listen` is HOST:PORT ("127.0.0.1:0" picks a free port; a restart
-  // passes the port the first start got).
   int Start(const std::string& db, const std::string& log, int workers,
-            const std::string& listen = "127.0.0.1:0") {
+            const std::vector<std::string>& extra_args = {}, const std::string& listen = "127.0.0.1:0") {
     int out[2];
     if (pipe(out) != 0) return 0;
     pid_ = fork();
@@ -37,9 +37,13 @@ class ServeProcess {
       const int err = ::open(log.c_str(), O_WRONLY | O_CREAT | O_APPEND, 0644);
       if (err >= 0) dup2(err, STDERR_FILENO);
       close(out[0]);
-      const std::string w = std::to_string(workers);
-      execl(TAUT_BINARY_PATH, TAUT_BINARY_PATH, "serve", "--db", db.c_str(), "--listen", listen.c_str(),
-            "--workers", w.c_str(), static_cast<char*>(nullptr));
+      std::vector<std::string> args = {TAUT_BINARY_PATH, "serve", "--db",      db,
+                                       "--listen",       listen,  "--workers", std::to_string(workers)};
+      args.insert(args.end(), extra_args.begin(), extra_args.end());
+      std::vector<char*> argv;
+      for (auto& a : args) argv.push_back(a.data());
+      argv.push_back(nullptr);
+      execv(TAUT_BINARY_PATH, argv.data());
       _exit(127);
     }
     close(out[1]);
@@ -65,6 +69,8 @@ class ServeProcess {
     return port;
   }
 
+  pid_t pid() const { return pid_; }
+
   // Sends `sig` without reaping (SIGSTOP / SIGCONT).
   void Signal(int sig) {
     if (pid_ > 0) ::kill(pid_, sig);
@@ -87,4 +93,4 @@ class ServeProcess {
   std::thread reader_;
 };
 
-}  // namespace taut::server
+}  // namespace taut::testing

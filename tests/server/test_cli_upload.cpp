@@ -35,6 +35,7 @@ namespace {
 
 using nlohmann::json;
 using namespace std::chrono_literals;
+using taut::testing::ServeProcess;
 
 std::string ReadFile(const std::string& path) {
   std::ifstream in(path, std::ios::binary);
@@ -183,7 +184,7 @@ TEST_F(CliUpload, TwentyFilesOneBrokenServerRestartedMidRun) {
   ::kill(upload, SIGCONT);
   std::this_thread::sleep_for(1500ms);
   ServeProcess again;
-  ASSERT_EQ(again.Start(db, (dir / "serve2.log").string(), 1, "127.0.0.1:" + std::to_string(port)), port);
+  ASSERT_EQ(again.Start(db, (dir / "serve2.log").string(), 1, {}, "127.0.0.1:" + std::to_string(port)), port);
   int status = 0;
   for (int i = 0; i < 1200 && waitpid(upload, &status, WNOHANG) == 0; ++i) std::this_thread::sleep_for(50ms);
   ASSERT_TRUE(WIFEXITED(status)) << "taut upload did not finish within 60 s";

@@ -14,16 +14,19 @@
 #include <cmath>
 #include <filesystem>
 #include <fstream>
+#include <functional>
 #include <nlohmann/json.hpp>
 #include <set>
 #include <sstream>
 #include <thread>
 
+#include "raw_http.h"
 #include "server/auth.h"
 #include "server/hashing.h"
 #include "server/http_api.h"
 #include "server/iso_time.h"
 #include "server/member_json.h"
+#include "server/webhook_policy.h"
 #include "storage/migrations.h"
 #include "storage/repository.h"
 #include "synthetic_record.h"
@@ -89,12 +92,13 @@ class HttpApiTest : public ::testing::Test {
     std::filesystem::remove_all(dir_);
   }
 
-  void StartServer(std::size_t max_body) {
+  void StartServer(std::size_t max_body, const std::function<void(ServeOptions&)>& configure = {}) {
     server_.reset();
     ServeOptions o;
     o.db_path = db_path_;
     o.max_body_bytes = max_body;
     o.on_job_queued = [this] { ++queued_; };
+    if (configure) configure(o);
     server_ = std::make_unique<ApiServer>(o);
     ASSERT_TRUE(server_->Start().ok());
   }
@@ -311,7 +315,7 @@ TEST_F(HttpApiTest, EveryReaderErrorIsA4xxWithItsMessage) {
   std::string renamed = csv;
   renamed.replace(renamed.find(",v2"), 3, ",v9");
   r = c.Post(path, renamed, "text/csv");
-  EXPECT_EQ(r->status, 400);
+  EXPECT_EQ(r->status, 422);  // a rule, not a malformed file (docs/API.md)
   EXPECT_NE(r->body.find("v9"), std::string::npos) << r->body;
   // Too short (docs/FORMATS.md: at least 10 s).
   r = c.Post(path, SyntheticCsv(dir_.string(), 7, 5.0), "text/csv");
@@ -474,6 +478,334 @@ TEST(IsoTime, RoundTripsAppliesOffsetsAndRefusesImpossibleTimes) {
                           "20261120", "2026-11-20T10:00Z", ""}) {
     EXPECT_FALSE(ParseIsoUtc(bad, &ms)) << bad;
   }
+}
+
+// Issue 13 item 1: a body nested 100,000 levels deep killed the process by
+// stack overflow (the error path printed the value recursively). Now it is
+// refused before a value is built, and values echoed in errors are bounded.
+TEST_F(HttpApiTest, DeeplyNestedJsonIsRefusedAndEchoedValuesAreBounded) {
+  CreateMember();
+  const std::string deep = std::string(100000, '[') + std::string(100000, ']');
+  auto c = Client(admin_a_);
+  const std::string members = "/v1/structures/" + std::to_string(structure_id_) + "/members";
+  json nested = json::parse(member_text_);
+  std::string text = nested.dump();
+  text.insert(text.size() - 1, ", \"extra\": " + deep);
+  auto r = c.Post(members, text, "application/json");
+  ASSERT_TRUE(r) << "the server died";
+  EXPECT_EQ(r->status, 422) << r->body;
+  EXPECT_NE(json::parse(r->body)["error"]["message"].get<std::string>().find("nested deeper than 64"),
+            std::string::npos)
+      << r->body;
+  auto s = c.Post("/v1/structures", deep, "application/json");
+  ASSERT_TRUE(s);
+  EXPECT_EQ(s->status, 400) << s->body;
+  // A 1 MB id and a 1 MB unknown key: the message quotes at most 80 bytes of each.
+  nested["id"] = std::string(1 << 20, 'x');
+  auto big_id = c.Post(members, nested.dump(), "application/json");
+  EXPECT_EQ(big_id->status, 422);
+  EXPECT_LT(big_id->body.size(), 400u) << big_id->body.substr(0, 200);
+  json keyed = json::parse(member_text_);
+  keyed[std::string(1 << 20, 'k')] = 1;
+  auto big_key = c.Post(members, keyed.dump(), "application/json");
+  EXPECT_EQ(big_key->status, 422);
+  EXPECT_LT(big_key->body.size(), 400u) << big_key->body.substr(0, 200);
+  // Still serving.
+  EXPECT_EQ(Client("").Get("/v1/health")->status, 200);
+}
+
+// The same file through `taut identify --member` exited 139 (SIGSEGV).
+TEST_F(HttpApiTest, DeeplyNestedMemberFileIsAnErrorOfTheCli) {
+  const std::string path = (dir_ / "deep.json").string();
+  {
+    std::ofstream out(path);
+    out << std::string(100000, '[') << std::string(100000, ']');
+  }
+  const std::string record = (dir_ / "record.csv").string();
+  {
+    std::ofstream out(record);
+    out << SyntheticCsv(dir_.string(), 9);
+  }
+  const std::string cmd = std::string(TAUT_BINARY_PATH) + " identify --member " + path + " --record " +
+                          record + " > " + (dir_ / "out.txt").string() + " 2>&1";
+  const int status = std::system(cmd.c_str());
+  ASSERT_TRUE(WIFEXITED(status)) << "killed by a signal";
+  EXPECT_NE(WEXITSTATUS(status), 0);
+  EXPECT_NE(ReadFile((dir_ / "out.txt").string()).find("nested deeper than 64"), std::string::npos);
+}
+
+// Issue 13 item 3: the token is checked before any body byte is read, and a
+// chunked body is refused as it streams past --max-body.
+TEST_F(HttpApiTest, TokenIsCheckedBeforeTheBodyAndChunkedBodiesStopAtMaxBody) {
+  StartServer(1u << 20);  // 1 MiB
+  const auto member = CreateMember();
+  const std::string path = "/v1/members/" + std::to_string(member) + "/records";
+  // Headers only, no token: answered at once although no body byte was sent.
+  int fd = taut::testing::ConnectFrom("127.0.0.1", server_->port());
+  ASSERT_GE(fd, 0);
+  ASSERT_TRUE(taut::testing::SendAll(
+      fd, "POST " + path +
+              " HTTP/1.1\r\nHost: t\r\nContent-Type: text/csv\r\nTransfer-Encoding: chunked\r\n\r\n"));
+  std::string answer = taut::testing::ReadUntilClosed(fd, std::chrono::seconds(5));
+  ::close(fd);
+  EXPECT_EQ(taut::testing::StatusOf(answer), 401) << answer;
+  // 300 MB announced, no token: 413 from the headers alone.
+  fd = taut::testing::ConnectFrom("127.0.0.1", server_->port());
+  ASSERT_TRUE(taut::testing::SendAll(
+      fd, "POST " + path + " HTTP/1.1\r\nHost: t\r\nContent-Length: 300000000\r\n\r\n"));
+  answer = taut::testing::ReadUntilClosed(fd, std::chrono::seconds(5));
+  ::close(fd);
+  EXPECT_EQ(taut::testing::StatusOf(answer), 413) << answer;
+  // With a token: 64 KiB chunks until the server answers; 413 after about
+  // 1 MiB, long before the 8 MiB the client would send.
+  fd = taut::testing::ConnectFrom("127.0.0.1", server_->port());
+  ASSERT_TRUE(taut::testing::SendAll(
+      fd, "POST " + path + " HTTP/1.1\r\nHost: t\r\nAuthorization: Bearer " + upload_a_ +
+              "\r\nContent-Type: text/csv\r\nTransfer-Encoding: chunked\r\n\r\n"));
+  const std::string chunk = "10000\r\n" + std::string(0x10000, '1') + "\r\n";
+  int sent = 0;
+  while (sent < 128 && taut::testing::SendAll(fd, chunk)) {
+    ++sent;
+    pollfd p{fd, POLLIN, 0};
+    if (::poll(&p, 1, 0) > 0) break;  // the answer is there
+  }
+  answer = taut::testing::ReadUntilClosed(fd, std::chrono::seconds(5));
+  ::close(fd);
+  EXPECT_EQ(taut::testing::StatusOf(answer), 413) << answer.substr(0, 300);
+  EXPECT_LT(sent, 128);
+  // A POST without Content-Length or chunked encoding: 411 (it used to be
+  // read until the client closed).
+  fd = taut::testing::ConnectFrom("127.0.0.1", server_->port());
+  ASSERT_TRUE(taut::testing::SendAll(fd, "POST " + path + " HTTP/1.1\r\nHost: t\r\n\r\n"));
+  answer = taut::testing::ReadUntilClosed(fd, std::chrono::seconds(5));
+  ::close(fd);
+  EXPECT_EQ(taut::testing::StatusOf(answer), 411) << answer;
+}
+
+// Issue 13 item 2: a client sending a header byte now and then is cut off
+// at the header deadline and counted.
+TEST_F(HttpApiTest, SlowHeadersAreCutAtTheHeaderDeadline) {
+  StartServer(1u << 20, [](ServeOptions& o) { o.header_deadline_s = 1; });
+  const int fd = taut::testing::ConnectFrom("127.0.0.1", server_->port());
+  ASSERT_GE(fd, 0);
+  const auto t0 = std::chrono::steady_clock::now();
+  bool alive = taut::testing::SendAll(fd, "GET /v1/health HTTP/1.1\r\n");
+  // One byte every 200 ms, for at most 5 s.
+  bool closed = false;
+  while (alive && std::chrono::steady_clock::now() - t0 < std::chrono::seconds(5)) {
+    alive = taut::testing::SendAll(fd, "X");
+    taut::testing::ReadUntilClosed(fd, std::chrono::milliseconds(200), &closed);
+    if (closed) break;
+  }
+  const double seconds = std::chrono::duration<double>(std::chrono::steady_clock::now() - t0).count();
+  ::close(fd);
+  EXPECT_TRUE(closed || !alive);
+  // Header deadline 1 s plus at most one 1 s poll slice and this loop's 200 ms step.
+  EXPECT_LT(seconds, 2.5);
+  const std::string metrics = Client("").Get("/metrics")->body;
+  EXPECT_NE(metrics.find("taut_http_connection_events_total{event=\"deadline_exceeded\"} 1"),
+            std::string::npos)
+      << metrics;
+}
+
+// Issue 13 item 11: control characters in a logged path are escaped, and a
+// request the router never sees is logged and counted.
+TEST_F(HttpApiTest, LoggedPathsAreEscapedAndUnroutedRequestsCounted) {
+  std::ostringstream log;
+  StartServer(1u << 20, [&](ServeOptions& o) { o.access_log = &log; });
+  int fd = taut::testing::ConnectFrom("127.0.0.1", server_->port());
+  ASSERT_TRUE(taut::testing::SendAll(
+      fd, "GET /v1/a%0Atime=forged%20status=200 HTTP/1.1\r\nHost: t\r\nConnection: close\r\n\r\n"));
+  EXPECT_EQ(taut::testing::StatusOf(taut::testing::ReadUntilClosed(fd, std::chrono::seconds(5))), 404);
+  ::close(fd);
+  fd = taut::testing::ConnectFrom("127.0.0.1", server_->port());
+  ASSERT_TRUE(taut::testing::SendAll(fd, "\x01\x02 nonsense\r\n\r\n"));
+  EXPECT_EQ(taut::testing::StatusOf(taut::testing::ReadUntilClosed(fd, std::chrono::seconds(5))), 400);
+  ::close(fd);
+  const std::string metrics = Client("").Get("/metrics")->body;
+  EXPECT_NE(metrics.find("route=\"unrouted\",status=\"400\"} 1"), std::string::npos) << metrics;
+  server_.reset();  // joins the threads that write the log
+  const std::string text = log.str();
+  EXPECT_NE(text.find("path=/v1/a\\x0atime=forged\\x20status=200"), std::string::npos) << text;
+  EXPECT_EQ(text.find("\ntime=forged"), std::string::npos) << text;
+  EXPECT_NE(text.find("route=unrouted status=400"), std::string::npos) << text;
+}
+
+// Issue 13 item 7: the same body with other overrides is another record,
+// not a duplicate that silently drops them; the same key with other
+// metadata is a conflict.
+TEST_F(HttpApiTest, ReuploadWithOtherOverridesIsANewRecordAndTheSameKeyWithThemIs409) {
+  const auto member = CreateMember();
+  const std::string path = "/v1/members/" + std::to_string(member) + "/records";
+  const std::string csv = SyntheticCsv(dir_.string(), 21);
+  auto c = Client(upload_a_);
+  auto first = c.Post(path, csv, "text/csv");
+  ASSERT_EQ(first->status, 202) << first->body;
+  EXPECT_EQ(c.Post(path, csv, "text/csv")->status, 200);  // a true duplicate
+  auto warmer = c.Post(path + "?temperature_c=5", csv, "text/csv");
+  ASSERT_EQ(warmer->status, 202) << warmer->body;
+  const auto id = json::parse(warmer->body)["record_id"].get<std::int64_t>();
+  EXPECT_NE(id, json::parse(first->body)["record_id"].get<std::int64_t>());
+  EXPECT_EQ(json::parse(c.Get("/v1/records/" + std::to_string(id))->body)["temperature_c"], 5.0);
+  EXPECT_EQ(c.Post(path + "?temperature_c=5", csv, "text/csv")->status, 200);
+  // The same key, same body, other units: 409.
+  const std::string other = SyntheticCsv(dir_.string(), 22);
+  httplib::Headers key = {{"Idempotency-Key", "gw-7-0001"}};
+  EXPECT_EQ(c.Post(path, key, other, "text/csv")->status, 202);
+  EXPECT_EQ(c.Post(path, key, other, "text/csv")->status, 200);
+  auto conflict = c.Post(path + "?units=g", key, other, "text/csv");
+  EXPECT_EQ(conflict->status, 409) << conflict->body;
+}
+
+// Issue 13 item 8 (JSON path): values binary32 storage cannot hold, and
+// recorded_at outside 1900 .. now + 15 min, are refused with their place.
+TEST_F(HttpApiTest, SampleValuesAndRecordTimesOutOfRangeAre422) {
+  const auto member = CreateMember();
+  const std::string path = "/v1/members/" + std::to_string(member) + "/records";
+  json body = {
+      {"recorded_at", "2026-11-21T08:00:00Z"}, {"sample_rate_hz", 128.0}, {"channels", {"v1", "v2"}}};
+  json rows = json::array();
+  for (int i = 0; i < 128 * 12; ++i) rows.push_back({std::sin(0.3 * i), std::cos(0.17 * i)});
+  body["samples"] = rows;
+  auto c = Client(upload_a_);
+  json huge = body;
+  huge["samples"][7][1] = 1e300;
+  auto r = c.Post(path, huge.dump(), "application/json");
+  EXPECT_EQ(r->status, 422);
+  EXPECT_NE(r->body.find("$.samples[7][1]"), std::string::npos) << r->body;
+  json overflow = body;  // 1e400 is no double at all: a JSON error naming where
+  std::string text = overflow.dump();
+  text.replace(text.find("\"samples\":[[") + 12, 1, "1e400,0");
+  text.erase(text.find(",0", text.find("1e400")) + 2,
+             text.find(']', text.find("1e400")) - text.find(",0", text.find("1e400")) - 2);
+  r = c.Post(path, text, "application/json");
+  EXPECT_EQ(r->status, 400);
+  EXPECT_NE(r->body.find("$.samples[0][0]"), std::string::npos) << r->body;
+  for (const std::string& when :
+       {std::string("1850-06-01T00:00:00Z"), FormatIsoUtc(NowUnixMs() + 86400000)}) {
+    json t = body;
+    t["recorded_at"] = when;
+    r = c.Post(path, t.dump(), "application/json");
+    EXPECT_EQ(r->status, 422) << when;
+    EXPECT_NE(r->body.find("recorded_at"), std::string::npos) << r->body;
+  }
+  EXPECT_EQ(queued_.load(), 0);
+}
+
+// Issue 13 item 9: client mistakes are 422 naming the JSON path, not 500
+// or 409; member descriptions that describe no monitorable member are 422.
+TEST_F(HttpApiTest, ClientMistakesAre422NamingTheJsonPath) {
+  auto c = Client(admin_a_);
+  auto expect = [&](const httplib::Result& r, int status, const std::string& path) {
+    ASSERT_TRUE(r);
+    EXPECT_EQ(r->status, status) << r->body;
+    EXPECT_NE(r->body.find(path), std::string::npos) << path << " not in " << r->body;
+  };
+  expect(c.Post("/v1/structures", R"({"name": "Hall", "description": 7})", "application/json"), 422,
+         "$.description");
+  expect(c.Post("/v1/structures", R"({"name": ""})", "application/json"), 422, "$.name");
+  expect(c.Post("/v1/structures", json{{"name", std::string(201, 'n')}}.dump(), "application/json"), 422,
+         "$.name");
+  expect(c.Post("/v1/webhooks", json{{"url", "https://" + std::string(3000, 'h') + ".example/"}}.dump(),
+                "application/json"),
+         422, "$.url");
+  CreateMember();
+  const std::string members = "/v1/structures/" + std::to_string(structure_id_) + "/members";
+  const json base = json::parse(member_text_);
+  auto with = [&](const std::string& pointer, const json& value) {
+    json m = base;
+    m["id"] = "variant";
+    m[json::json_pointer(pointer)] = value;
+    return m.dump();
+  };
+  expect(c.Post(members, with("/material/elastic_modulus_pa", 1e300), "application/json"), 422,
+         "$.material.elastic_modulus_pa");
+  expect(c.Post(members, with("/section/diameter_m", 100.0), "application/json"), 422,
+         "$.section.diameter_m");
+  expect(c.Post(members, with("/sensors", json::array()), "application/json"), 422, "$.sensors");
+  expect(c.Post(members, with("/sensors/1/position_m", base["sensors"][0]["position_m"]), "application/json"),
+         422, "$.sensors[1].position_m");
+  expect(c.Post(members, with("/design_axial_force_n", 0), "application/json"), 422,
+         "$.design_axial_force_n");
+  json many = base;
+  many["id"] = "many";
+  many["sensors"] = json::array();
+  for (int i = 0; i < 65; ++i) {
+    many["sensors"].push_back({{"channel", "c" + std::to_string(i)}, {"position_m", 0.05 + 0.08 * i}});
+  }
+  expect(c.Post(members, many.dump(), "application/json"), 422, "$.sensors");
+  std::string overflow = with("/length_m", 5.8);
+  overflow.replace(overflow.find("5.8"), 3, "1e400");
+  expect(c.Post(members, overflow, "application/json"), 422, "$.length_m");
+  // Versions are 64-bit: 2^32 + 1 is not version 1.
+  expect(c.Get("/v1/members/" +
+               std::to_string(json::parse(c.Get(members)->body)["members"][0]["id"].get<int>()) +
+               "/versions/4294967297"),
+         404, "version 4294967297");
+}
+
+// Issue 13 item 6: webhooks may not point into the service's own network.
+TEST_F(HttpApiTest, WebhooksToNonPublicAddressesAreRefused) {
+  auto c = Client(admin_a_);
+  for (const char* url : {"http://127.0.0.1:22/", "http://0.0.0.0:8080/", "http://2130706433:80/",
+                          "http://[::1]/", "http://169.254.169.254/latest/meta-data/", "http://10.1.2.3/",
+                          "http://[::ffff:127.0.0.1]/", "http://localhost:9/"}) {
+    auto r = c.Post("/v1/webhooks", json{{"url", url}}.dump(), "application/json");
+    ASSERT_TRUE(r);
+    EXPECT_EQ(r->status, 422) << url << ": " << r->body;
+  }
+  // Allowed when the operator says so.
+  Cidr ten;
+  ASSERT_TRUE(ParseCidr("10.0.0.0/8", &ten));
+  StartServer(64u << 20, [&](ServeOptions& o) {
+    o.webhook_policy.allow.push_back(ten);
+    o.max_webhooks_per_organisation = 2;
+  });
+  auto d = Client(admin_a_);
+  EXPECT_EQ(d.Post("/v1/webhooks", R"({"url": "http://10.1.2.3/a"})", "application/json")->status, 201);
+  EXPECT_EQ(d.Post("/v1/webhooks", R"({"url": "http://127.0.0.1/a"})", "application/json")->status, 422);
+  EXPECT_EQ(d.Post("/v1/webhooks", R"({"url": "http://10.1.2.4/b"})", "application/json")->status, 201);
+  auto third = d.Post("/v1/webhooks", R"({"url": "http://10.1.2.5/c"})", "application/json");
+  EXPECT_EQ(third->status, 422) << "per-organisation limit";
+}
+
+// Issue 13 item 10: an admin lists and revokes the organisation's tokens.
+TEST_F(HttpApiTest, TokensAreListedAndRevokedByAnAdmin) {
+  auto c = Client(admin_a_);
+  EXPECT_EQ(Client(read_a_).Get("/v1/tokens")->status, 403);
+  const json list = json::parse(c.Get("/v1/tokens")->body)["tokens"];
+  ASSERT_EQ(list.size(), 3u);  // org A's admin, gateway and viewer; not org B's
+  std::int64_t viewer = 0;
+  for (const auto& t : list) {
+    EXPECT_FALSE(t.contains("hash"));
+    EXPECT_FALSE(t.contains("salt"));
+    if (t["label"] == "a viewer") viewer = t["id"].get<std::int64_t>();
+  }
+  ASSERT_NE(viewer, 0);
+  EXPECT_EQ(Client(read_a_).Get("/v1/me")->status, 200);
+  EXPECT_EQ(Client(admin_b_).Delete("/v1/tokens/" + std::to_string(viewer))->status, 404);
+  EXPECT_EQ(c.Delete("/v1/tokens/" + std::to_string(viewer))->status, 204);
+  EXPECT_EQ(Client(read_a_).Get("/v1/me")->status, 401);
+  EXPECT_FALSE(json::parse(c.Get("/v1/tokens")->body)["tokens"][2]["revoked_at"].is_null());
+  // The same from the command line: taut token list / revoke.
+  auto run = [&](const std::string& args) {
+    const std::string out = (dir_ / "cli.txt").string();
+    const int status =
+        std::system((std::string(TAUT_BINARY_PATH) + " token " + args + " > " + out + " 2>&1").c_str());
+    EXPECT_TRUE(WIFEXITED(status) && WEXITSTATUS(status) == 0) << args << ": " << ReadFile(out);
+    return ReadFile(out);
+  };
+  const std::string listed = run("list --db " + db_path_ + " --org org-a");
+  EXPECT_NE(listed.find("a gateway"), std::string::npos) << listed;
+  EXPECT_EQ(listed.find("b admin"), std::string::npos) << listed;
+  std::int64_t gateway = 0;
+  const json tokens = json::parse(c.Get("/v1/tokens")->body)["tokens"];
+  for (const auto& t : tokens) {
+    if (t["label"] == "a gateway") gateway = t["id"].get<std::int64_t>();
+  }
+  EXPECT_EQ(Client(upload_a_).Get("/v1/me")->status, 200);
+  run("revoke --db " + db_path_ + " --org org-a --id " + std::to_string(gateway));
+  EXPECT_EQ(Client(upload_a_).Get("/v1/me")->status, 401);
 }
 
 }  // namespace

@@ -29,10 +29,13 @@
 #include <sstream>
 #include <thread>
 
+#include "estimation/record.h"
 #include "model/ambient_synthesis.h"
+#include "serve_process.h"
 #include "server/auth.h"
 #include "server/hashing.h"
 #include "server/iso_time.h"
+#include "server/job_run.h"
 #include "server/member_json.h"
 #include "server/record_csv.h"
 #include "server/worker.h"
@@ -114,7 +117,9 @@ class ServiceTest : public ::testing::Test {
   }
 
   void StartServe(int workers) {
-    port_ = serve_.Start(db_, (dir_ / "serve.log").string(), workers);
+    // The webhook receivers of these tests listen on loopback, which taut
+    // refuses unless allowed (webhook_policy.h).
+    port_ = serve_.Start(db_, (dir_ / "serve.log").string(), workers, {"--webhook-allow", "127.0.0.0/8"});
     ASSERT_GT(port_, 0) << "taut serve did not report a port; see " << (dir_ / "serve.log");
   }
   httplib::Client Client() const {
@@ -159,7 +164,7 @@ class ServiceTest : public ::testing::Test {
 
   std::filesystem::path dir_;
   std::string db_, admin_;
-  ServeProcess serve_;
+  taut::testing::ServeProcess serve_;
   int port_ = 0;
   Hanger hanger_;
 };
@@ -445,6 +450,48 @@ TEST_F(ServiceTest, SigtermFinishesRunningJobsAndExitsCleanly) {
 // 204, gets three attempts; the log (GET /v1/alerts/{id}/deliveries) has
 // all three, the first two with their HTTP status and a next attempt at
 // least the back-off later (first_backoff * 2^(attempt-1), worker.h).
+// Issue 13 item 5: an identification past the job time limit fails with
+// that reason (a limit of 0 s: the first progress point is already late).
+TEST(Jobs, AnIdentificationPastTheTimeLimitFailsWithThatReason) {
+  const auto dir = std::filesystem::temp_directory_path() / ("taut-timelimit-" + std::to_string(::getpid()));
+  std::filesystem::remove_all(dir);
+  std::filesystem::create_directories(dir);
+  storage::Database db;
+  ASSERT_TRUE(storage::OpenAndMigrate(db, (dir / "t.db").string()).ok());
+  storage::Repository repo(db);
+  const Hanger hanger;
+  storage::Id org = 0, structure = 0, member = 0;
+  ASSERT_TRUE(repo.CreateOrganisation("Timing works", 1, &org).ok());
+  ASSERT_TRUE(repo.CreateStructure(org, "Footbridge", "", 1, &structure).ok());
+  ASSERT_TRUE(repo.CreateMember(org, structure, hanger.member.id, hanger.text, 1, &member).ok());
+  const std::string csv = HangerCsv(hanger, 90000, "2026-11-20T06:00:00Z", 8, 3, 30.0);
+  estimation::Record record;
+  std::istringstream in(csv);
+  ASSERT_TRUE(estimation::ParseRecordCsv(in, {}, &record).ok());
+  storage::NewRecord nr;
+  nr.member_id = member;
+  nr.recorded_at_unix_ms = 1;
+  nr.sample_rate_hz = record.sample_rate_hz;
+  nr.channels = record.channels;
+  for (Eigen::Index i = 0; i < record.samples.rows(); ++i) {
+    for (Eigen::Index j = 0; j < record.samples.cols(); ++j) nr.samples.push_back(record.samples(i, j));
+  }
+  nr.content_sha256 = Sha256Hex(csv);
+  nr.samples_sha256 = Sha256Hex(storage::EncodeSamples(nr.samples));
+  storage::RecordInsertResult inserted;
+  ASSERT_TRUE(repo.InsertRecord(org, nr, 2, &inserted).ok());
+  storage::Job job;
+  bool claimed = false;
+  ASSERT_TRUE(repo.ClaimNextJob(3, &job, &claimed).ok());
+  ASSERT_TRUE(claimed);
+  storage::Id estimate = 0, member_id = 0;
+  const std::string reason = RunIdentification(repo, job, &estimate, &member_id, std::chrono::seconds(0));
+  EXPECT_NE(reason.find("job time limit of 0 s"), std::string::npos) << reason;
+  // With time to spare the same job identifies (the limit is the only cause).
+  EXPECT_EQ(RunIdentification(repo, job, &estimate, &member_id, std::chrono::seconds(300)), "");
+  std::filesystem::remove_all(dir);
+}
+
 TEST(Webhooks, FailedDeliveriesAreRetriedWithBackOffAndLogged) {
   const auto dir = std::filesystem::temp_directory_path() / ("taut-webhooks-" + std::to_string(::getpid()));
   std::filesystem::remove_all(dir);
@@ -482,6 +529,9 @@ TEST(Webhooks, FailedDeliveriesAreRetriedWithBackOffAndLogged) {
   wo.workers = 1;
   wo.poll_interval = 20ms;
   wo.webhook_first_backoff = 100ms;
+  Cidr loopback;  // the receivers below listen on loopback (webhook_policy.h)
+  ASSERT_TRUE(ParseCidr("127.0.0.0/8", &loopback));
+  wo.webhook_policy.allow.push_back(loopback);
   WorkerPool pool(wo, nullptr);
   ASSERT_TRUE(pool.Start().ok());
   std::vector<storage::DeliveryAttempt> log;

@@ -104,7 +104,7 @@ TEST_F(FaultTest, MemberCreateAndUpdateFailingAtEachStepWriteNothing) {
   EXPECT_EQ(FailEachStep([&] { return repo_.CreateMember(f_.org, f_.structure, "west-tie-1", "{}", 5, &m); },
                          [] {}),
             3);
-  int v = 0;
+  std::int64_t v = 0;
   EXPECT_EQ(FailEachStep([&] { return repo_.UpdateMember(f_.org, m, R"({"v":2})", 6, &v); },
                          [&] {
                            Member cur;

@@ -86,7 +86,7 @@ TEST_F(RepositoryTest, TokensKeepSaltHashAndRole) {
 
 TEST_F(RepositoryTest, MemberEditsCreateVersionsAndSoftDeleteKeepsHistory) {
   const Fixture f = MakeFixture(repo_, "Kiln Lane Trust");
-  int v = 0;
+  std::int64_t v = 0;
   ASSERT_TRUE(repo_.UpdateMember(f.org, f.member, R"({"id":"east-tie-2","length_m":6.25})", 2000, &v).ok());
   EXPECT_EQ(v, 2);
   Member m;
@@ -176,7 +176,7 @@ TEST_F(RepositoryTest, NoReadReturnsAnotherOrganisationsRows) {
   ASSERT_EQ(structures.size(), 1u);
   EXPECT_EQ(structures[0].id, b.structure);
   // ... and cannot write through them either.
-  int v = 0;
+  std::int64_t v = 0;
   RecordInsertResult ins;
   Id id = 0;
   EXPECT_TRUE(repo_.UpdateMember(b.org, a.member, "{}", 5, &v).not_found());
@@ -325,6 +325,28 @@ TEST_F(RepositoryTest, UploadCostDoesNotGrowWithStoredRecords) {
   sqlite3_progress_handler(db_.handle(), 0, nullptr, nullptr);
   EXPECT_GT(early, 0);
   EXPECT_LT(static_cast<double>(late), 1.25 * static_cast<double>(early)) << early << " -> " << late;
+}
+
+// Issue 13 item 5: one organisation's backlog must not starve another's
+// job. A free worker takes the oldest job of the organisation with the
+// fewest running jobs.
+TEST_F(RepositoryTest, ClaimingIsFairBetweenOrganisations) {
+  const Fixture a = MakeFixture(repo_, "Backlog Estates");
+  const Fixture b = MakeFixture(repo_, "Quiet Lane Trust");
+  std::vector<RecordInsertResult> mass(4);
+  for (int i = 0; i < 4; ++i) {
+    ASSERT_TRUE(repo_.InsertRecord(a.org, SmallRecord(a.member, 10 + i, 100 + i), 1, &mass[i]).ok());
+  }
+  RecordInsertResult single;
+  ASSERT_TRUE(repo_.InsertRecord(b.org, SmallRecord(b.member, 50, 500), 2, &single).ok());
+  Job j;
+  bool claimed = false;
+  ASSERT_TRUE(repo_.ClaimNextJob(10, &j, &claimed).ok());
+  EXPECT_EQ(j.id, mass[0].job_id) << "both idle: the oldest job first";
+  ASSERT_TRUE(repo_.ClaimNextJob(11, &j, &claimed).ok());
+  EXPECT_EQ(j.id, single.job_id) << "A has a job running, B none: B's job next, not A's backlog";
+  ASSERT_TRUE(repo_.ClaimNextJob(12, &j, &claimed).ok());
+  EXPECT_EQ(j.id, mass[1].job_id) << "then A again (both have one running; A's queued job is older)";
 }
 
 TEST_F(RepositoryTest, JobLifeCycleAndRequeue) {
