@@ -15,6 +15,7 @@
 #include <vector>
 
 #include "estimation/record.h"
+#include "server/alert_rules.h"
 #include "server/api_json.h"
 #include "server/auth.h"
 #include "server/dashboard_data.h"
@@ -979,6 +980,7 @@ struct ApiServer::Impl {
         !s.ok()) {
       Fail(500, "internal", "stored drift settings of member " + std::to_string(m.id) + ": " + s.message);
     }
+    Check(ApplyLogbookBaseline(c.repo, c.who.organisation_id, m.id, &settings));
     std::vector<storage::Estimate> all;  // the rules run over the whole series, as the workers do
     Check(c.repo.ForceHistory(c.who.organisation_id, m.id, std::numeric_limits<std::int64_t>::min(),
                               std::numeric_limits<std::int64_t>::max(), &all));

@@ -8,6 +8,7 @@
 
 #include "estimation/drift.h"
 #include "estimation/identify_record.h"
+#include "server/alert_rules.h"
 #include "server/api_json.h"
 #include "server/auth.h"
 #include "server/dashboard_data.h"
@@ -137,8 +138,11 @@ struct WorkerPool::Impl {
       return;
     }
     storage::Repository repo(db);
+    StaleDataWatch stale;  // the stale-data rule runs on worker 0 only
     while (!Stopping()) {
       CatchUpDriftChecks(repo);
+      if (index == 0 && stale.Tick(repo, NowUnixMs(), [this](const std::string& l) { Log(l); }) > 0)
+        SignalWebhooks();
       storage::Job job;
       bool claimed = false;
       if (StorageStatus s = repo.ClaimNextJob(NowUnixMs(), &job, &claimed); !s.ok()) {
@@ -282,6 +286,9 @@ struct WorkerPool::Impl {
         !p.ok()) {
       Log("level=error " + where + " stored settings ignored: " + p.message);
       EffectiveDriftSettings(member, nullptr, plane, &settings);
+    }
+    if (StorageStatus s = ApplyLogbookBaseline(repo, organisation_id, member_id, &settings); !s.ok()) {
+      return Log("level=error " + where + ": " + s.message);
     }
     std::vector<storage::Estimate> history;
     if (StorageStatus s =
