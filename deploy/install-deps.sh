@@ -27,6 +27,7 @@ PACKAGES=(
   clang-format        # style check
   chromium            # tests/ui: the dashboard end to end in a headless browser
   chromium-driver     # tests/ui: WebDriver (plain HTTP + JSON) that drives it
+  poppler-utils       # tests/ui: pdftotext reads the inspection report PDF back
 )
 
 missing=()

@@ -19,6 +19,7 @@ json AlertToJson(const storage::Alert& a) {
             {"member_id", a.member_id},
             {"estimate_id", a.estimate_id ? json(*a.estimate_id) : json(nullptr)},
             {"rule", a.rule},
+            {"tier", estimation::RuleTier(a.rule)},
             {"state", storage::AlertStateName(a.state)},
             {"message", a.message},
             {"evidence", StoredJson(a.evidence)},

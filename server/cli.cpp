@@ -22,6 +22,7 @@ int Main(int argc, const char* const* argv, std::ostream& out, std::ostream& err
   RegisterModalCommand(app, &ctx);
   RegisterServeCommand(app, &ctx);
   RegisterDemoCommand(app, &ctx);
+  RegisterReportCommand(app, &ctx);
   try {
     app.parse(argc, argv);
   } catch (const CLI::CallForHelp&) {

@@ -26,6 +26,7 @@ void RegisterIdentifyCommand(CLI::App& app, CliContext* ctx);
 void RegisterModalCommand(CLI::App& app, CliContext* ctx);
 void RegisterServeCommand(CLI::App& app, CliContext* ctx);  // serve, token create
 void RegisterDemoCommand(CLI::App& app, CliContext* ctx);
+void RegisterReportCommand(CLI::App& app, CliContext* ctx);  // cli_report.cpp
 
 // SIGINT and SIGTERM for a long-running command: BlockStopSignals() before
 // any thread starts (threads inherit the mask, so a stop request never

@@ -3,6 +3,7 @@
 #include <algorithm>
 #include <chrono>
 #include <cmath>
+#include <functional>
 #include <iomanip>
 #include <limits>
 #include <memory>
@@ -19,6 +20,7 @@
 #include "server/api_json.h"
 #include "server/auth.h"
 #include "server/dashboard_data.h"
+#include "server/extra_routes.h"
 #include "server/iso_time.h"
 #include "server/member_json.h"
 #include "server/record_csv.h"
@@ -372,7 +374,8 @@ struct Call {
 }  // namespace
 
 struct ApiServer::Impl {
-  using Handler = void (Impl::*)(Call&);
+  using Handler = std::function<void(Impl&, Call&)>;
+  using Condition = std::function<bool(const httplib::Request&)>;
   struct Route {
     std::string method;
     std::string pattern;                // "/v1/members/{id}": the metrics label
@@ -380,6 +383,7 @@ struct ApiServer::Impl {
     bool auth;
     Role min_role;
     Handler handler;
+    Condition when;  // empty: always; else the route answers only when it holds
   };
 
   explicit Impl(ServeOptions o) : options(std::move(o)), pool(options.db_path) {
@@ -396,8 +400,25 @@ struct ApiServer::Impl {
   bool started = false;
   std::vector<Route> routes;
 
-  void Add(const char* method, const std::string& pattern, Role role, Handler h, bool auth = true) {
-    routes.push_back({method, pattern, Segments(pattern), auth, role, h});
+  void Add(const std::string& method, const std::string& pattern, Role role, Handler h, bool auth = true,
+           Condition when = {}) {
+    routes.push_back({method, pattern, Segments(pattern), auth, role, std::move(h), std::move(when)});
+  }
+  // The routes of server/extra_routes.h, ahead of the core table.
+  void AddExtraRoutes() {
+    for (ExtraRoute& x : AssetFileRoutes()) {
+      Add(
+          x.method, x.pattern, x.min_role,
+          [h = std::move(x.handler)](Impl&, Call& c) {
+            RouteCall rc{c.req, c.res, c.repo, c.who.organisation_id, c.who.role, c.ids, c.now_unix_ms};
+            try {
+              h(rc);
+            } catch (const RouteError& e) {
+              Fail(e.status, e.code, e.message);
+            }
+          },
+          true, std::move(x.when));
+    }
   }
 
   // "/v1/members/12" -> {"v1", "members", "12"}.
@@ -437,6 +458,7 @@ struct ApiServer::Impl {
   }
 
   void AddRoutes() {
+    AddExtraRoutes();
     Add("GET", "/v1/health", Role::kRead, &Impl::Health, /*auth=*/false);
     Add("GET", "/metrics", Role::kRead, &Impl::MetricsText, /*auth=*/false);
     Add("GET", "/v1/me", Role::kRead, &Impl::Me);
@@ -446,7 +468,6 @@ struct ApiServer::Impl {
     Add("DELETE", "/v1/structures/{id}", Role::kAdmin, &Impl::DeleteStructure);
     Add("POST", "/v1/structures/{id}/members", Role::kAdmin, &Impl::CreateMember);
     Add("GET", "/v1/structures/{id}/members", Role::kRead, &Impl::ListMembers);
-    Add("GET", "/v1/structures/{id}/portfolio", Role::kRead, &Impl::Portfolio);
     Add("GET", "/v1/members/{id}", Role::kRead, &Impl::GetMember);
     Add("PUT", "/v1/members/{id}", Role::kAdmin, &Impl::UpdateMember);
     Add("DELETE", "/v1/members/{id}", Role::kAdmin, &Impl::DeleteMember);
@@ -490,7 +511,7 @@ struct ApiServer::Impl {
       std::string allow;
       const std::vector<std::string> path = Segments(req.path);
       for (const Route& r : routes) {
-        if (!Match(r, path, &ids)) continue;
+        if (!Match(r, path, &ids) || (r.when && !r.when(req))) continue;
         if (r.method == req.method) {
           route = &r;
           break;
@@ -531,7 +552,7 @@ struct ApiServer::Impl {
                    " role; the token has " + storage::RoleName(call.who.role));
         }
       }
-      (this->*(route->handler))(call);
+      route->handler(*this, call);
     } catch (const ApiError& e) {
       SendJson(res, e.status, ErrorBody(e.code, e.message));
     } catch (const std::exception& e) {
@@ -893,45 +914,6 @@ struct ApiServer::Impl {
         },
         [](const storage::Repository::FixityRow& r) { return FixityPointJson(r); });
   }
-  void Portfolio(Call& c) {
-    storage::Structure s;
-    Check(c.repo.GetStructure(c.who.organisation_id, c.ids[0], &s));
-    std::vector<storage::Member> members;
-    Check(c.repo.ListMembers(c.who.organisation_id, c.ids[0], &members));
-    json rows = json::array();
-    for (const auto& m : members) {
-      const json description = StoredJson(m.description_json);
-      std::optional<double> design;
-      if (description.is_object() && description.contains("design_axial_force_n") &&
-          description["design_axial_force_n"].is_number()) {
-        design = description["design_axial_force_n"].get<double>();
-      }
-      json row = {
-          {"member_id", m.id}, {"external_id", m.external_id}, {"design_axial_force_n", Optional(design)},
-          {"latest", nullptr}, {"utilisation", nullptr},       {"last_record_at", nullptr}};
-      storage::Estimate e;
-      if (StorageStatus st = c.repo.LatestEstimate(c.who.organisation_id, m.id, &e); st.ok()) {
-        row["latest"] = HistoryPointJson(e);
-        const json result = StoredJson(e.result_json);
-        if (result.is_object() && result.contains("cautions")) row["latest"]["cautions"] = result["cautions"];
-        if (design && *design != 0) row["utilisation"] = e.axial_force_n / *design;
-      } else if (!st.not_found()) {
-        Check(st);
-      }
-      std::int64_t last = 0;
-      if (StorageStatus st = c.repo.LatestRecordTime(c.who.organisation_id, m.id, &last); st.ok()) {
-        row["last_record_at"] = FormatIsoUtc(last);
-      } else if (!st.not_found()) {
-        Check(st);
-      }
-      std::vector<storage::Alert> open;
-      Check(c.repo.ListAlerts(c.who.organisation_id, {m.id, storage::AlertState::kOpen}, &open));
-      row["open_alerts"] = open.size();
-      rows.push_back(row);
-    }
-    SendJson(c.res, 200, {{"structure", StructureJson(s)}, {"members", rows}});
-  }
-
   // ---- dashboard data (thin: the computations are in dashboard_data.h)
   model::Member StoredDescription(const storage::Member& m) {
     model::Member member;
