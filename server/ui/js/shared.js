@@ -90,7 +90,7 @@ export function pageFailed() {
 
 // A button that fetches `path` (a string, or a function giving it at click
 // time) with the token and saves the answer as `filename`. The last
-// download is kept in window.tautLastDownload ({name, type, bytes, head})
+// download is kept in window.tautLastDownload ({name, type, bytes, head, lines})
 // for the browser test.
 export function downloadButton(path, filename, label, id = null) {
   const status = h('span', {class: 'csv-status', 'aria-live': 'polite'});
@@ -100,8 +100,9 @@ export function downloadButton(path, filename, label, id = null) {
       try {
         const res = await api.raw(typeof path === 'function' ? path() : path);
         const blob = await res.blob();
-        const head = blob.type.startsWith('application/pdf') ? '' : (await blob.text()).slice(0, 400);
-        window.tautLastDownload = {name: filename, type: blob.type, bytes: blob.size, head};
+        const text = blob.type.startsWith('application/pdf') ? '' : await blob.text();
+        window.tautLastDownload = {name: filename, type: blob.type, bytes: blob.size, head: text.slice(0, 400),
+          lines: text.split('\r\n').length - 1};
         const a = h('a', {href: URL.createObjectURL(blob), download: filename, hidden: true});
         document.body.append(a);
         a.click();
