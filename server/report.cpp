@@ -108,7 +108,7 @@ double NiceStep(double range, int count) {
 }
 
 struct Frame {
-  double w = 680, h = 165, left = 56, right = 14, top = 12, bottom = 30;
+  double w = 680, h = 150, left = 56, right = 14, top = 12, bottom = 28;
   double x0 = 0, x1 = 1, y0 = 0, y1 = 1;
   double X(double x) const { return left + (x - x0) / (x1 - x0) * (w - left - right); }
   double Y(double y) const { return h - bottom - (y - y0) / (y1 - y0) * (h - top - bottom); }
@@ -220,7 +220,7 @@ std::string SpectrumChart(const json& sp) {
   const json& s1 = sp["s1"];
   Frame f;
   f.w = 400;
-  f.h = 200;
+  f.h = 180;
   f.left = 40;
   f.x0 = 0;
   f.x1 = Num(sp["band_hz"][1], 1.0);
@@ -265,14 +265,14 @@ std::string SpectrumChart(const json& sp) {
 // --------------------------------------------------------------- content
 
 const char* kCss = R"css(
-@page { size: A4; margin: 16mm 15mm 18mm 15mm; }
+@page { size: A4; margin: 12mm 13mm 13mm 13mm; }
 * { box-sizing: border-box; }
-body { font: 9.5pt/1.38 "DejaVu Serif", Georgia, serif; color: #1d232a; margin: 0; }
+body { font: 9pt/1.3 "DejaVu Serif", Georgia, serif; color: #1d232a; margin: 0; }
 h1, h2, h3, .label, th, .kf dt { font-family: "DejaVu Sans", "Helvetica Neue", Arial, sans-serif; }
 h1 { font-size: 22pt; margin: 0 0 4mm; letter-spacing: -0.01em; }
 h2 { font-size: 13pt; margin: 0 0 3mm; border-bottom: 1.5pt solid #2f5d73; padding-bottom: 1mm; }
-h3 { font-size: 9.5pt; margin: 3mm 0 1mm; text-transform: uppercase; letter-spacing: 0.06em; color: #2f5d73; }
-.cover { height: 255mm; display: flex; flex-direction: column; border-left: 5mm solid #2f5d73; padding-left: 8mm; }
+h3 { font-size: 8.5pt; margin: 2mm 0 0.8mm; text-transform: uppercase; letter-spacing: 0.06em; color: #2f5d73; }
+.cover { height: 265mm; display: flex; flex-direction: column; border-left: 5mm solid #2f5d73; padding-left: 8mm; }
 .cover .kind { font: 600 10pt "DejaVu Sans", sans-serif; letter-spacing: 0.2em; text-transform: uppercase; color: #2f5d73; margin-top: 30mm; }
 .cover .desc { font-size: 12pt; margin: 0 0 10mm; }
 .cover dl { display: grid; grid-template-columns: 38mm 1fr; gap: 2mm 4mm; font-size: 10.5pt; }
@@ -284,9 +284,9 @@ h3 { font-size: 9.5pt; margin: 3mm 0 1mm; text-transform: uppercase; letter-spac
 .sheet-head { display: flex; justify-content: space-between; align-items: baseline; border-bottom: 1.5pt solid #2f5d73; margin-bottom: 2mm; }
 .sheet-head h2 { border: 0; margin: 0; padding: 0; }
 .sheet-head .where { font: 8.5pt "DejaVu Sans", sans-serif; color: #555; }
-table { border-collapse: collapse; width: 100%; font-size: 8.5pt; margin: 1mm 0 2mm; }
+table { border-collapse: collapse; width: 100%; font-size: 8pt; margin: 0.5mm 0 1.5mm; }
 th { text-align: left; font-size: 7.5pt; text-transform: uppercase; letter-spacing: 0.04em; border-bottom: 0.8pt solid #1d232a; padding: 1mm 1.5mm; }
-td { border-bottom: 0.4pt solid #c9c4b6; padding: 0.8mm 1.5mm; vertical-align: top; }
+td { border-bottom: 0.4pt solid #c9c4b6; padding: 0.5mm 1.5mm; vertical-align: top; }
 td.n { text-align: right; white-space: nowrap; font-variant-numeric: tabular-nums; }
 .kf { display: grid; grid-template-columns: repeat(4, 1fr); gap: 0 4mm; margin: 0 0 2mm; }
 .kf div { border-left: 1.2pt solid #2f5d73; padding-left: 2mm; }
@@ -476,6 +476,11 @@ Status MemberSheet(storage::Repository& repo, Id org, const storage::Structure& 
       out << "<tr><td>Nominal EI (description)</td><td class=\"n\">"
           << F(member.NominalBendingStiffness_nm2(member.MajorityPlane()) / 1000.0, 2)
           << "&nbsp;kN&middot;m&sup2;</td></tr>";
+    }
+    const json& cc = row["critical_compression"];
+    if (cc.is_object()) {
+      out << "<tr><td>Critical compression (Euler, with the end restraint)</td><td class=\"n\">"
+          << Kn(Num(cc["value_n"])) << " (95&nbsp;%: " << KnRange(cc["ci95_n"]) << ")</td></tr>";
     }
     out << "<tr><td>Fixity, left end (0 pinned, 1 clamped)</td><td class=\"n\">"
         << Quantity(fix.value("left", json()), 1.0, 2, "")

@@ -5,9 +5,11 @@
 #include <limits>
 
 #include "estimation/drift.h"
+#include "model/modal.h"
 #include "server/api_json.h"
 #include "server/csv_export.h"
 #include "server/iso_time.h"
+#include "server/member_json.h"
 
 namespace taut::server {
 
@@ -28,7 +30,70 @@ double ForceStd(const storage::Estimate& e) {
 
 json Num(const std::optional<double>& v) { return v && std::isfinite(*v) ? json(*v) : json(nullptr); }
 
+// Phi^-1(1 - 0.05 / (2 k)), k = 1..3 (scipy.stats.norm.ppf; see triage.h).
+constexpr double kBonferroniZ[] = {1.959963984540054, 2.241402727604947, 2.3939797998185104};
+
+struct Bound {
+  double value, lo, hi;
+  bool free;
+};
+
+// value and +- std of a stored quantity {"value", "std"?, "fixed"?}.
+std::optional<Bound> StoredBound(const json& q) {
+  if (!q.is_object() || !q.contains("value") || !q["value"].is_number()) return std::nullopt;
+  const double v = q["value"].get<double>();
+  const bool free = !q.value("fixed", false) && q.contains("std") && q["std"].is_number();
+  const double s = free ? q["std"].get<double>() : 0.0;
+  return Bound{v, v - s, v + s, free};  // lo/hi scaled by z below
+}
+
 }  // namespace
+
+json CriticalCompressionJson(const std::string& description_json, const storage::Estimate& e) {
+  const json result = StoredJson(e.result_json);
+  if (!result.is_object()) return nullptr;
+  const json fix = result.value("end_fixity", json::object());
+  auto ei = StoredBound(result.value("bending_stiffness_nm2", json()));
+  auto left = StoredBound(fix.value("left", json()));
+  auto right = StoredBound(fix.value("right", json()));
+  model::Member member;
+  if (!ei || !left || !right || !(ei->value > 0) ||
+      !ParseMember(description_json, &member, MemberReadOptions{.require_id = true}).ok()) {
+    return nullptr;
+  }
+  const int k = (ei->free ? 1 : 0) + (left->free ? 1 : 0) + (right->free ? 1 : 0);
+  const double z = k > 0 ? kBonferroniZ[k - 1] : 0.0;
+  for (Bound* b : {&*ei, &*left, &*right}) {
+    const double s = (b->hi - b->value) * z;
+    b->lo = b->value - s;
+    b->hi = b->value + s;
+  }
+  ei->lo = std::max(ei->lo, 1e-6 * ei->value);
+  for (Bound* b : {&*left, &*right}) {
+    b->value = std::clamp(b->value, 0.0, 1.0);
+    b->lo = std::clamp(b->lo, 0.0, 1.0);
+    b->hi = std::clamp(b->hi, 0.0, 1.0);
+  }
+  const model::Direction plane = result.value("plane", "vertical") == "lateral" ? model::Direction::kLateral
+                                                                                : model::Direction::kVertical;
+  const model::ModalModel modal(member, plane, model::ModalOptions{60});
+  const auto at = [&](double ei_v, double l, double r, double* n) {
+    model::ModalParameters p;
+    p.bending_stiffness_nm2 = ei_v;
+    p.fixity_left = l;
+    p.fixity_right = r;
+    return modal.CriticalCompression(p, n).ok();
+  };
+  double v = 0, lo = 0, hi = 0;
+  if (!at(ei->value, left->value, right->value, &v) || !at(ei->lo, left->lo, right->lo, &lo) ||
+      !at(ei->hi, left->hi, right->hi, &hi)) {
+    return nullptr;
+  }
+  return {{"value_n", v},
+          {"ci95_n", {std::min(lo, v), std::max(hi, v)}},
+          {"free_parameters", k},
+          {"estimate_id", e.id}};
+}
 
 StorageStatus MemberRowJson(storage::Repository& repo, Id org, const storage::Member& m, json* out) {
   const json description = StoredJson(m.description_json);
@@ -44,6 +109,7 @@ StorageStatus MemberRowJson(storage::Repository& repo, Id org, const storage::Me
               {"latest", nullptr},
               {"force_ratio", nullptr},
               {"change_30d", nullptr},
+              {"critical_compression", nullptr},
               {"last_record_at", nullptr}};
   // The newest estimate, usable or not, is shown; the ratio and the change
   // use usable ones only.
@@ -82,6 +148,15 @@ StorageStatus MemberRowJson(storage::Repository& repo, Id org, const storage::Me
       row["force_ratio"] = {{"value", last.axial_force_n / *design},
                             {"ci95", {std::min(a, b), std::max(a, b)}},
                             {"estimate_id", last.id}};
+    }
+    // The critical compression at the newest usable estimate, with the
+    // member description version it was made with (result from storage).
+    storage::Estimate full;
+    storage::Member version;
+    row["critical_compression"] = nullptr;
+    if (repo.GetEstimate(org, last.id, &full).ok() &&
+        repo.GetMemberVersion(org, m.id, last.member_version, &version).ok()) {
+      row["critical_compression"] = CriticalCompressionJson(version.description_json, full);
     }
     if (usable.size() >= 2) {
       const storage::Estimate& first = *usable.front();
@@ -150,6 +225,9 @@ std::vector<std::string> MemberRowCsvHeader() {
           "change_30d_n",
           "change_30d_ci95_low_n",
           "change_30d_ci95_high_n",
+          "critical_compression_n",
+          "critical_compression_ci95_low_n",
+          "critical_compression_ci95_high_n",
           "last_record_at_utc"};
 }
 
@@ -159,6 +237,7 @@ std::vector<std::string> MemberRowCsv(const json& r, const std::string& structur
   const json& fr = r["force_ratio"];
   const json& ch = r["change_30d"];
   const bool hl = l.is_object(), hr = fr.is_object(), hc = ch.is_object();
+  const bool cc = r.contains("critical_compression") && r["critical_compression"].is_object();
   return {structure_name,
           CsvInt(r["member_id"].get<Id>()),
           r["external_id"].get<std::string>(),
@@ -177,6 +256,9 @@ std::vector<std::string> MemberRowCsv(const json& r, const std::string& structur
           hc ? num(ch["value_n"]) : "",
           hc ? num(ch["ci95_n"][0]) : "",
           hc ? num(ch["ci95_n"][1]) : "",
+          cc ? num(r["critical_compression"]["value_n"]) : "",
+          cc ? num(r["critical_compression"]["ci95_n"][0]) : "",
+          cc ? num(r["critical_compression"]["ci95_n"][1]) : "",
           r["last_record_at"].is_string() ? r["last_record_at"].get<std::string>() : ""};
 }
 

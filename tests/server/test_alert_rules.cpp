@@ -4,9 +4,14 @@
 // definitions in estimation/drift.h items 5 to 7.
 #include <gtest/gtest.h>
 
+#include <cmath>
+#include <fstream>
+#include <nlohmann/json.hpp>
+#include <sstream>
 #include <string>
 
 #include "server/alert_rules.h"
+#include "server/triage.h"
 #include "storage/logbook.h"
 #include "tests/storage/storage_test_support.h"
 
@@ -98,6 +103,53 @@ TEST_F(AlertRulesTest, TheNewestNewBaselineEntryRestartsTheBaseline) {
   estimation::DriftSettings other;
   ASSERT_TRUE(ApplyLogbookBaseline(repo_, g.org, f.member, &other).ok());
   EXPECT_FALSE(other.baseline_start_s.has_value()) << "another organisation's entries are not seen";
+}
+
+}  // namespace
+}  // namespace taut::server
+
+namespace taut::server {
+namespace {
+
+// The critical compression of a pinned-pinned member is Euler's
+// pi^2 EI / L^2 (S. P. Timoshenko, J. M. Gere, Theory of Elastic
+// Stability, 1961, section 2.1); with EI the only free parameter its
+// interval is pi^2 (EI +- 1.959964 std) / L^2 (z_0.975, Abramowitz and
+// Stegun 1964, table 26.1). Tolerance 1e-3 relative: the 60-element model's
+// discretisation error of the first buckling load with cubic beam elements
+// is far smaller (h^4 convergence: recalled from memory, common FE
+// practice).
+TEST(CriticalCompression, PinnedEndsGiveEulersLoadWithTheIntervalOfEI) {
+  std::ifstream in(std::string(TAUT_EXAMPLES_DIR) + "/maltings-east-tie-2.json");
+  std::stringstream description;
+  description << in.rdbuf();
+  const double length = nlohmann::json::parse(description.str())["length_m"].get<double>();
+  storage::Estimate e;
+  e.id = 7;
+  e.result_json = R"({"bending_stiffness_nm2": {"value": 6000, "std": 150},
+                      "end_fixity": {"left": {"value": 0, "fixed": true}, "right": {"value": 0, "fixed": true}}})";
+  const nlohmann::json cc = CriticalCompressionJson(description.str(), e);
+  ASSERT_TRUE(cc.is_object()) << cc.dump();
+  const double pi2 = M_PI * M_PI / (length * length);
+  EXPECT_NEAR(cc["value_n"].get<double>(), pi2 * 6000, 1e-3 * pi2 * 6000);
+  EXPECT_NEAR(cc["ci95_n"][0].get<double>(), pi2 * (6000 - 1.959964 * 150), 1e-3 * pi2 * 6000);
+  EXPECT_NEAR(cc["ci95_n"][1].get<double>(), pi2 * (6000 + 1.959964 * 150), 1e-3 * pi2 * 6000);
+  EXPECT_EQ(cc["free_parameters"], 1);
+  // Free fixities widen it (Bonferroni z = 2.393980 for three parameters)
+  // and their upper ends raise N_cr: clamped-clamped is 4 pi^2 EI / L^2.
+  e.result_json = R"({"bending_stiffness_nm2": {"value": 6000, "std": 150},
+                      "end_fixity": {"left": {"value": 0.5, "std": 0.3}, "right": {"value": 0.5, "std": 0.3}}})";
+  const nlohmann::json wide = CriticalCompressionJson(description.str(), e);
+  ASSERT_TRUE(wide.is_object());
+  EXPECT_EQ(wide["free_parameters"], 3);
+  EXPECT_GT(wide["value_n"].get<double>(), pi2 * 6000);
+  EXPECT_LT(wide["value_n"].get<double>(), 4 * pi2 * 6000);
+  EXPECT_LT(wide["ci95_n"][0].get<double>(), wide["value_n"].get<double>());
+  EXPECT_GT(wide["ci95_n"][1].get<double>(), wide["value_n"].get<double>());
+  // Fixities at 1 (0.5 + 2.39 * 0.3 clamped to 1): at most the clamped load.
+  EXPECT_LE(wide["ci95_n"][1].get<double>(), 4 * pi2 * (6000 + 2.393980 * 150) * (1 + 1e-3));
+  e.result_json = "{}";
+  EXPECT_TRUE(CriticalCompressionJson(description.str(), e).is_null());
 }
 
 }  // namespace

@@ -116,8 +116,11 @@ export function forceCell(latest) {
 }
 
 export function ratioCell(r) {
-  if (!r.force_ratio) return h('span', {class: 'muted'}, r.design_axial_force_n ? 'no usable estimate' : 'no design force');
-  return ratioBar(r.force_ratio);
+  const cc = r.critical_compression;
+  const ncr = cc ? h('span', {class: 'ncr interval', title: 'Critical compression (Euler load with the identified end restraint), 95 % interval'},
+    h('br'), `N cr ${kN(cc.value_n)} (${num(cc.ci95_n[0] / 1000, 1)} to ${num(cc.ci95_n[1] / 1000, 1)})`) : null;
+  if (!r.force_ratio) return [h('span', {class: 'muted'}, r.design_axial_force_n ? 'no usable estimate' : 'no design force'), ncr];
+  return [ratioBar(r.force_ratio), ncr];
 }
 
 export function changeCell(r) {
