@@ -98,7 +98,7 @@ function forceChart(points, drift, d, alerts, entries, csv) {
   const rows = points.map((p) => {
     const q = limits.get(p.estimate_id) || {};
     return {...p, t: ms(p.measured_at), expected: q.force_expected_n ?? null, lim: q.force_limits_n || null,
-      z: q.force_z ?? null, in_baseline: q.in_baseline};
+      z: q.force_z ?? null, in_baseline: q.in_baseline, excluded: !!q.excluded};
   });
   const th = drift.force.thresholds;
   const first = rows.length ? rows[0] : null, last = rows.length ? rows[rows.length - 1] : null;
@@ -140,7 +140,8 @@ function forceChart(points, drift, d, alerts, entries, csv) {
         const r = p.row;
         return `${when(r.measured_at)}: ${kN(r.axial_force_n)} (95 %: ${num(r.ci95_n[0] / 1000, 1)} to ${num(r.ci95_n[1] / 1000, 1)} kN), ` +
           `${degC(r.temperature_c)}` + (r.expected !== null ? `, baseline ${kN(r.expected)}` : '') +
-          (r.z !== null ? `, z = ${num(r.z, 1)}` : '') + (r.in_baseline ? ', in the baseline' : '');
+          (r.z !== null ? `, z = ${num(r.z, 1)}` : '') + (r.in_baseline ? ', in the baseline' : '') +
+          (r.excluded ? ', judged unusable: left out of the baseline and the rules' : '');
       },
       activate: (p) => (location.hash = `#/estimates/${p.row.estimate_id}`),
     },
@@ -155,6 +156,7 @@ function forceChart(points, drift, d, alerts, entries, csv) {
         {label: 'Baseline [kN]', value: (r) => num(kn(r.expected), 2)},
         {label: 'Alert limits [kN]', value: (r) => (r.lim ? `${num(r.lim[0] / 1000, 2)} to ${num(r.lim[1] / 1000, 2)}` : '–')},
         {label: 'z', value: (r) => num(r.z, 2)},
+        {label: 'Drift rules', value: (r) => (r.excluded ? 'left out (unusable)' : r.in_baseline ? 'baseline' : 'judged')},
       ],
     },
   });
