@@ -1,16 +1,23 @@
 #include "server/report.h"
 
+#include <fcntl.h>
+#include <signal.h>
+#include <spawn.h>
 #include <stdlib.h>
+#include <sys/wait.h>
 #include <unistd.h>
 
 #include <algorithm>
+#include <chrono>
 #include <cmath>
 #include <cstdio>
+#include <cstring>
 #include <filesystem>
 #include <fstream>
 #include <limits>
 #include <nlohmann/json.hpp>
 #include <sstream>
+#include <thread>
 
 #include "estimation/cautions.h"
 #include "estimation/drift.h"
@@ -620,36 +627,74 @@ Status PrintHtmlToPdf(const std::string& html, const std::string& pdf_path) {
   char tmpl[] = "/tmp/taut-report-XXXXXX";
   if (!::mkdtemp(tmpl)) return Status::InvalidArgument("cannot make a temporary directory");
   const std::filesystem::path dir(tmpl);
-  const auto quote = [](const std::string& s) {
-    std::string q = "'";
-    for (char c : s) q += c == '\'' ? std::string("'\\''") : std::string(1, c);
-    return q + "'";
-  };
   { std::ofstream(dir / "report.html") << html; }
   const std::string out_abs = std::filesystem::absolute(pdf_path).string();
-  std::filesystem::remove(out_abs);
-  const std::string cmd = "timeout " + std::to_string(kPdfTimeout_s) + " " + quote(chromium) +
-                          " --headless --no-sandbox --disable-gpu --disable-quic --no-first-run"
-                          " --disable-background-networking --disable-component-update --disable-sync"
-                          " --disable-extensions --no-pdf-header-footer --user-data-dir=" +
-                          quote((dir / "profile").string()) + " --print-to-pdf=" + quote(out_abs) + " " +
-                          quote("file://" + (dir / "report.html").string()) + " > " +
-                          quote((dir / "chromium.log").string()) + " 2>&1";
-  const int rc = std::system(cmd.c_str());
   std::error_code ec;
+  std::filesystem::remove(out_abs, ec);
+  // posix_spawn rather than system(): no shell, and the child starts with
+  // an empty signal mask (taut serve blocks SIGINT/SIGTERM in every thread,
+  // and a mask is inherited across exec) and its own process group.
+  std::vector<std::string> args = {chromium,
+                                   "--headless",
+                                   "--no-sandbox",
+                                   "--disable-gpu",
+                                   "--disable-quic",
+                                   "--no-first-run",
+                                   "--disable-background-networking",
+                                   "--disable-component-update",
+                                   "--disable-sync",
+                                   "--disable-extensions",
+                                   "--no-pdf-header-footer",
+                                   "--user-data-dir=" + (dir / "profile").string(),
+                                   "--print-to-pdf=" + out_abs,
+                                   "file://" + (dir / "report.html").string()};
+  std::vector<char*> argv;
+  for (auto& a : args) argv.push_back(a.data());
+  argv.push_back(nullptr);
+  const std::string log_path = (dir / "chromium.log").string();
+  posix_spawn_file_actions_t files;
+  posix_spawn_file_actions_init(&files);
+  posix_spawn_file_actions_addopen(&files, STDOUT_FILENO, log_path.c_str(), O_WRONLY | O_CREAT | O_TRUNC,
+                                   0600);
+  posix_spawn_file_actions_adddup2(&files, STDOUT_FILENO, STDERR_FILENO);
+  posix_spawnattr_t attr;
+  posix_spawnattr_init(&attr);
+  sigset_t none;
+  sigemptyset(&none);
+  posix_spawnattr_setsigmask(&attr, &none);
+  posix_spawnattr_setpgroup(&attr, 0);
+  posix_spawnattr_setflags(&attr, POSIX_SPAWN_SETSIGMASK | POSIX_SPAWN_SETPGROUP);
+  pid_t pid = 0;
+  const int spawned = posix_spawn(&pid, chromium.c_str(), &files, &attr, argv.data(), environ);
+  posix_spawn_file_actions_destroy(&files);
+  posix_spawnattr_destroy(&attr);
+  std::string failure;
+  if (spawned != 0) {
+    failure = "cannot start " + chromium + ": " + std::strerror(spawned);
+  } else {
+    int status = 0;
+    const auto deadline = std::chrono::steady_clock::now() + std::chrono::seconds(kPdfTimeout_s);
+    for (;;) {
+      const pid_t r = ::waitpid(pid, &status, WNOHANG);
+      if (r == pid || r < 0) break;
+      if (std::chrono::steady_clock::now() > deadline) {
+        ::kill(-pid, SIGKILL);  // the whole group: Chromium's helper processes too
+        ::waitpid(pid, &status, 0);
+        failure = "Chromium took longer than " + std::to_string(kPdfTimeout_s) + " s";
+        break;
+      }
+      std::this_thread::sleep_for(std::chrono::milliseconds(50));
+    }
+  }
   const bool made = std::filesystem::exists(out_abs, ec) && std::filesystem::file_size(out_abs, ec) > 0;
-  std::string log;
-  if (!made) {
-    std::ifstream in(dir / "chromium.log");
+  if (!made && failure.empty()) {
+    std::ifstream in(log_path);
     std::stringstream ss;
     ss << in.rdbuf();
-    log = ss.str().substr(0, 2000);
+    failure = "Chromium did not print the PDF: " + ss.str().substr(0, 2000);
   }
   std::filesystem::remove_all(dir, ec);
-  if (!made) {
-    return Status::InvalidArgument("Chromium did not print the PDF (exit " + std::to_string(rc) +
-                                   "): " + log);
-  }
+  if (!made) return Status::InvalidArgument(failure);
   return Status::Ok();
 }
 

@@ -36,9 +36,9 @@ Status BuildInspectionReport(storage::Repository& repo, storage::Id organisation
 
 // Headless Chromium (the executable in $TAUT_CHROMIUM, else
 // /usr/bin/chromium) prints `html` to `pdf_path` (A4, the document's own
-// margins). A fresh empty profile directory is used and removed; at most
-// kPdfTimeout_s. kInvalidArgument with Chromium's output when it fails or
-// is missing.
+// margins). A fresh empty profile directory is used and removed; after
+// kPdfTimeout_s the Chromium process group is killed. kInvalidArgument
+// with Chromium's output when it fails or is missing.
 inline constexpr int kPdfTimeout_s = 120;
 Status PrintHtmlToPdf(const std::string& html, const std::string& pdf_path);
 
