@@ -699,6 +699,31 @@ TEST_F(HttpApiTest, LogbookEntriesFollowRolesAndScopingAndCanRestartTheBaseline)
   EXPECT_EQ(json::parse(r.Get(path)->body)["entries"].size(), 0u);
 }
 
+TEST_F(HttpApiTest, InspectionReportIsOneSelfContainedHtmlDocumentScopedToTheOrganisation) {
+  const auto member = CreateMember();
+  auto up = Client(upload_a_);
+  StoreEstimate(db_path_, up, member, "2026-11-20T06:00:00Z", 29000, "reduced-confidence",
+                SyntheticCsv(dir_.string(), 501));
+  const std::string path = "/v1/structures/" + std::to_string(structure_id_) + "/report";
+  auto r = Client(read_a_).Get(path + "?from=2026-11-01&to=2026-12-01&author=R.%20Field");
+  ASSERT_EQ(r->status, 200) << r->body;
+  EXPECT_EQ(r->get_header_value("Content-Type").rfind("text/html", 0), 0u);
+  const std::string& html = r->body;
+  for (const char* want :
+       {"Old maltings hall", "Member maltings-east-tie-2", "R. Field", "2026-11-01 to 2026-12-01",
+        "29.0&nbsp;kN", "28.2 to 29.8&nbsp;kN", "Standing notice", "Welch", "Signature"}) {
+    EXPECT_NE(html.find(want), std::string::npos) << want;
+  }
+  // Self-contained: nothing to fetch, nothing to run.
+  EXPECT_EQ(html.find("<script"), std::string::npos);
+  EXPECT_EQ(html.find("src="), std::string::npos);
+  EXPECT_EQ(html.find("href="), std::string::npos);
+  EXPECT_EQ(Client(read_a_).Get(path + "?from=2026-12-01&to=2026-11-01")->status, 400);
+  EXPECT_EQ(Client(read_a_).Get(path + "?format=docx")->status, 400);
+  EXPECT_EQ(Client(admin_b_).Get(path)->status, 404);
+  EXPECT_EQ(Client("").Get(path)->status, 401);
+}
+
 TEST(IsoTime, RoundTripsAndRefusesWhatIsNotUtc) {
   // 2026-11-20 is 20777 days after 1970-01-01 (reference: Python's
   // datetime, (date(2026, 11, 20) - date(1970, 1, 1)).days), plus 10 h.
