@@ -534,8 +534,8 @@ TEST_F(DashboardUiTest, LogbookTiersTriageExportsAndReportInHeadlessChromium) {
   Go("#/members/" + m1s + "?range=30d");
   WaitPage("member");
   const json limits_before = driver_->Execute(
-      "return document.querySelector('figure[data-chart=force] .layer-baseline "
-      "path.line').getAttribute('d');");
+      "return [...document.querySelectorAll('figure[data-chart=force] g.layer.s-baseline path.line, "
+      "figure[data-chart=force] g.layer.s-limit path.line')].map(p => p.getAttribute('d'));");
   EXPECT_EQ(Count("figure[data-chart=force] .layer-logbook .ev"), 0);
   ASSERT_TRUE(driver_->Click(driver_->Find("#log-kind option[value=re-tensioned]")));
   // Half-way between the 4th and 5th records, typed in the display zone (UTC).
@@ -553,9 +553,13 @@ TEST_F(DashboardUiTest, LogbookTiersTriageExportsAndReportInHeadlessChromium) {
   EXPECT_EQ(Count("#logbook tbody tr"), 1);
   EXPECT_EQ(Count("figure[data-chart=force] .layer-logbook .ev"), 1);
   const json limits_after = driver_->Execute(
-      "return document.querySelector('figure[data-chart=force] .layer-baseline "
-      "path.line').getAttribute('d');");
-  EXPECT_NE(limits_before, limits_after) << "the baseline line did not move";
+      "return [...document.querySelectorAll('figure[data-chart=force] g.layer.s-baseline path.line, "
+      "figure[data-chart=force] g.layer.s-limit path.line')].map(p => p.getAttribute('d'));");
+  ASSERT_EQ(limits_after.size(), 3u);
+  for (int k = 0; k < 3; ++k) {  // the baseline and both alert limits moved
+    EXPECT_NE(limits_before[k], limits_after[k]) << "line " << k << " did not move";
+    EXPECT_NE(limits_after[k], "") << "line " << k << " not drawn";
+  }
   const json drift_after = json::parse(up.Get("/v1/members/" + m1s + "/drift?from=2000-01-01")->body);
   EXPECT_EQ(drift_after["force"]["baseline"]["first_at"], FormatIsoUtc(times[4])) << drift_after.dump();
   // The baseline level follows the re-tensioning: about 40 kN (the mean of
