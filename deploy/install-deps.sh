@@ -33,6 +33,7 @@ PACKAGES=(
   dpkg-dev            # the Debian package: CPack's dpkg-shlibdeps writes Depends
   systemd             # tests/deploy: systemd-analyze verify of the unit
   groff-base          # tests/deploy: the man page read without warnings
+  poppler-utils       # tests/ui: pdftotext reads the inspection report PDF back
 )
 
 missing=()

@@ -88,6 +88,9 @@ constexpr std::array kCatalogue = {
     CatalogueEntry{"drift-missing-temperature", kI, "some estimates carry no temperature"},
     CatalogueEntry{"force-below-design", kI, "the force is below the design limit"},
     CatalogueEntry{"ei-loss", kI, "the bending stiffness has dropped"},
+    CatalogueEntry{"drift-baseline-restarted", kI, "a logbook entry restarted the drift baseline"},
+    CatalogueEntry{"drift-unusable-excluded", kI, "estimates with an unusable verdict were left out"},
+    CatalogueEntry{"stale-data", kI, "no usable record arrived for too long"},
 };
 
 const CatalogueEntry* Find(std::string_view code) {

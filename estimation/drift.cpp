@@ -57,6 +57,12 @@ Status ValidateSettings(const DriftSettings& s) {
     return Status::InvalidArgument("drift settings: max_ei_loss_share " + Num("%g", s.max_ei_loss_share) +
                                    " must be in (0, 1)");
   }
+  if (s.baseline_start_s && !std::isfinite(*s.baseline_start_s)) {
+    return Status::InvalidArgument("drift settings: baseline_start_s must be finite");
+  }
+  if (s.max_silence_s && !(*s.max_silence_s > 0 && std::isfinite(*s.max_silence_s))) {
+    return Status::InvalidArgument("drift settings: max_silence_s must be finite and > 0");
+  }
   return Status::Ok();
 }
 
@@ -77,6 +83,16 @@ Status ValidateSeries(const std::vector<DriftPoint>& series) {
     if (!(p.force_std_n >= 0) || !std::isfinite(p.force_std_n)) {
       return Status::InvalidArgument(where + ".force_std_n " + Num("%g", p.force_std_n) +
                                      " must be finite and >= 0");
+    }
+    if (p.force_ci95_low_n.has_value() != p.force_ci95_high_n.has_value()) {
+      return Status::InvalidArgument(where +
+                                     ".force_ci95_low_n and force_ci95_high_n must be given together");
+    }
+    if (p.force_ci95_low_n && !(std::isfinite(*p.force_ci95_low_n) && std::isfinite(*p.force_ci95_high_n) &&
+                                *p.force_ci95_low_n <= p.force_n && p.force_n <= *p.force_ci95_high_n)) {
+      return Status::InvalidArgument(where + ": the force interval [" + Num("%g", *p.force_ci95_low_n) +
+                                     ", " + Num("%g", *p.force_ci95_high_n) +
+                                     "] N must be finite and hold force_n " + Num("%g", p.force_n));
     }
     if (p.ei_nm2) {
       if (!std::isfinite(*p.ei_nm2)) return Status::InvalidArgument(where + ".ei_nm2 must be finite");
@@ -163,6 +179,25 @@ struct RuleArm {
   }
 };
 
+// Two-tier absolute rule (header item 4): the watch fires when the 95 %
+// interval first reaches below the limit without being wholly below it,
+// the confident tier when its top drops below the limit. Returns the tier
+// that fires at this point, if any.
+struct TieredArm {
+  RuleArm possibly, surely;
+  std::optional<std::string> Update(double lo, double hi, double limit) {
+    const bool sure = hi < limit;
+    const bool maybe = lo < limit;
+    const bool fire_watch = possibly.Update(maybe) && !sure;
+    if (!maybe) surely.armed = true;  // re-armed only when the interval is back above the limit
+    const bool fire_sure = sure && surely.armed;
+    if (sure) surely.armed = false;
+    if (fire_sure) return std::string("alert");
+    if (fire_watch) return std::string("watch");
+    return std::nullopt;
+  }
+};
+
 const char* InspectText(Quantity q, bool low) {
   if (q == Quantity::kForce) {
     return low ? "Inspect the end anchorages, nuts, wedges or turnbuckles for slip or loosening, the "
@@ -229,7 +264,7 @@ void ResidualRules(const std::vector<DriftPoint>& series, const std::vector<bool
                           " (z = " + Num("%.1f", z) + ", beyond " + Num("%g", settings.z_threshold) + " on " +
                           std::to_string(settings.consecutive) + " consecutive estimates). " +
                           InspectText(q, low);
-        report->alerts.push_back({rule_z, i, std::move(evidence), {rule_z, std::move(msg)}});
+        report->alerts.push_back({rule_z, "alert", i, std::move(evidence), {rule_z, std::move(msg)}});
       }
     } else {
       run.clear();
@@ -256,7 +291,7 @@ void ResidualRules(const std::vector<DriftPoint>& series, const std::vector<bool
                         " against the temperature-compensated "
                         "baseline. " +
                         InspectText(q, true);
-      report->alerts.push_back({rule_c, i, cusum_run, {rule_c, std::move(msg)}});
+      report->alerts.push_back({rule_c, "alert", i, cusum_run, {rule_c, std::move(msg)}});
       cusum = 0;  // restart after a signal
       cusum_run.clear();
     }
@@ -345,17 +380,39 @@ Status DetectDrift(const std::vector<DriftPoint>& series, const DriftSettings& s
   report.notice = StandingNotice();
   report.points.resize(series.size());
 
-  // 1. Baseline membership; `judged` marks the points the residual rules see.
+  // 1. Baseline membership; `judged` marks the points the residual rules
+  // see. Unusable points (item 5) are in neither; a restart (item 6)
+  // leaves the points before it out of both.
   std::vector<std::size_t> base;
   std::vector<bool> judged(series.size(), false);
-  const bool window = settings.baseline_from_s.has_value();
+  const std::optional<double> start = settings.baseline_start_s;
+  const bool window = settings.baseline_from_s.has_value() && (!start || *settings.baseline_from_s >= *start);
+  std::size_t excluded = 0;
   for (std::size_t i = 0; i < series.size(); ++i) {
     const double t = series[i].time_s;
+    PointAssessment& pa = report.points[i];
+    pa.excluded = !series[i].usable;
+    if (pa.excluded) {
+      ++excluded;
+      continue;
+    }
+    if (start && t < *start) continue;
     const bool in = window ? (t >= *settings.baseline_from_s && t < *settings.baseline_to_s)
-                           : i < settings.baseline_count;
-    report.points[i].in_baseline = in;
+                           : base.size() < settings.baseline_count;
+    pa.in_baseline = in;
     if (in) base.push_back(i);
     judged[i] = !in && (!window || t >= *settings.baseline_to_s);
+  }
+  if (start) {
+    report.cautions.push_back({"drift-baseline-restarted",
+                               "The baseline restarts at a logbook entry: earlier estimates are judged by "
+                               "the absolute rules only."});
+  }
+  if (excluded > 0) {
+    report.cautions.push_back({"drift-unusable-excluded",
+                               std::to_string(excluded) +
+                                   " estimates whose identification was judged unusable were left out of "
+                                   "the baseline and every rule."});
   }
   // A window is complete by definition (FitQuantity cautions when it holds
   // too few points); a count-based baseline waits for its K points.
@@ -410,36 +467,52 @@ Status DetectDrift(const std::vector<DriftPoint>& series, const DriftSettings& s
                                           "compared with the temperature-compensated baseline."});
   }
 
-  // 4. Absolute rules, on every point.
-  RuleArm below_design, compression, ei_loss;
+  // 4. Absolute rules, on every usable point, in two tiers (header item 4).
+  TieredArm below_design, compression, ei_loss;
+  const auto push = [&report](std::size_t i, const std::string& rule, const std::string& tier,
+                              const DriftEvidence& e, const std::string& message) {
+    const std::string code = tier == "watch" ? rule + "-watch" : rule;
+    report.alerts.push_back({code, tier, i, {e}, {code, message}});
+  };
+  const auto range = [](double lo, double hi, const auto& fmt) {
+    return "95 % interval " + fmt(lo) + " to " + fmt(hi);
+  };
+  const auto kn = [](double v) { return Kn(v); };
+  const auto ein = [](double v) { return Ei(v); };
   for (std::size_t i = 0; i < series.size(); ++i) {
     const DriftPoint& p = series[i];
+    if (!p.usable) continue;
+    const double lo = p.force_ci95_low_n.value_or(p.force_n - kZ975 * p.force_std_n);
+    const double hi = p.force_ci95_high_n.value_or(p.force_n + kZ975 * p.force_std_n);
     const DriftEvidence ev{i,           p.id, p.time_s, p.force_n, std::nullopt, std::nullopt, std::nullopt,
                            std::nullopt};
     if (settings.design_force_n && *settings.design_force_n > 0) {
       const double limit = settings.min_force_share_of_design * *settings.design_force_n;
-      if (below_design.Update(p.force_n < limit)) {
-        report.alerts.push_back(
-            {"force-below-design",
-             i,
-             {ev},
-             {"force-below-design",
-              "Axial force " + Kn(p.force_n) + " (std " + Kn(p.force_std_n) + ") is below " +
-                  Num("%.0f", 100 * settings.min_force_share_of_design) + " % of the design force " +
-                  Kn(*settings.design_force_n) + ". " + InspectText(Quantity::kForce, true) +
-                  " Have a structural engineer assess whether the member still carries its intended load."}});
+      if (auto tier = below_design.Update(lo, hi, limit)) {
+        const bool sure = *tier == "alert";
+        push(i, "force-below-design", *tier, ev,
+             "Axial force " + Kn(p.force_n) + " (" + range(lo, hi, kn) + ") is " +
+                 (sure ? "below" : "possibly below") + " " +
+                 Num("%.0f", 100 * settings.min_force_share_of_design) + " % of the design force " +
+                 Kn(*settings.design_force_n) + " (" + Kn(limit) + ")" +
+                 (sure ? " with 95 % confidence. " : ": the interval straddles the limit. ") +
+                 InspectText(Quantity::kForce, true) +
+                 (sure ? " Have a structural engineer assess whether the member still carries its intended "
+                         "load."
+                       : " A repeat record narrows the interval."));
       }
     }
-    if (settings.designed_for_tension && compression.Update(p.force_n < 0)) {
-      report.alerts.push_back(
-          {"compression",
-           i,
-           {ev},
-           {"compression",
-            "Estimated axial force " + Kn(p.force_n) + " (std " + Kn(p.force_std_n) +
-                ") is compressive in a member designed for tension. Inspect the member for bowing "
-                "or buckling, its end connections, and the supports and adjoining structure for "
-                "movement; check the sensors and the member description."}});
+    if (settings.designed_for_tension) {
+      if (auto tier = compression.Update(lo, hi, 0.0)) {
+        const bool sure = *tier == "alert";
+        push(i, "compression", *tier, ev,
+             "Estimated axial force " + Kn(p.force_n) + " (" + range(lo, hi, kn) + ") is " +
+                 (sure ? "compressive with 95 % confidence"
+                       : "possibly compressive (the interval reaches below 0)") +
+                 " in a member designed for tension. Inspect the member for bowing "
+                 "or buckling, its end connections, and the supports and adjoining structure for "
+                 "movement; check the sensors and the member description.");
+      }
     }
     if (p.ei_nm2) {
       std::optional<double> reference = settings.nominal_ei_nm2;
@@ -447,19 +520,21 @@ Status DetectDrift(const std::vector<DriftPoint>& series, const DriftSettings& s
         const BaselineFit& b = *report.ei_baseline;
         reference = b.Predict(b.has_slope && p.temperature_c ? *p.temperature_c : b.mean_temperature_c);
       }
-      if (reference && ei_loss.Update(*p.ei_nm2 < (1.0 - settings.max_ei_loss_share) * *reference)) {
+      if (!reference) continue;
+      const double limit = (1.0 - settings.max_ei_loss_share) * *reference;
+      const double elo = *p.ei_nm2 - kZ975 * *p.ei_std_nm2, ehi = *p.ei_nm2 + kZ975 * *p.ei_std_nm2;
+      if (auto tier = ei_loss.Update(elo, ehi, limit)) {
+        const bool sure = *tier == "alert";
         DriftEvidence e = ev;
         e.value = *p.ei_nm2;
         e.predicted = *reference;
         e.residual = *p.ei_nm2 - *reference;
-        report.alerts.push_back(
-            {"ei-loss",
-             i,
-             {e},
-             {"ei-loss", "Bending stiffness " + Ei(*p.ei_nm2) + " is " +
-                             Num("%.0f", 100 * (1 - *p.ei_nm2 / *reference)) + " % below the reference " +
-                             Ei(*reference) + " (limit " + Num("%.0f", 100 * settings.max_ei_loss_share) +
-                             " %). " + InspectText(Quantity::kEi, true)}});
+        push(i, "ei-loss", *tier, e,
+             "Bending stiffness " + Ei(*p.ei_nm2) + " (" + range(elo, ehi, ein) + ") is " +
+                 Num("%.0f", 100 * (1 - *p.ei_nm2 / *reference)) + " % below the reference " +
+                 Ei(*reference) + (sure ? "; below the limit " : "; possibly below the limit ") + Ei(limit) +
+                 " (" + Num("%.0f", 100 * settings.max_ei_loss_share) + " % loss)" +
+                 (sure ? " with 95 % confidence. " : ". ") + InspectText(Quantity::kEi, true));
       }
     }
   }
@@ -467,6 +542,31 @@ Status DetectDrift(const std::vector<DriftPoint>& series, const DriftSettings& s
                    [](const DriftAlert& a, const DriftAlert& b) { return a.index < b.index; });
   *out = std::move(report);
   return Status::Ok();
+}
+
+const char* RuleTier(const std::string& rule) {
+  static const std::string kSuffix = "-watch";
+  const bool watch = rule.size() > kSuffix.size() &&
+                     rule.compare(rule.size() - kSuffix.size(), kSuffix.size(), kSuffix) == 0;
+  return watch ? "watch" : "alert";
+}
+
+std::optional<DriftAlert> StaleDataAlert(const std::vector<DriftPoint>& series, const DriftSettings& settings,
+                                         double now_s) {
+  if (!settings.max_silence_s) return std::nullopt;
+  for (std::size_t k = series.size(); k-- > 0;) {
+    const DriftPoint& p = series[k];
+    if (!p.usable) continue;
+    const double silence = now_s - p.time_s;
+    if (!(silence > *settings.max_silence_s)) return std::nullopt;
+    DriftEvidence e{k, p.id, p.time_s, p.force_n, std::nullopt, std::nullopt, std::nullopt, std::nullopt};
+    std::string msg = "No usable record for " + Num("%.1f", silence / 3600.0) + " h (longer than the " +
+                      Num("%.1f", *settings.max_silence_s / 3600.0) +
+                      " h set for this member): the member is not being watched. Check the gateway, the "
+                      "sensors and their power, and repeat records the identification judged unusable.";
+    return DriftAlert{"stale-data", "alert", k, {e}, {"stale-data", std::move(msg)}};
+  }
+  return std::nullopt;
 }
 
 }  // namespace taut::estimation

@@ -57,13 +57,36 @@
 //      report carries the caution "drift-cusum-short-baseline" then. Lower side
 //      only: a loss of force or stiffness is what this rule is for; a rise
 //      is caught by the two-sided residual rule.
-//    - "force-below-design": force < min_force_share_of_design * design
-//      force (default 0.5, a project default to be set per member).
-//    - "compression": force < 0 in a member designed for tension.
-//    - "ei-loss": EI below (1 - max_ei_loss_share) of the reference EI
-//      (the nominal EI if given, else the baseline mean at T0); default
-//      share 0.2, a project default.
+//    - The absolute rules compare the estimate's 95 % interval [lo, hi]
+//      with a limit, in two tiers:
+//        "<rule>"        below with 95 % confidence: hi < limit;
+//        "<rule>-watch"  possibly below: lo < limit <= hi (the interval
+//                        straddles the limit).
+//      The interval is the stored one (force_ci95_*_n) when given, else
+//      value +- z_0.975 std with z_0.975 = 1.959964 (the standard normal
+//      quantile, Abramowitz and Stegun, Handbook of Mathematical
+//      Functions, 1964, table 26.1). A watch fires when the interval first
+//      reaches below the limit and is not yet confidently below; the
+//      confident tier fires when hi first drops below the limit (so a
+//      member sliding down raises the watch, then the alert). Both are
+//      armed again when lo is back at or above the limit.
+//      - "force-below-design": limit min_force_share_of_design * design
+//        force (default 0.5, a project default to be set per member).
+//      - "compression": limit 0, in a member designed for tension.
+//      - "ei-loss": limit (1 - max_ei_loss_share) of the reference EI
+//        (the nominal EI if given, else the baseline mean at T0); default
+//        share 0.2, a project default.
 //    Points inside the baseline are judged by the absolute rules only.
+// 5. Unusable estimates (DriftPoint::usable false: the identification's
+//    verdict said "repeat the record") take no part: they are in no
+//    baseline, judged by no rule and raise nothing (PointAssessment::
+//    excluded).
+// 6. A new baseline (DriftSettings::baseline_start_s, e.g. from a logbook
+//    entry "re-tensioned"): the baseline is formed from the usable points
+//    at or after that time; earlier points are judged by the absolute
+//    rules only. A baseline window that starts before it is set aside.
+// 7. Stale data (StaleDataAlert): no usable estimate for longer than the
+//    member's max_silence_s; judged against a clock the caller gives.
 //
 // Every alert carries the evidence (the points involved with residuals) and
 // a caution naming what to inspect; no alert or its absence says that a
@@ -103,7 +126,16 @@ struct DriftPoint {
   double force_std_n = 0;  // one standard deviation, >= 0
   std::optional<double> ei_nm2;
   std::optional<double> ei_std_nm2;  // required (>= 0) when ei_nm2 is set
+  // The estimate's 95 % interval of the force (both or neither; lo <= force
+  // <= hi). Absent: force +- 1.959964 force_std_n.
+  std::optional<double> force_ci95_low_n, force_ci95_high_n;
+  // false: the identification's verdict is "unusable" (see item 5).
+  bool usable = true;
 };
+
+// The standard normal 0.975 quantile (Abramowitz and Stegun 1964, table
+// 26.1: 1.959964; more digits from scipy.stats.norm.ppf(0.975)).
+inline constexpr double kZ975 = 1.959963984540054;
 
 struct DriftSettings {
   // Baseline: the first baseline_count points, unless both window bounds
@@ -121,6 +153,12 @@ struct DriftSettings {
   bool designed_for_tension = true;        // compression rule on/off
   std::optional<double> nominal_ei_nm2;    // reference of the ei-loss rule
   double max_ei_loss_share = 0.2;          // in (0, 1)
+
+  // Item 6: the baseline restarts here (s on the series' epoch).
+  std::optional<double> baseline_start_s;
+  // Item 7: longest time without a usable estimate before "stale-data"
+  // (s, > 0); absent: the rule is off.
+  std::optional<double> max_silence_s;
 };
 
 // Ordinary least squares of x on temperature over the baseline.
@@ -160,7 +198,10 @@ struct DriftEvidence {
 };
 
 struct DriftAlert {
-  std::string rule;       // machine code, see the header comment
+  std::string rule;  // machine code, see the header comment
+  // "alert": a drift rule or an absolute rule with 95 % confidence;
+  // "watch": an absolute rule whose limit lies inside the interval.
+  std::string tier = "alert";
   std::size_t index = 0;  // the point at which the rule fired
   std::vector<DriftEvidence> evidence;
   Caution caution;  // code = rule; message: what moved and what to inspect
@@ -168,6 +209,7 @@ struct DriftAlert {
 
 struct PointAssessment {
   bool in_baseline = false;
+  bool excluded = false;                // unusable estimate (item 5): no rule saw it
   std::optional<double> force_z, ei_z;  // absent: baseline point or no prediction possible
   double force_cusum = 0, ei_cusum = 0;
 };
@@ -186,5 +228,15 @@ struct DriftReport {
 // range. A series shorter than the baseline is not an error: only the
 // absolute rules run, with a caution.
 Status DetectDrift(const std::vector<DriftPoint>& series, const DriftSettings& settings, DriftReport* out);
+
+// The tier of a rule code: "watch" for the "-watch" codes, else "alert".
+const char* RuleTier(const std::string& rule);
+
+// Item 7: when settings.max_silence_s is set and the newest usable point of
+// `series` (time order) is older than now_s - max_silence_s, the
+// "stale-data" alert with that point as its evidence (index: that point).
+// No usable point at all: nothing (the rule starts with the first one).
+std::optional<DriftAlert> StaleDataAlert(const std::vector<DriftPoint>& series, const DriftSettings& settings,
+                                         double now_s);
 
 }  // namespace taut::estimation

@@ -1,6 +1,8 @@
 // libFuzzer: the route table (server/http_router.h) on any method and path:
 // matching must never throw (ids of 1..18 digits only), and a match has as
 // many captured ids as its pattern has "{...}" segments.
+#include <httplib.h>
+
 #include <cstddef>
 #include <cstdint>
 #include <cstdlib>
@@ -32,11 +34,12 @@ const taut::server::Router& Table() {
 extern "C" int LLVMFuzzerTestOneInput(const std::uint8_t* data, std::size_t size) {
   const std::string input(reinterpret_cast<const char*>(data), size);
   const auto space = input.find(' ');
-  const std::string method = input.substr(0, space);
-  const std::string path = space == std::string::npos ? "/" : input.substr(space + 1);
+  httplib::Request req;
+  req.method = input.substr(0, space);
+  req.path = space == std::string::npos ? "/" : input.substr(space + 1);
   std::vector<taut::storage::Id> ids;
   std::string allow;
-  const taut::server::Route* r = Table().Find(method, path, &ids, &allow);
+  const taut::server::Route* r = Table().Find(req, &ids, &allow);
   if (r) {
     std::size_t captures = 0;
     for (const auto& s : r->segments) captures += !s.empty() && s.front() == '{';

@@ -19,6 +19,7 @@ json AlertToJson(const storage::Alert& a) {
             {"member_id", a.member_id},
             {"estimate_id", a.estimate_id ? json(*a.estimate_id) : json(nullptr)},
             {"rule", a.rule},
+            {"tier", estimation::RuleTier(a.rule)},
             {"state", storage::AlertStateName(a.state)},
             {"message", a.message},
             {"evidence", StoredJson(a.evidence)},
@@ -47,7 +48,8 @@ json DriftSettingsToJson(const estimation::DriftSettings& s) {
           {"cusum_h", s.cusum_h},
           {"min_force_share_of_design", s.min_force_share_of_design},
           {"designed_for_tension", s.designed_for_tension},
-          {"max_ei_loss_share", s.max_ei_loss_share}};
+          {"max_ei_loss_share", s.max_ei_loss_share},
+          {"max_silence_hours", s.max_silence_s ? json(*s.max_silence_s / 3600.0) : json(nullptr)}};
 }
 
 Status DriftSettingsFromJson(const json& j, estimation::DriftSettings* settings) {
@@ -99,6 +101,15 @@ Status DriftSettingsFromJson(const json& j, estimation::DriftSettings* settings)
       st = number(key, &s.min_force_share_of_design);
     } else if (key == "max_ei_loss_share") {
       st = number(key, &s.max_ei_loss_share);
+    } else if (key == "max_silence_hours") {
+      if (value.is_null()) {
+        s.max_silence_s.reset();
+      } else {
+        double hours = 0;
+        st = number(key, &hours);
+        if (st.ok() && !(hours > 0)) return Status::InvalidArgument("$." + key + ": must be null or > 0");
+        s.max_silence_s = hours * 3600.0;
+      }
     } else if (key == "designed_for_tension") {
       if (!value.is_boolean()) return Status::InvalidArgument("$." + key + ": must be true or false");
       s.designed_for_tension = value.get<bool>();
@@ -106,7 +117,7 @@ Status DriftSettingsFromJson(const json& j, estimation::DriftSettings* settings)
       return Status::InvalidArgument("$." + key +
                                      ": unknown key (known: baseline_count, baseline_from, baseline_to, "
                                      "z_threshold, consecutive, cusum_k, cusum_h, min_force_share_of_design, "
-                                     "designed_for_tension, max_ei_loss_share)");
+                                     "designed_for_tension, max_ei_loss_share, max_silence_hours)");
     }
     if (!st.ok()) return st;
   }

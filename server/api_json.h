@@ -23,7 +23,8 @@ nlohmann::json StoredJson(const std::string& text);
 //   {"baseline_count": 10, "baseline_from": null, "baseline_to": null,
 //    "z_threshold": 3, "consecutive": 2, "cusum_k": 0.5, "cusum_h": 8,
 //    "min_force_share_of_design": 0.5, "designed_for_tension": true,
-//    "max_ei_loss_share": 0.2}
+//    "max_ei_loss_share": 0.2, "max_silence_hours": null}
+// max_silence_hours: the stale-data rule (null = off).
 // baseline_from / baseline_to are ISO 8601 UTC times (both or neither).
 // The design force and nominal EI come from the member description, not
 // from here.

@@ -29,6 +29,7 @@ int Main(int argc, const char* const* argv, std::ostream& out, std::ostream& err
   RegisterDemoCommand(app, &ctx);
   RegisterFormatsCommand(app, &ctx);
   RegisterUploadCommand(app, &ctx);
+  RegisterReportCommand(app, &ctx);
   try {
     app.parse(argc, argv);
   } catch (const CLI::CallForHelp&) {

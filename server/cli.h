@@ -32,6 +32,7 @@ void RegisterUploadCommand(CLI::App& app, CliContext* ctx);
 
 // Sections 1 and 2 of docs/FORMATS.md (generated at build time).
 const char* FormatsSummaryText();
+void RegisterReportCommand(CLI::App& app, CliContext* ctx);  // cli_report.cpp
 
 // SIGINT and SIGTERM for a long-running command: BlockStopSignals() before
 // any thread starts (threads inherit the mask, so a stop request never

@@ -184,7 +184,7 @@ json Answer(const httplib::Result& r, int expected, const std::string& what) {
 void PrintPortfolio(std::ostream& out, const json& p, const std::map<std::string, double>& truth) {
   out << "\n" << p["structure"]["name"].get<std::string>() << "\n";
   out << "  " << std::left << std::setw(17) << "member" << std::right << std::setw(9) << "force kN"
-      << std::setw(19) << "95 % interval kN" << std::setw(10) << "true kN" << std::setw(8) << "util"
+      << std::setw(19) << "95 % interval kN" << std::setw(10) << "true kN" << std::setw(8) << "N/Nd"
       << std::setw(10) << "EI N m2" << std::setw(22) << "last record" << std::setw(8) << "alerts"
       << "\n";
   for (const auto& m : p["members"]) {
@@ -200,7 +200,8 @@ void PrintPortfolio(std::ostream& out, const json& p, const std::map<std::string
                                  Fixed(l["ci95_n"][1].get<double>() / 1e3, 1) + "]";
     out << std::setw(9) << Fixed(l["axial_force_n"].get<double>() / 1e3, 1) << std::setw(19) << interval
         << std::setw(10) << (truth.count(id) ? Fixed(truth.at(id) / 1e3, 1) : "-") << std::setw(8)
-        << (m["utilisation"].is_null() ? "-" : Fixed(m["utilisation"].get<double>(), 2)) << std::setw(10)
+        << (m["force_ratio"].is_null() ? "-" : Fixed(m["force_ratio"]["value"].get<double>(), 2))
+        << std::setw(10)
         << (l["bending_stiffness_nm2"].is_null() ? "-" : Fixed(l["bending_stiffness_nm2"].get<double>(), 0))
         << std::setw(22) << m["last_record_at"].get<std::string>() << std::setw(8)
         << m["open_alerts"].get<int>() << "\n";
@@ -444,7 +445,8 @@ int RunDemo(const DemoOptions& o, std::ostream& out, std::ostream& err) {
                  "portfolio"),
           last_truth);
     }
-    out << "  (true kN: the force the records were simulated with; util: force / design force)\n";
+    out << "  (true kN: the force the records were simulated with; N/Nd: force ratio, force / design force; "
+           "low is the danger for a tie)\n";
     const json alerts = Answer(as_admin.Get("/v1/alerts"), 200, "alerts")["alerts"];
     out << "\nAlerts (" << alerts.size() << ")\n";
     std::map<std::int64_t, std::string> names;

@@ -281,6 +281,9 @@ std::vector<estimation::DriftPoint> DriftSeries(const std::vector<storage::Estim
     p.temperature_c = e.temperature_c;
     p.force_n = e.axial_force_n;
     p.force_std_n = e.force_std_n.value_or(0.0);
+    p.force_ci95_low_n = e.force_ci95_low_n;
+    p.force_ci95_high_n = e.force_ci95_high_n;
+    p.usable = e.verdict_code != "unusable";  // SHARED-DECISIONS item 1: no verdict = usable
     if (e.bending_stiffness_nm2 && e.bending_stiffness_std_nm2) {
       p.ei_nm2 = e.bending_stiffness_nm2;
       p.ei_std_nm2 = e.bending_stiffness_std_nm2;
@@ -342,11 +345,9 @@ Status MemberDriftJson(const model::Member& member, const estimation::DriftSetti
     const storage::Estimate& e = history[i];
     if (e.measured_at_unix_ms < from_unix_ms || e.measured_at_unix_ms >= to_unix_ms) continue;
     const estimation::PointAssessment& pa = report.points[i];
-    json p = {{"estimate_id", e.id},
-              {"measured_at", FormatIsoUtc(e.measured_at_unix_ms)},
-              {"in_baseline", pa.in_baseline},
-              {"force_z", Number(pa.force_z)},
-              {"force_cusum", Number(pa.force_cusum)},
+    json p = {{"estimate_id", e.id},           {"measured_at", FormatIsoUtc(e.measured_at_unix_ms)},
+              {"in_baseline", pa.in_baseline}, {"excluded", pa.excluded},
+              {"force_z", Number(pa.force_z)}, {"force_cusum", Number(pa.force_cusum)},
               {"ei_z", Number(pa.ei_z)}};
     const double fstd = e.force_std_n.value_or(0.0);
     Limits(report.force_baseline, e.temperature_c, fstd * fstd, settings.z_threshold, &p["force_expected_n"],
@@ -364,6 +365,7 @@ Status MemberDriftJson(const model::Member& member, const estimation::DriftSetti
   json alerts = json::array();
   for (const auto& a : report.alerts) {
     alerts.push_back({{"rule", a.rule},
+                      {"tier", a.tier},
                       {"estimate_id", series[a.index].id},
                       {"measured_at", TimeText(series[a.index].time_s)},
                       {"message", a.caution.message}});

@@ -7,6 +7,7 @@
 #include <optional>
 
 #include "estimation/drift.h"
+#include "server/alert_rules.h"
 #include "server/api_json.h"
 #include "server/dashboard_data.h"
 #include "server/iso_time.h"
@@ -96,6 +97,10 @@ bool CheckDriftAndRaiseAlerts(storage::Repository& repo, Id organisation_id, Id 
       !p.ok()) {
     log("level=error " + where + " stored settings ignored: " + p.message);
     EffectiveDriftSettings(member, nullptr, plane, &settings);
+  }
+  if (StorageStatus s = ApplyLogbookBaseline(repo, organisation_id, member_id, &settings); !s.ok()) {
+    log("level=error " + where + ": " + s.message);
+    return false;
   }
   std::vector<storage::Estimate> history;
   if (StorageStatus s =

@@ -96,7 +96,7 @@ struct ApiServer::Impl {
     try {
       std::vector<Id> ids;
       std::string allow;
-      const Route* route = router.Find(req.method, req.path, &ids, &allow);
+      const Route* route = router.Find(req, &ids, &allow);
       if (!route) {
         if (reader) GuardedServer::CloseAfterResponse(res);  // body left unread
         if (!allow.empty()) {

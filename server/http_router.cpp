@@ -112,17 +112,18 @@ std::optional<Id> QueryId(const httplib::Request& req, const char* name) {
 
 // ------------------------------------------------------------------ router
 
-void Router::Add(const char* method, const std::string& pattern, storage::Role min_role, Handler handler,
-                 bool auth) {
-  routes_.push_back({method, pattern, Segments(pattern), auth, min_role, handler});
+void Router::Add(const std::string& method, const std::string& pattern, storage::Role min_role,
+                 Handler handler, bool auth, Condition when) {
+  routes_.push_back(
+      {method, pattern, Segments(pattern), auth, min_role, std::move(handler), std::move(when)});
 }
 
-const Route* Router::Find(const std::string& method, const std::string& path, std::vector<Id>* ids,
-                          std::string* allow) const {
-  const std::vector<std::string> segments = Segments(path);
+const Route* Router::Find(const httplib::Request& req, std::vector<Id>* ids, std::string* allow) const {
+  const std::string& method = req.method;
+  const std::vector<std::string> segments = Segments(req.path);
   allow->clear();
   for (const Route& r : routes_) {
-    if (!Match(r, segments, ids)) continue;
+    if (!Match(r, segments, ids) || (r.when && !r.when(req))) continue;
     if (r.method == method) return &r;
     *allow += (allow->empty() ? "" : ", ") + r.method;
   }

@@ -9,6 +9,7 @@
 #pragma once
 
 #include <cstdint>
+#include <functional>
 #include <nlohmann/json.hpp>
 #include <optional>
 #include <string>
@@ -83,7 +84,10 @@ struct Call {
   const std::string& body;      // the request body (at most options.max_body_bytes)
 };
 
-using Handler = void (*)(Call&);
+using Handler = std::function<void(Call&)>;
+// A route with a condition answers only when it holds (e.g. ?format=csv);
+// otherwise the search goes on to later routes of the same path.
+using Condition = std::function<bool(const httplib::Request&)>;
 
 struct Route {
   std::string method;
@@ -92,6 +96,7 @@ struct Route {
   bool auth;
   storage::Role min_role;
   Handler handler;
+  Condition when;  // empty: always
 };
 
 class Router {
@@ -100,14 +105,14 @@ class Router {
   // captured; a last segment "**" matches the rest of the path, zero or
   // more segments; every other segment matches itself. `auth` false: no
   // token needed (min_role is then ignored).
-  void Add(const char* method, const std::string& pattern, storage::Role min_role, Handler handler,
-           bool auth = true);
+  void Add(const std::string& method, const std::string& pattern, storage::Role min_role, Handler handler,
+           bool auth = true, Condition when = {});
 
-  // The route for method and path (first match in registration order), or
-  // nullptr; then *allow lists the methods of the routes whose pattern
-  // matched the path ("" when none: 404, else 405).
-  const Route* Find(const std::string& method, const std::string& path, std::vector<storage::Id>* ids,
-                    std::string* allow) const;
+  // The route for the request's method and path (first match in
+  // registration order whose condition holds), or nullptr; then *allow
+  // lists the methods of the routes whose pattern matched the path ("" when
+  // none: 404, else 405).
+  const Route* Find(const httplib::Request& req, std::vector<storage::Id>* ids, std::string* allow) const;
 
   // "/v1/members/12" -> {"v1", "members", "12"}.
   static std::vector<std::string> Segments(const std::string& path);

@@ -3,6 +3,9 @@
 namespace taut::server {
 
 void RegisterRoutes(Router& r) {
+  // First: a route of these with a condition (?format=csv) answers instead
+  // of the core route of the same path when the condition holds.
+  RegisterAssetFileRoutes(r);
   RegisterServiceRoutes(r);
   RegisterStructureRoutes(r);
   RegisterMemberRoutes(r);

@@ -13,6 +13,7 @@ namespace taut::server {
 // Registers every route of the API, in the order they are matched.
 void RegisterRoutes(Router& r);
 
+void RegisterAssetFileRoutes(Router& r);     // routes_common.cpp (logbook, CSV, triage, report)
 void RegisterServiceRoutes(Router& r);       // routes_service.cpp
 void RegisterStructureRoutes(Router& r);     // routes_structures.cpp
 void RegisterMemberRoutes(Router& r);        // routes_members.cpp

@@ -3,6 +3,7 @@
 #include <cmath>
 #include <limits>
 
+#include "server/alert_rules.h"
 #include "server/api_json.h"
 #include "server/dashboard_data.h"
 #include "server/http_router.h"
@@ -83,45 +84,6 @@ void FixityHistory(Call& c) {
       [](const storage::Repository::FixityRow& r) { return FixityPointJson(r); });
 }
 
-void Portfolio(Call& c) {
-  storage::Structure s;
-  Check(c.repo.GetStructure(c.who.organisation_id, c.ids[0], &s));
-  std::vector<storage::Member> members;
-  Check(c.repo.ListMembers(c.who.organisation_id, c.ids[0], &members));
-  json rows = json::array();
-  for (const auto& m : members) {
-    const json description = StoredJson(m.description_json);
-    std::optional<double> design;
-    if (description.is_object() && description.contains("design_axial_force_n") &&
-        description["design_axial_force_n"].is_number()) {
-      design = description["design_axial_force_n"].get<double>();
-    }
-    json row = {
-        {"member_id", m.id}, {"external_id", m.external_id}, {"design_axial_force_n", Optional(design)},
-        {"latest", nullptr}, {"utilisation", nullptr},       {"last_record_at", nullptr}};
-    storage::Estimate e;
-    if (StorageStatus st = c.repo.LatestEstimate(c.who.organisation_id, m.id, &e); st.ok()) {
-      row["latest"] = HistoryPointJson(e);
-      const json result = StoredJson(e.result_json);
-      if (result.is_object() && result.contains("cautions")) row["latest"]["cautions"] = result["cautions"];
-      if (design && *design != 0) row["utilisation"] = e.axial_force_n / *design;
-    } else if (!st.not_found()) {
-      Check(st);
-    }
-    std::int64_t last = 0;
-    if (StorageStatus st = c.repo.LatestRecordTime(c.who.organisation_id, m.id, &last); st.ok()) {
-      row["last_record_at"] = FormatIsoUtc(last);
-    } else if (!st.not_found()) {
-      Check(st);
-    }
-    std::vector<storage::Alert> open;
-    Check(c.repo.ListAlerts(c.who.organisation_id, {m.id, storage::AlertState::kOpen}, &open));
-    row["open_alerts"] = open.size();
-    rows.push_back(row);
-  }
-  SendJson(c.res, 200, {{"structure", StructureJson(s)}, {"members", rows}});
-}
-
 void EstimateSpectrum(Call& c) {
   storage::Estimate e;
   Check(c.repo.GetEstimate(c.who.organisation_id, c.ids[0], &e));
@@ -163,6 +125,7 @@ void MemberDrift(Call& c) {
       !s.ok()) {
     Fail(500, "internal", "stored drift settings of member " + std::to_string(m.id) + ": " + s.message);
   }
+  Check(ApplyLogbookBaseline(c.repo, c.who.organisation_id, m.id, &settings));
   std::vector<storage::Estimate> all;  // the rules run over the whole series, as the workers do
   Check(c.repo.ForceHistory(c.who.organisation_id, m.id, std::numeric_limits<std::int64_t>::min(),
                             std::numeric_limits<std::int64_t>::max(), &all));
@@ -177,7 +140,6 @@ void MemberDrift(Call& c) {
 
 void RegisterEstimateRoutes(Router& r) {
   using storage::Role;
-  r.Add("GET", "/v1/structures/{id}/portfolio", Role::kRead, Portfolio);
   r.Add("GET", "/v1/members/{id}/force", Role::kRead, LatestForce);
   r.Add("GET", "/v1/members/{id}/force/history", Role::kRead, ForceHistory);
   r.Add("GET", "/v1/estimates/{id}", Role::kRead, GetEstimate);

@@ -5,6 +5,7 @@
 #include <map>
 #include <memory>
 
+#include "server/alert_rules.h"
 #include "server/drift_alerts.h"
 #include "server/iso_time.h"
 #include "server/job_run.h"
@@ -73,8 +74,11 @@ struct WorkerPool::Impl {
       return;
     }
     storage::Repository repo(db);
+    StaleDataWatch stale;  // the stale-data rule runs on worker 0 only
     while (!Stopping()) {
       CatchUpDriftChecks(repo);
+      if (index == 0 && stale.Tick(repo, NowUnixMs(), [this](const std::string& l) { Log(l); }) > 0)
+        SignalWebhooks();
       storage::Job job;
       bool claimed = false;
       if (StorageStatus s = repo.ClaimNextJob(NowUnixMs(), &job, &claimed); !s.ok()) {

@@ -266,13 +266,47 @@ constexpr const char* kV6 = R"sql(
 ALTER TABLE record ADD COLUMN reader_notes TEXT NOT NULL DEFAULT '';
 )sql";
 
-constexpr std::array<Migration, 6> kMigrations = {{
+// Step 7 (issue 16): what the asset file and the triage need.
+// - estimate.verdict_code: the identification's verdict ("usable",
+//   "reduced-confidence", "unusable"; NULL for results stored without one,
+//   which count as usable), extracted at insert like end_fixity_json, and
+//   added to the covering index of the history query so that the drift
+//   rules can leave unusable estimates out without reading the results.
+// - member_log: the member logbook (re-tensioned, sensor replaced,
+//   repaired, inspected, other), with free text, author and time; an entry
+//   with new_baseline = 1 restarts the member's drift baseline at its time.
+constexpr const char* kV7 = R"sql(
+ALTER TABLE estimate ADD COLUMN verdict_code TEXT;
+UPDATE estimate SET verdict_code = json_extract(result_json, '$.verdict.code') WHERE json_valid(result_json);
+DROP INDEX estimate_member_time;
+CREATE INDEX estimate_member_time ON estimate(organisation_id, member_id, measured_at_unix_ms, id,
+  member_version, record_id, job_id, temperature_c, axial_force_n, force_std_n, force_ci95_low_n,
+  force_ci95_high_n, bending_stiffness_nm2, bending_stiffness_std_nm2, created_at_unix_ms, verdict_code);
+CREATE TABLE member_log (
+  id                  INTEGER PRIMARY KEY,
+  organisation_id     INTEGER NOT NULL,
+  member_id           INTEGER NOT NULL,
+  kind                TEXT NOT NULL CHECK (kind IN ('re-tensioned', 'sensor-replaced', 'repaired',
+                                                    'inspected', 'other')),
+  note                TEXT NOT NULL DEFAULT '' CHECK (length(note) <= 4000),
+  author              TEXT NOT NULL CHECK (length(author) BETWEEN 1 AND 200),
+  occurred_at_unix_ms INTEGER NOT NULL,
+  new_baseline        INTEGER NOT NULL DEFAULT 0 CHECK (new_baseline IN (0, 1)),
+  created_at_unix_ms  INTEGER NOT NULL,
+  UNIQUE (organisation_id, id),
+  FOREIGN KEY (organisation_id, member_id) REFERENCES member(organisation_id, id)
+);
+CREATE INDEX member_log_member_time ON member_log(organisation_id, member_id, occurred_at_unix_ms);
+)sql";
+
+constexpr std::array<Migration, 7> kMigrations = {{
     {1, "initial schema", kV1},
     {2, "estimate: member version, temperature, standard deviations, history index", kV2},
     {3, "alerts and webhooks", kV3},
     {4, "drift checks that survive a restart, alert once per rule and estimate, drift settings", kV4},
     {5, "estimate: end fixities extracted from the result", kV5},
     {6, "record: the reader's notes (dialect, calibration applied)", kV6},
+    {7, "estimate: verdict extracted from the result; member logbook", kV7},
 }};
 
 constexpr const char* kMigrationTable = R"sql(

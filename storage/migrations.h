@@ -16,6 +16,13 @@
 //      bending_stiffness_std_nm2 (backfilled from the record) and the
 //      (organisation, member, time) index of the force-history query
 //   3  alert, webhook_subscription, webhook_delivery
+//   4  drift checks that survive a restart, one alert per rule and
+//      estimate, member_drift_settings
+//   5  estimate.end_fixity_json extracted from the result
+//   6  record.reader_notes (dialect, calibration applied)
+//   7  estimate.verdict_code (in the history index), member_log
+// Every step has a PostgreSQL twin of the same number
+// (postgres_migrations.h).
 #pragma once
 
 #include <string>

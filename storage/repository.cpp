@@ -156,11 +156,11 @@ Job ReadJob(const Statement& s) {
   return j;
 }
 
-// Columns 0..13; result_json is selected separately where needed.
+// Columns 0..15; result_json is selected separately where needed.
 constexpr const char* kEstimateColumns =
     "id, organisation_id, member_id, member_version, record_id, job_id, measured_at_unix_ms, "
     "temperature_c, axial_force_n, force_std_n, force_ci95_low_n, force_ci95_high_n, "
-    "bending_stiffness_nm2, bending_stiffness_std_nm2, created_at_unix_ms";
+    "bending_stiffness_nm2, bending_stiffness_std_nm2, created_at_unix_ms, coalesce(verdict_code, '')";
 
 Estimate ReadEstimate(const Statement& s) {
   Estimate e;
@@ -179,6 +179,7 @@ Estimate ReadEstimate(const Statement& s) {
   e.bending_stiffness_nm2 = s.OptionalDouble(12);
   e.bending_stiffness_std_nm2 = s.OptionalDouble(13);
   e.created_at_unix_ms = s.Int64(14);
+  e.verdict_code = s.Text(15);
   return e;
 }
 
@@ -823,8 +824,9 @@ StorageStatus Repository::CompleteJobWithEstimate(Id job_id, const NewEstimate& 
         "INSERT INTO estimate (organisation_id, member_id, member_version, record_id, job_id, "
         "measured_at_unix_ms, temperature_c, axial_force_n, force_std_n, force_ci95_low_n, "
         "force_ci95_high_n, bending_stiffness_nm2, bending_stiffness_std_nm2, result_json, "
-        "created_at_unix_ms, end_fixity_json) VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, ?11, ?12, "
-        "?13, ?14, ?15, CASE WHEN json_valid(?14) THEN json_extract(?14, '$.end_fixity') END)");
+        "created_at_unix_ms, end_fixity_json, verdict_code) VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, "
+        "?11, ?12, ?13, ?14, ?15, CASE WHEN json_valid(?14) THEN json_extract(?14, '$.end_fixity') END, "
+        "CASE WHEN json_valid(?14) THEN json_extract(?14, '$.verdict.code') END)");
     ins.Bind(1, organisation_id)
         .Bind(2, member_id)
         .Bind(3, member_version)
@@ -874,7 +876,7 @@ StorageStatus Repository::GetEstimate(Id organisation_id, Id estimate_id, Estima
   s.Bind(1, estimate_id).Bind(2, organisation_id);
   return ReadOne(s, IdText("estimate", estimate_id), [&](const Statement& r) {
     *out = ReadEstimate(r);
-    out->result_json = r.Text(15);
+    out->result_json = r.Text(16);
   });
 }
 
@@ -885,7 +887,7 @@ StorageStatus Repository::LatestEstimate(Id organisation_id, Id member_id, Estim
   s.Bind(1, organisation_id).Bind(2, member_id);
   return ReadOne(s, "estimate of " + IdText("member", member_id), [&](const Statement& r) {
     *out = ReadEstimate(r);
-    out->result_json = r.Text(15);
+    out->result_json = r.Text(16);
   });
 }
 
@@ -1137,7 +1139,7 @@ StorageStatus Repository::EstimateForRecord(Id organisation_id, Id record_id, Es
   s.Bind(1, record_id).Bind(2, organisation_id);
   return ReadOne(s, "estimate of " + IdText("record", record_id), [&](const Statement& r) {
     *out = ReadEstimate(r);
-    out->result_json = r.Text(15);
+    out->result_json = r.Text(16);
   });
 }
 
@@ -1254,6 +1256,17 @@ StorageStatus Repository::SetDriftSettings(Id organisation_id, Id member_id, std
                 "excluded.updated_at_unix_ms");
     s.Bind(1, organisation_id).Bind(2, member_id).Bind(3, settings_json).Bind(4, now_unix_ms);
     return s.Run();
+  });
+}
+
+StorageStatus Repository::ListAllDriftSettings(std::vector<MemberSettings>* out) {
+  Statement s(
+      db_.handle(),
+      "SELECT d.organisation_id, d.member_id, d.settings_json FROM member_drift_settings d JOIN member m "
+      "ON m.id = d.member_id AND m.organisation_id = d.organisation_id WHERE m.deleted_at_unix_ms IS "
+      "NULL ORDER BY d.organisation_id, d.member_id");
+  return ReadAll(s, out, [](const Statement& r) {
+    return MemberSettings{r.Int64(0), r.Int64(1), r.Text(2)};
   });
 }
 

@@ -179,6 +179,9 @@ struct Estimate {
   std::optional<double> bending_stiffness_nm2, bending_stiffness_std_nm2;
   std::string result_json;  // empty in ForceHistory rows (not selected, to keep it fast)
   std::int64_t created_at_unix_ms = 0;
+  // The result's verdict.code ("usable", "reduced-confidence", "unusable");
+  // "" for a result stored without a verdict (counts as usable).
+  std::string verdict_code;
 };
 
 enum class AlertState { kOpen, kAcknowledged, kResolved };
@@ -240,6 +243,7 @@ StorageStatus DecodeSamples(std::string_view blob, std::size_t expected_values, 
 class Repository {
  public:
   explicit Repository(Database& db) : db_(db) {}  // db: not owned; must outlive this
+  Database& database() { return db_; }            // for the other stores on the same connection (logbook.h)
 
   // --- organisations and tokens ---------------------------------------
   StorageStatus CreateOrganisation(std::string_view name, std::int64_t now_unix_ms, Id* id);
@@ -379,6 +383,14 @@ class Repository {
   StorageStatus GetDriftSettings(Id organisation_id, Id member_id, std::string* settings_json);
   StorageStatus SetDriftSettings(Id organisation_id, Id member_id, std::string_view settings_json,
                                  std::int64_t now_unix_ms);
+  // Every stored drift settings row of live members (unscoped, for the
+  // workers' periodic stale-data check).
+  struct MemberSettings {
+    Id organisation_id = 0;
+    Id member_id = 0;
+    std::string settings_json;
+  };
+  StorageStatus ListAllDriftSettings(std::vector<MemberSettings>* out);
   // Deliveries due at `now_unix_ms` (unscoped, for the webhook thread):
   // every (active subscription, alert raised after the subscription was
   // created) of one organisation without a successful attempt, whose last

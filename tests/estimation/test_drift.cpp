@@ -217,6 +217,8 @@ TEST(DetectDrift, FalseAlarmRateMatchesTheGaussianRateOfTheThreshold) {
   // design force set, EI scatter 3 % << the 20 % loss limit).
   EXPECT_EQ(series_with["compression"], 0);
   EXPECT_EQ(series_with["ei-loss"], 0);
+  EXPECT_EQ(series_with["compression-watch"], 0);
+  EXPECT_EQ(series_with["ei-loss-watch"], 0);
   // CUSUM with the 10-point baseline: reported, not bounded by theory here
   // (the baseline's shared error shortens its run length; see drift.h).
   std::printf("series with a CUSUM false alarm in 30 days: force %d, EI %d of %d\n",
@@ -286,9 +288,11 @@ TEST(DetectDrift, AbsoluteRulesFireOncePerEpisode) {
   std::vector<std::pair<std::string, std::size_t>> got;
   for (const DriftAlert& a : r.alerts) got.emplace_back(a.rule, a.index);
   const std::vector<std::pair<std::string, std::size_t>> expect = {
-      {"force-below-design", 1}, {"ei-loss", 2}, {"force-below-design", 4},
-      {"compression", 5},        {"ei-loss", 5},
+      {"force-below-design", 1}, {"ei-loss", 2},       {"force-below-design", 4},
+      {"compression", 5},        {"ei-loss-watch", 5},
   };
+  // Point 5's EI 19500 +- 1.96 * 300 = [18912, 20088] N m^2 straddles the
+  // 20000 limit: the watch tier, not "below with 95 % confidence".
   EXPECT_EQ(got, expect);
   for (const DriftAlert& a : r.alerts) {
     EXPECT_NE(a.caution.message.find("Inspect"), std::string::npos) << a.caution.message;
@@ -304,6 +308,151 @@ TEST(DetectDrift, AbsoluteRulesFireOncePerEpisode) {
   for (const DriftAlert& a : r.alerts) {
     EXPECT_NE(a.rule, "compression");
   }
+}
+
+// One point per hour, no temperature; force with std `std_n`.
+std::vector<DriftPoint> Flat(const std::vector<double>& forces, double std_n) {
+  std::vector<DriftPoint> s;
+  for (std::size_t i = 0; i < forces.size(); ++i) {
+    DriftPoint p;
+    p.id = static_cast<std::int64_t>(i) + 1;
+    p.time_s = 3600.0 * static_cast<double>(i);
+    p.force_n = forces[i];
+    p.force_std_n = std_n;
+    s.push_back(p);
+  }
+  return s;
+}
+
+std::vector<std::pair<std::string, std::size_t>> Fired(const DriftReport& r) {
+  std::vector<std::pair<std::string, std::size_t>> got;
+  for (const DriftAlert& a : r.alerts) got.emplace_back(a.rule, a.index);
+  return got;
+}
+
+TEST(DetectDrift, AbsoluteRulesHaveAConfidentAndAWatchTier) {
+  // Design 100 kN, limit 50 kN; std 1 kN, so the 95 % interval is
+  // force +- 1959.96 N (z_0.975 = 1.959964, Abramowitz and Stegun 1964,
+  // table 26.1). Expected tiers by hand:
+  //   0: 53000 -> [51040, 54960]  above                  -
+  //   1: 51500 -> [49540, 53460]  straddles               watch
+  //   2: 49000 -> [47040, 50960]  straddles (watch held)  -
+  //   3: 47900 -> [45940, 49860]  below                   alert
+  //   4: 48500 -> [46540, 50460]  straddles               -
+  //   5: 47000 -> [45040, 48960]  below (alert held)      -
+  //   6: 52500 -> [50540, 54460]  above: both re-armed    -
+  //   7: 47500 -> [45540, 49460]  below at once           alert (no watch)
+  //   8: 60000                    above                   -
+  //   9: 49900 with the stored interval [48000, 49950]    alert
+  //      (the symmetric +-1960 N would straddle: the stored one is used)
+  DriftSettings settings;
+  settings.design_force_n = 100e3;
+  std::vector<DriftPoint> s =
+      Flat({53000, 51500, 49000, 47900, 48500, 47000, 52500, 47500, 60000, 49900}, 1000);
+  s[9].force_ci95_low_n = 48000;
+  s[9].force_ci95_high_n = 49950;
+  DriftReport r;
+  ASSERT_TRUE(DetectDrift(s, settings, &r).ok());
+  const std::vector<std::pair<std::string, std::size_t>> expect = {{"force-below-design-watch", 1},
+                                                                   {"force-below-design", 3},
+                                                                   {"force-below-design", 7},
+                                                                   {"force-below-design", 9}};
+  EXPECT_EQ(Fired(r), expect);
+  for (const DriftAlert& a : r.alerts) {
+    EXPECT_EQ(a.tier, std::string(RuleTier(a.rule))) << a.rule;
+    const bool watch = a.tier == "watch";
+    EXPECT_EQ(a.caution.message.find("possibly below") != std::string::npos, watch) << a.caution.message;
+    EXPECT_EQ(a.caution.message.find("95 % confidence") != std::string::npos, !watch) << a.caution.message;
+  }
+  // Compression in two tiers: 0 inside [-1960 + 1000, 1000 + 1960], then
+  // [-3960, -40] wholly below 0.
+  const std::vector<DriftPoint> c = Flat({20000, 1000, -2000}, 1000);
+  ASSERT_TRUE(DetectDrift(c, DriftSettings{}, &r).ok());
+  const std::vector<std::pair<std::string, std::size_t>> expect_c = {{"compression-watch", 1},
+                                                                     {"compression", 2}};
+  EXPECT_EQ(Fired(r), expect_c);
+}
+
+TEST(DetectDrift, UnusableEstimatesTakeNoPart) {
+  // 14 points at 100 kN +- 500 N (alternating), one unusable point in the
+  // first ten and one far below every limit later. The baseline is the
+  // first ten usable points, so its mean is exactly 100 kN (five +500 and
+  // five -500 N) and its residual std 500 * sqrt(10 / 9) N (n - 1 = 9:
+  // mean only, no temperatures).
+  std::vector<double> f;
+  for (int i = 0; i < 14; ++i) f.push_back(i % 2 == 0 ? 100500 : 99500);
+  f.insert(f.begin() + 3, 20000);    // unusable, index 3
+  f.insert(f.begin() + 13, -90000);  // unusable, index 13
+  std::vector<DriftPoint> s = Flat(f, 400);
+  s[3].usable = false;
+  s[13].usable = false;
+  DriftSettings settings;
+  settings.design_force_n = 150e3;
+  DriftReport r;
+  ASSERT_TRUE(DetectDrift(s, settings, &r).ok());
+  EXPECT_TRUE(r.alerts.empty()) << r.alerts.front().rule << " at " << r.alerts.front().index;
+  ASSERT_TRUE(r.force_baseline.has_value());
+  EXPECT_EQ(r.force_baseline->n, 10u);
+  EXPECT_NEAR(r.force_baseline->intercept, 100000.0, 1e-9 * 1e5);
+  EXPECT_NEAR(std::sqrt(r.force_baseline->residual_variance), 500.0 * std::sqrt(10.0 / 9.0), 1e-9 * 500);
+  EXPECT_TRUE(r.points[3].excluded);
+  EXPECT_FALSE(r.points[3].in_baseline);
+  EXPECT_TRUE(r.points[13].excluded);
+  EXPECT_FALSE(r.points[13].force_z.has_value());
+  EXPECT_TRUE(r.points[10].in_baseline) << "the tenth usable point";
+  EXPECT_TRUE(r.points[14].force_z.has_value());
+  // The same points marked usable raise the absolute rules.
+  s[13].usable = true;
+  ASSERT_TRUE(DetectDrift(s, settings, &r).ok());
+  EXPECT_FALSE(r.alerts.empty());
+}
+
+TEST(DetectDrift, ALogbookEntryRestartsTheBaseline) {
+  // 15 points at 100 kN, re-tensioned to 120 kN from point 15 on (+-300 N
+  // alternating scatter, std 300 N). Without a restart the residual rule
+  // sees z = 20 kN / sqrt(300^2 (1 + 1/10) ...) >> 3 at points 15 and 16;
+  // with the baseline restarted at point 15 the new level is the baseline
+  // (mean exactly 120 kN over points 15..24) and nothing fires.
+  std::vector<double> f;
+  for (int i = 0; i < 30; ++i) f.push_back((i < 15 ? 100e3 : 120e3) + (i % 2 == 0 ? 300 : -300));
+  const std::vector<DriftPoint> s = Flat(f, 300);
+  DriftReport r;
+  ASSERT_TRUE(DetectDrift(s, DriftSettings{}, &r).ok());
+  bool residual = false;
+  for (const DriftAlert& a : r.alerts) residual = residual || (a.rule == "force-residual" && a.index == 16);
+  EXPECT_TRUE(residual);
+  DriftSettings restarted;
+  restarted.baseline_start_s = s[15].time_s;
+  ASSERT_TRUE(DetectDrift(s, restarted, &r).ok());
+  EXPECT_TRUE(r.alerts.empty()) << r.alerts.front().rule;
+  ASSERT_TRUE(r.force_baseline.has_value());
+  EXPECT_NEAR(r.force_baseline->intercept, 120e3, 1e-9 * 120e3);
+  EXPECT_FALSE(r.points[14].in_baseline);
+  EXPECT_FALSE(r.points[14].force_z.has_value());
+  EXPECT_TRUE(r.points[15].in_baseline);
+  EXPECT_TRUE(r.points[25].force_z.has_value());
+  bool said = false;
+  for (const Caution& c : r.cautions) said = said || c.code == "drift-baseline-restarted";
+  EXPECT_TRUE(said);
+}
+
+TEST(StaleDataAlert, FiresAfterTheMemberSetSilenceCountingUsableEstimatesOnly) {
+  std::vector<DriftPoint> s = Flat({100e3, 100e3, 100e3}, 500);  // at 0, 3600, 7200 s
+  s[2].usable = false;
+  DriftSettings settings;
+  EXPECT_FALSE(StaleDataAlert(s, settings, 1e9).has_value()) << "off unless set";
+  settings.max_silence_s = 6 * 3600.0;
+  // The newest usable point is at 3600 s: silent for more than 6 h after
+  // 3600 + 21600 = 25200 s (the unusable record at 7200 s does not count).
+  EXPECT_FALSE(StaleDataAlert(s, settings, 25200.0).has_value());
+  const std::optional<DriftAlert> a = StaleDataAlert(s, settings, 25201.0);
+  ASSERT_TRUE(a.has_value());
+  EXPECT_EQ(a->rule, "stale-data");
+  EXPECT_EQ(a->index, 1u);
+  EXPECT_EQ(a->evidence.front().id, 2);
+  EXPECT_NE(a->caution.message.find("6.0 h"), std::string::npos) << a->caution.message;
+  s[0].usable = s[1].usable = false;
+  EXPECT_FALSE(StaleDataAlert(s, settings, 1e9).has_value()) << "no usable point: the rule has not started";
 }
 
 TEST(DetectDrift, ExplicitBaselineWindow) {

@@ -387,7 +387,7 @@ TEST_F(HttpApiTest, ConcurrentUploadsLoseNothingAndDuplicateNothing) {
 
 // The read side: estimates stored by the worker's repository calls come
 // back unchanged through force, history (ordered by record time, not by
-// upload order), portfolio (utilisation = force / design force) and alerts.
+// upload order), portfolio (force ratio = force / design force) and alerts.
 TEST_F(HttpApiTest, ForceHistoryPortfolioAndAlerts) {
   const auto member = CreateMember();
   const std::string path = "/v1/members/" + std::to_string(member) + "/records";
@@ -442,7 +442,21 @@ TEST_F(HttpApiTest, ForceHistoryPortfolioAndAlerts) {
   EXPECT_EQ(r.Get("/v1/members/" + m + "/force/history?from=last-week")->status, 400);
   const json p = json::parse(r.Get("/v1/structures/" + std::to_string(structure_id_) + "/portfolio")->body);
   ASSERT_EQ(p["members"].size(), 1u);
-  EXPECT_NEAR(p["members"][0]["utilisation"].get<double>(), 31000.0 / 35000.0, 1e-12);
+  // Force ratio N / N_design with the interval mapped through it:
+  // 31000 / 35000 and [30200, 31800] / 35000 (design force of the example).
+  const json& ratio = p["members"][0]["force_ratio"];
+  EXPECT_NEAR(ratio["value"].get<double>(), 31000.0 / 35000.0, 1e-12);
+  EXPECT_NEAR(ratio["ci95"][0].get<double>(), 30200.0 / 35000.0, 1e-12);
+  EXPECT_NEAR(ratio["ci95"][1].get<double>(), 31800.0 / 35000.0, 1e-12);
+  // 30-day change 31000 - 29000 N, std sqrt(400^2 + 400^2) = 565.685 N
+  // (difference of independent estimates), interval +- 1.959964 std
+  // (Abramowitz and Stegun 1964, table 26.1): [891.27, 3108.73] N.
+  const json& change = p["members"][0]["change_30d"];
+  EXPECT_NEAR(change["value_n"].get<double>(), 2000.0, 1e-9);
+  EXPECT_NEAR(change["std_n"].get<double>(), 565.685, 1e-3);
+  EXPECT_NEAR(change["ci95_n"][0].get<double>(), 891.27, 0.01);
+  EXPECT_NEAR(change["ci95_n"][1].get<double>(), 3108.73, 0.01);
+  EXPECT_FALSE(p["members"][0].contains("utilisation")) << "renamed: force_ratio";
   EXPECT_EQ(p["members"][0]["open_alerts"], 1);
   EXPECT_EQ(p["members"][0]["last_record_at"], "2026-11-22T06:00:00Z");
   // Alerts: list, a read token cannot acknowledge, an upload token can; a
@@ -459,6 +473,260 @@ TEST_F(HttpApiTest, ForceHistoryPortfolioAndAlerts) {
   EXPECT_EQ(json::parse(c.Post("/v1/alerts/" + a + "/resolve", "", "application/json")->body)["state"],
             "resolved");
   EXPECT_EQ(Client(admin_b_).Get("/v1/alerts/" + a)->status, 404);
+}
+
+// Uploads a record of `member` at `recorded_at` and stores its estimate
+// (force +- 800 N at 95 %, std 400 N) as the worker would, with `verdict`
+// in the result ("" = none). Returns the estimate id.
+storage::Id StoreEstimate(const std::string& db_path, httplib::Client& upload, std::int64_t member,
+                          const std::string& recorded_at, double force, const std::string& verdict,
+                          const std::string& csv) {
+  auto r = upload.Post("/v1/members/" + std::to_string(member) + "/records?recorded_at=" + recorded_at, csv,
+                       "text/csv");
+  EXPECT_EQ(r->status, 202) << r->body;
+  storage::Database db;
+  EXPECT_TRUE(db.Open(db_path).ok());
+  storage::Repository repo(db);
+  storage::Job job;
+  bool claimed = false;
+  EXPECT_TRUE(repo.ClaimNextJob(NowUnixMs(), &job, &claimed).ok());
+  EXPECT_TRUE(claimed);
+  storage::NewEstimate e;
+  e.record_id = job.record_id;
+  e.axial_force_n = force;
+  e.force_std_n = 400;
+  e.force_ci95_low_n = force - 800;
+  e.force_ci95_high_n = force + 800;
+  e.bending_stiffness_nm2 = 9000;
+  e.bending_stiffness_std_nm2 = 300;
+  json result = {
+      {"axial_force_n", {{"value", force}}},
+      {"end_fixity", {{"left", {{"value", 0.4}, {"ci95", {0.3, 0.5}}}}, {"right", {{"value", 0.6}}}}},
+      {"modes",
+       json::array({{{"order", 1}, {"frequency_hz", 11.5}, {"model_frequency_hz", 11.49}, {"mac", 0.99}}})},
+      {"cautions", json::array()}};
+  if (!verdict.empty()) result["verdict"] = {{"code", verdict}, {"summary", "."}};
+  e.result_json = result.dump();
+  storage::Id id = 0;
+  EXPECT_TRUE(repo.CompleteJobWithEstimate(job.id, e, NowUnixMs(), &id).ok());
+  return id;
+}
+
+// RFC 4180 lines of a CSV body (CRLF), without the empty tail.
+std::vector<std::string> CsvLines(const std::string& body) {
+  std::vector<std::string> lines;
+  std::size_t start = 0;
+  for (std::size_t end; (end = body.find("\r\n", start)) != std::string::npos; start = end + 2) {
+    lines.push_back(body.substr(start, end - start));
+  }
+  return lines;
+}
+
+TEST_F(HttpApiTest, CsvExportsCarryUnitsInTheColumnNamesAndFollowRfc4180) {
+  const auto member = CreateMember();
+  auto up = Client(upload_a_);
+  const std::string m = std::to_string(member);
+  StoreEstimate(db_path_, up, member, "2026-11-20T06:00:00Z", 29000, "", SyntheticCsv(dir_.string(), 301));
+  const auto e2 = StoreEstimate(db_path_, up, member, "2026-11-21T06:00:00Z", 30000, "usable",
+                                SyntheticCsv(dir_.string(), 302));
+  auto r = Client(read_a_);
+  auto h = r.Get("/v1/members/" + m +
+                 "/force/history?from=2026-11-01T00:00:00Z&to=2026-12-01T00:00:00Z&format=csv");
+  ASSERT_EQ(h->status, 200) << h->body;
+  EXPECT_EQ(h->get_header_value("Content-Type").rfind("text/csv", 0), 0u);
+  EXPECT_NE(h->get_header_value("Content-Disposition").find("attachment"), std::string::npos);
+  std::vector<std::string> lines = CsvLines(h->body);
+  ASSERT_EQ(lines.size(), 3u) << h->body;
+  EXPECT_EQ(lines[0],
+            "estimate_id,record_id,measured_at_utc,temperature_c,force_n,force_std_n,force_ci95_low_n,"
+            "force_ci95_high_n,ei_nm2,ei_std_nm2,verdict");
+  EXPECT_NE(lines[2].find(",2026-11-21T06:00:00Z,"), std::string::npos) << lines[2];
+  EXPECT_NE(lines[2].find(",30000.0,400.0,29200.0,30800.0,9000.0,300.0,usable"), std::string::npos)
+      << lines[2];
+  // Without format=csv the JSON route answers as before.
+  EXPECT_EQ(
+      json::parse(r.Get("/v1/members/" + m + "/force/history?from=2026-11-01T00:00:00Z")->body)["points"]
+          .size(),
+      2u);
+  // Portfolio and triage rows; member estimates with fixity; the modes of one estimate.
+  lines = CsvLines(r.Get("/v1/structures/" + std::to_string(structure_id_) + "/portfolio?format=csv")->body);
+  ASSERT_EQ(lines.size(), 2u);
+  EXPECT_EQ(lines[0].rfind("structure,member_id,member,open_alerts,open_alerts_confident,open_alerts_watch,"
+                           "measured_at_utc,force_n,",
+                           0),
+            0u)
+      << lines[0];
+  EXPECT_NE(lines[0].find("force_ratio,force_ratio_ci95_low,force_ratio_ci95_high,change_30d_n,"),
+            std::string::npos);
+  EXPECT_NE(lines[1].find("Old maltings hall," + m + ",maltings-east-tie-2,0,0,0,"), std::string::npos)
+      << lines[1];
+  lines = CsvLines(r.Get("/v1/members/" + m + "/estimates?from=2026-11-01T00:00:00Z&format=csv")->body);
+  ASSERT_EQ(lines.size(), 3u);
+  EXPECT_NE(lines[0].find("fixity_left,fixity_left_ci95_low,fixity_left_ci95_high,fixity_right"),
+            std::string::npos);
+  EXPECT_NE(lines[1].find(",0.4,0.3,0.5,0.6,,,"), std::string::npos) << lines[1];
+  const json est = json::parse(r.Get("/v1/members/" + m + "/estimates?from=2026-11-01T00:00:00Z")->body);
+  ASSERT_EQ(est["estimates"].size(), 2u);
+  EXPECT_EQ(est["estimates"][1]["verdict"], "usable");
+  EXPECT_TRUE(est["estimates"][0]["verdict"].is_null());
+  lines = CsvLines(r.Get("/v1/estimates/" + std::to_string(e2) + "?format=csv")->body);
+  ASSERT_EQ(lines.size(), 2u);
+  EXPECT_EQ(lines[1], std::to_string(e2) + ",1,true,11.5,,11.49,0.99,");
+  // Alerts, with the tier; a message with a comma and quotes is quoted
+  // (RFC 4180 section 2 items 6 and 7).
+  {
+    storage::Database db;
+    ASSERT_TRUE(db.Open(db_path_).ok());
+    storage::Repository repo(db);
+    storage::Id id = 0;
+    ASSERT_TRUE(repo.RaiseAlert(org_a_,
+                                {member, e2, "force-below-design-watch", R"(possibly "low", inspect)", "{}"},
+                                NowUnixMs(), &id)
+                    .ok());
+  }
+  lines = CsvLines(r.Get("/v1/alerts?format=csv&state=open")->body);
+  ASSERT_EQ(lines.size(), 2u);
+  EXPECT_EQ(lines[0],
+            "alert_id,member_id,member,rule,tier,state,raised_at_utc,acknowledged_at_utc,resolved_at_utc,"
+            "estimate_id,message");
+  EXPECT_NE(lines[1].find(",maltings-east-tie-2,force-below-design-watch,watch,open,"), std::string::npos)
+      << lines[1];
+  EXPECT_NE(lines[1].find(R"(,"possibly ""low"", inspect")"), std::string::npos) << lines[1];
+  // Scoping and roles as the JSON routes: another organisation gets 404 and
+  // an empty list; no token, 401.
+  auto b = Client(admin_b_);
+  EXPECT_EQ(b.Get("/v1/members/" + m + "/force/history?format=csv")->status, 404);
+  EXPECT_EQ(b.Get("/v1/members/" + m + "/estimates?format=csv")->status, 404);
+  EXPECT_EQ(b.Get("/v1/estimates/" + std::to_string(e2) + "?format=csv")->status, 404);
+  EXPECT_EQ(CsvLines(b.Get("/v1/alerts?format=csv")->body).size(), 1u);
+  EXPECT_EQ(Client("").Get("/v1/alerts?format=csv")->status, 401);
+}
+
+TEST_F(HttpApiTest, TriageListsEveryMemberWorstFirstAndUnusableEstimatesGiveNoRatio) {
+  const auto m1 = CreateMember();
+  auto admin = Client(admin_a_);
+  // A second structure with two members (the example description under other ids).
+  auto s2 = admin.Post("/v1/structures", R"({"name": "Dock shed"})", "application/json");
+  const auto st2 = json::parse(s2->body)["id"].get<std::int64_t>();
+  std::vector<std::int64_t> ids = {m1};
+  for (const char* name : {"dock-tie-1", "dock-tie-2"}) {
+    json d = json::parse(member_text_);
+    d["id"] = name;
+    auto r = admin.Post("/v1/structures/" + std::to_string(st2) + "/members", d.dump(), "application/json");
+    ASSERT_EQ(r->status, 201) << r->body;
+    ids.push_back(json::parse(r->body)["id"].get<std::int64_t>());
+  }
+  auto up = Client(upload_a_);
+  StoreEstimate(db_path_, up, ids[0], "2026-11-20T06:00:00Z", 30000, "", SyntheticCsv(dir_.string(), 401));
+  StoreEstimate(db_path_, up, ids[1], "2026-11-20T06:00:00Z", 20000, "", SyntheticCsv(dir_.string(), 402));
+  const auto e3 = StoreEstimate(db_path_, up, ids[2], "2026-11-20T06:00:00Z", 10000, "unusable",
+                                SyntheticCsv(dir_.string(), 403));
+  {
+    storage::Database db;
+    ASSERT_TRUE(db.Open(db_path_).ok());
+    storage::Repository repo(db);
+    storage::Id id = 0;
+    ASSERT_TRUE(repo.RaiseAlert(org_a_, {ids[0], std::nullopt, "force-below-design-watch", "watch", "{}"},
+                                NowUnixMs(), &id)
+                    .ok());
+  }
+  auto r = Client(read_a_);
+  const json t = json::parse(r.Get("/v1/triage")->body);
+  ASSERT_EQ(t["members"].size(), 3u);
+  // m1 has a watch alert: first. Then by the top of the ratio interval:
+  // dock-tie-1 (20800 / 35000) before dock-tie-2, whose only estimate is
+  // unusable and so has no ratio.
+  EXPECT_EQ(t["members"][0]["member_id"], ids[0]);
+  EXPECT_EQ(t["members"][0]["open_alerts_by_tier"]["watch"], 1);
+  EXPECT_EQ(t["members"][1]["member_id"], ids[1]);
+  EXPECT_NEAR(t["members"][1]["force_ratio"]["ci95"][1].get<double>(), 20800.0 / 35000.0, 1e-12);
+  EXPECT_EQ(t["members"][2]["member_id"], ids[2]);
+  EXPECT_TRUE(t["members"][2]["force_ratio"].is_null());
+  EXPECT_EQ(t["members"][2]["latest"]["estimate_id"], e3) << "the newest estimate is shown with its verdict";
+  EXPECT_EQ(t["members"][2]["latest"]["verdict"]["code"], "unusable");
+  EXPECT_EQ(t["members"][2]["structure_name"], "Dock shed");
+  const json only = json::parse(r.Get("/v1/triage?structure_id=" + std::to_string(st2))->body);
+  EXPECT_EQ(only["members"].size(), 2u);
+  EXPECT_EQ(r.Get("/v1/triage?structure_id=x")->status, 400);
+  EXPECT_EQ(CsvLines(r.Get("/v1/triage?format=csv")->body).size(), 4u);
+  EXPECT_EQ(json::parse(Client(admin_b_).Get("/v1/triage")->body)["members"].size(), 0u);
+}
+
+TEST_F(HttpApiTest, LogbookEntriesFollowRolesAndScopingAndCanRestartTheBaseline) {
+  const auto member = CreateMember();
+  const std::string m = std::to_string(member);
+  const std::string path = "/v1/members/" + m + "/logbook";
+  const std::string body =
+      R"({"kind": "re-tensioned", "note": "Turnbuckle, 2 turns", "author": "R. Field",
+          "occurred_at": "2026-11-21T09:00:00Z", "new_baseline": true})";
+  EXPECT_EQ(Client(read_a_).Post(path, body, "application/json")->status, 403);
+  auto made = Client(upload_a_).Post(path, body, "application/json");
+  ASSERT_EQ(made->status, 201) << made->body;
+  const json entry = json::parse(made->body);
+  EXPECT_EQ(entry["kind"], "re-tensioned");
+  EXPECT_EQ(entry["occurred_at"], "2026-11-21T09:00:00Z");
+  EXPECT_EQ(entry["new_baseline"], true);
+  const std::string e = std::to_string(entry["id"].get<std::int64_t>());
+  auto r = Client(read_a_);
+  const json list = json::parse(r.Get(path)->body);
+  ASSERT_EQ(list["entries"].size(), 1u);
+  EXPECT_EQ(list["entries"][0]["author"], "R. Field");
+  EXPECT_EQ(r.Get("/v1/logbook/" + e)->status, 200);
+  std::vector<std::string> lines = CsvLines(r.Get(path + "?format=csv")->body);
+  ASSERT_EQ(lines.size(), 2u);
+  EXPECT_EQ(lines[0], "entry_id,member_id,member,occurred_at_utc,kind,new_baseline,author,note");
+  // Validation names the field.
+  auto c = Client(upload_a_);
+  auto bad = c.Post(path, R"({"kind": "painted", "author": "x"})", "application/json");
+  EXPECT_EQ(bad->status, 422);
+  EXPECT_NE(bad->body.find("$.kind"), std::string::npos) << bad->body;
+  EXPECT_EQ(c.Post(path, R"({"kind": "inspected"})", "application/json")->status, 422);
+  EXPECT_EQ(c.Post(path, R"({"kind": "inspected", "author": "x", "colour": 1})", "application/json")->status,
+            422);
+  EXPECT_EQ(c.Post(path, R"({"kind": "inspected", "author": "x", "occurred_at": "2099-01-01T00:00:00Z"})",
+                   "application/json")
+                ->status,
+            422);
+  // Another organisation: 404 everywhere.
+  auto b = Client(admin_b_);
+  EXPECT_EQ(b.Get(path)->status, 404);
+  EXPECT_EQ(b.Post(path, body, "application/json")->status, 404);
+  EXPECT_EQ(b.Get("/v1/logbook/" + e)->status, 404);
+  EXPECT_EQ(b.Delete("/v1/logbook/" + e)->status, 404);
+  // The drift analysis reads the restart.
+  const json drift = json::parse(r.Get("/v1/members/" + m + "/drift")->body);
+  bool restarted = false;
+  for (const json& k : drift["cautions"]) restarted = restarted || k["code"] == "drift-baseline-restarted";
+  EXPECT_TRUE(restarted) << drift["cautions"].dump();
+  // Only an admin deletes.
+  EXPECT_EQ(c.Delete("/v1/logbook/" + e)->status, 403);
+  EXPECT_EQ(Client(admin_a_).Delete("/v1/logbook/" + e)->status, 204);
+  EXPECT_EQ(json::parse(r.Get(path)->body)["entries"].size(), 0u);
+}
+
+TEST_F(HttpApiTest, InspectionReportIsOneSelfContainedHtmlDocumentScopedToTheOrganisation) {
+  const auto member = CreateMember();
+  auto up = Client(upload_a_);
+  StoreEstimate(db_path_, up, member, "2026-11-20T06:00:00Z", 29000, "reduced-confidence",
+                SyntheticCsv(dir_.string(), 501));
+  const std::string path = "/v1/structures/" + std::to_string(structure_id_) + "/report";
+  auto r = Client(read_a_).Get(path + "?from=2026-11-01&to=2026-12-01&author=R.%20Field");
+  ASSERT_EQ(r->status, 200) << r->body;
+  EXPECT_EQ(r->get_header_value("Content-Type").rfind("text/html", 0), 0u);
+  const std::string& html = r->body;
+  for (const char* want :
+       {"Old maltings hall", "Member maltings-east-tie-2", "R. Field", "2026-11-01 to 2026-12-01",
+        "29.0&nbsp;kN", "28.2 to 29.8&nbsp;kN", "Standing notice", "Welch", "Signature"}) {
+    EXPECT_NE(html.find(want), std::string::npos) << want;
+  }
+  // Self-contained: nothing to fetch, nothing to run.
+  EXPECT_EQ(html.find("<script"), std::string::npos);
+  EXPECT_EQ(html.find("src="), std::string::npos);
+  EXPECT_EQ(html.find("href="), std::string::npos);
+  EXPECT_EQ(Client(read_a_).Get(path + "?from=2026-12-01&to=2026-11-01")->status, 400);
+  EXPECT_EQ(Client(read_a_).Get(path + "?format=docx")->status, 400);
+  EXPECT_EQ(Client(admin_b_).Get(path)->status, 404);
+  EXPECT_EQ(Client("").Get(path)->status, 401);
 }
 
 TEST(IsoTime, RoundTripsAppliesOffsetsAndRefusesImpossibleTimes) {

@@ -45,12 +45,13 @@ void ExpectLatestSchema(Database& db) {
   const std::set<std::string> tables = Tables(db);
   for (const char* t :
        {"organisation", "api_token", "structure", "member", "member_version", "record", "job", "estimate",
-        "alert", "webhook_subscription", "webhook_delivery", "schema_migration"}) {
+        "alert", "webhook_subscription", "webhook_delivery", "schema_migration", "member_log"}) {
     EXPECT_TRUE(tables.count(t)) << "missing table " << t;
   }
   EXPECT_FALSE(tables.count("estimate_v2")) << "the rebuild's scratch table must be gone";
   const std::set<std::string> est = Columns(db, "estimate");
-  for (const char* c : {"member_version", "temperature_c", "force_std_n", "bending_stiffness_std_nm2"}) {
+  for (const char* c :
+       {"member_version", "temperature_c", "force_std_n", "bending_stiffness_std_nm2", "verdict_code"}) {
     EXPECT_TRUE(est.count(c)) << "estimate lacks " << c;
   }
   // PRAGMA foreign_key_check returns one row per violation: none allowed.
@@ -106,7 +107,8 @@ void SeedAtVersion(Database& db, int version) {
                 "  measured_at_unix_ms, temperature_c, axial_force_n, force_std_n, force_ci95_low_n, "
                 "  force_ci95_high_n, bending_stiffness_nm2, result_json, created_at_unix_ms) "
                 "  VALUES (1, 1, 1, 2, 1, 1, 5000, 17.5, 30000, 510.2042, 29000, 31000, 8000, "
-                "  '{\"end_fixity\": {\"left\": {\"value\": 0.4}}}', 4);")
+                "  '{\"end_fixity\": {\"left\": {\"value\": 0.4}}, \"verdict\": {\"code\": \"unusable\"}}', "
+                "4);")
             .ok());
   }
 }
@@ -165,6 +167,9 @@ TEST(Migrations, EveryEarlierVersionUpgradesAndKeepsItsRows) {
     // (From version 5 on the seed's raw INSERT leaves the column empty:
     // the repository fills it at insert, the step-5 backfill ran before.)
     EXPECT_EQ(fixity[0].end_fixity_json, from == 1 || from >= 5 ? "" : R"({"left":{"value":0.4}})");
+    // Step 7: the verdict of results stored before it is extracted (the
+    // version-1 seed has none: "", which counts as usable).
+    EXPECT_EQ(e.verdict_code, from == 1 ? "" : "unusable");
     // Step 4: estimates stored before it count as drift-checked (their
     // alerts, if any, were the business of the service that stored them),
     // so an upgrade does not re-run the rules over the whole history.

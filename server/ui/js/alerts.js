@@ -3,8 +3,13 @@
 // admin roles (the buttons are not offered to a read token; the API refuses
 // it anyway).
 import {api, qs, roleAtLeast} from './api.js';
-import {h, when, kN, kNm2, num} from './format.js';
-import {pageHeader, errorBox, noticeBox, fill} from './shared.js';
+import {h, when, kN, kNm2, num, zoneLabel} from './format.js';
+import {pageHeader, errorBox, noticeBox, fill, csvButton} from './shared.js';
+
+const TIER_TEXT = {
+  alert: 'Beyond the limit with 95 % confidence (the whole interval), or a drift rule',
+  watch: 'The 95 % interval straddles the limit: possibly beyond it; a repeat record narrows the interval',
+};
 
 const STATES = [['open', 'Open'], ['acknowledged', 'Acknowledged'], ['resolved', 'Resolved'], ['all', 'All']];
 
@@ -31,6 +36,7 @@ export async function render(main, args, ctx) {
           `${list.length} ${state === 'all' ? '' : state + ' '}${list.length === 1 ? 'alert' : 'alerts'}${scope}` +
           (canAct ? '' : ' · your role may read alerts; acknowledging needs an upload or admin token')),
       tabs, memberId ? h('p', null, h('a', {href: '#/alerts' + qs({state})}, 'Show every member')) : null,
+      h('p', null, csvButton('/v1/alerts' + qs({state: state === 'all' ? null : state, member_id: memberId}), 'alerts.csv')),
       list.length ? h('ol', {class: 'alerts', id: 'alerts'}, list.map((a) => alertCard(a, names, canAct, ctx)))
         : h('p', {class: 'muted', id: 'alerts'}, 'No alerts here.'),
       noticeBox('An alert says what to inspect; neither an alert nor its absence says that a member is safe. ' +
@@ -55,6 +61,8 @@ function alertCard(a, names, canAct, ctx) {
   return h('li', {class: `alert-card state-${a.state}`, dataset: {alert: a.id}},
       h('header', null,
           h('span', {class: 'state-tag'}, {open: '▲ open', acknowledged: '◆ acknowledged', resolved: '✓ resolved'}[a.state] || a.state), ' ',
+          h('span', {class: `tier tier-${a.tier || 'alert'}`, title: TIER_TEXT[a.tier || 'alert']},
+              a.tier === 'watch' ? '△ watch: possibly beyond' : '▲ alert'), ' ',
           h('strong', {class: 'rule'}, a.rule), ' · ', h('a', {href: `#/members/${a.member_id}`}, member),
           a.estimate_id ? [' · ', h('a', {href: `#/estimates/${a.estimate_id}`}, `estimate ${a.estimate_id}`)] : null),
       h('p', {class: 'message'}, a.message),
@@ -77,7 +85,7 @@ function evidence(ev) {
   }
   if (Array.isArray(ev.points) && ev.points.length) {
     parts.push(h('table', {class: 'compact'}, h('caption', null, 'Evidence'),
-        h('thead', null, h('tr', null, ['Measured (UTC)', 'Value', 'Expected', 'Residual', 'z', 'CUSUM'].map((t) => h('th', {scope: 'col'}, t)))),
+        h('thead', null, h('tr', null, [`Measured (${zoneLabel()})`, 'Value', 'Expected', 'Residual', 'z', 'CUSUM'].map((t) => h('th', {scope: 'col'}, t)))),
         h('tbody', null, ev.points.map((p) => h('tr', null,
             h('td', null, h('a', {href: `#/estimates/${p.estimate_id}`}, when(p.measured_at))),
             h('td', {class: 'num'}, f(p.value)), h('td', {class: 'num'}, f(p.predicted)), h('td', {class: 'num'}, f(p.residual)),

@@ -2,19 +2,23 @@
 // of structures. Pages live in their own modules; each exports
 // render(main, params, ctx) and returns when its data is drawn.
 import {api, token, setToken, forgetMe, roleAtLeast, ApiError} from './api.js';
-import {h} from './format.js';
+import {h, displayZone, setDisplayZone, zoneChoices} from './format.js';
 import {pageHeader, errorBox, loading, pageStart, pageFetched, pageReady, pageFailed} from './shared.js';
 import * as portfolio from './portfolio.js';
 import * as member from './member.js';
 import * as estimate from './estimate.js';
 import * as alerts from './alerts.js';
 import * as upload from './upload.js';
+import * as triage from './triage.js';
+import * as report from './report.js';
 
 const routes = [
   [/^\/$/, 'structures', structuresPage],
   [/^\/structures\/(\d+)$/, 'portfolio', portfolio.render],
   [/^\/members\/(\d+)$/, 'member', member.render],
   [/^\/estimates\/(\d+)$/, 'estimate', estimate.render],
+  [/^\/structures\/(\d+)\/report$/, 'report', report.render],
+  [/^\/triage$/, 'triage', triage.render],
   [/^\/alerts$/, 'alerts', alerts.render],
   [/^\/upload$/, 'upload', upload.render],
   [/^\/signin$/, 'signin', signinPage],
@@ -80,7 +84,16 @@ async function route() {
 function renderWho(me) {
   const who = document.getElementById('who');
   const out = h('button', {type: 'button', class: 'link-button', onclick: signOut}, 'Sign out');
-  who.replaceChildren(h('span', null, me.organisation.name, ' · ', h('span', {class: 'role'}, me.role)), ' ', out);
+  // Display time zone, chosen per user and kept in this browser.
+  const zone = displayZone();
+  const tz = h('select', {id: 'tz', 'aria-label': 'Display time zone', title: 'Times are stored in UTC; shown in this zone'},
+      zoneChoices().map((z) => h('option', {value: z, selected: z === zone}, z)));
+  tz.addEventListener('change', () => {
+    setDisplayZone(tz.value);
+    route();
+  });
+  who.replaceChildren(h('span', null, me.organisation.name, ' · ', h('span', {class: 'role'}, me.role)), ' ',
+      h('label', {class: 'tz'}, h('span', {class: 'visually-hidden'}, 'Time zone '), tz), ' ', out);
   for (const li of document.querySelectorAll('#nav [data-role]')) li.hidden = !roleAtLeast(me.role, li.dataset.role);
 }
 

@@ -19,6 +19,7 @@
 //   cursor                     {layer: name, describe(p), activate?(p)}
 //   table                      {columns: [{label, value(row)}], rows}
 import {s, h, nextId, num, sig, dayLabel, monthLabel, hourLabel} from './format.js';
+import {csvButton} from './shared.js';
 
 const DEFAULT_WIDTH = 860;
 const MARGIN = {top: 18, right: 24, bottom: 46, left: 74};
@@ -199,7 +200,7 @@ function sample(L) {
     g.append(s('rect', {x: 1, y: 2, width: 26, height: 8, class: 'band-fill'}));
     g.append(s('rect', {x: 1, y: 2, width: 26, height: 8, class: 'band-hatch', fill: 'url(#hatch-legend)'}));
   } else if (L.kind === 'events') {
-    g.append(s('path', {d: markerPath('triangle', 14, 7, 4.2), class: 'ev-mark'}));
+    g.append(s('path', {d: markerPath(L.marker || 'triangle', 14, 7, 4.2), class: 'ev-mark'}));
   } else if (L.kind === 'bars') {
     g.append(s('path', {d: 'M14,1V11M11,1H17M11,11H17', class: 'bars'}));
   } else {
@@ -418,7 +419,7 @@ function drawEvents(g, L, xs, py0, py1) {
     const x = xs.map(t);
     g.append(s('path', {d: `M${x},${py0}V${py1}`, class: 'ev-rule'}));
     for (const e of list) {
-      const mark = s('path', {d: markerPath('triangle', x, py1 - 7, 5), class: 'ev ev-mark'});
+      const mark = s('path', {d: markerPath(L.marker || 'triangle', x, py1 - 7, 5), class: 'ev ev-mark'});
       mark.append(s('title', null, e.text || e.label));
       g.append(mark);
     }
@@ -504,7 +505,9 @@ function lazyTable(spec) {
     table.append(tbody);
     details.append(h('div', {class: 'table-scroll'}, table));
   });
-  return details;
+  // The CSV beside the table (the whole series from the API, not only the
+  // rows drawn).
+  return t.csv ? h('div', {class: 'table-tools'}, details, csvButton(t.csv.path, t.csv.filename)) : details;
 }
 
 // A small inline trend (portfolio rows): the line with its end point

@@ -6,7 +6,7 @@
 import {api} from './api.js';
 import {h, kN, kNm2, num, sig, hz, when, degC} from './format.js';
 import {plot} from './charts.js';
-import {pageHeader, section, dl, cautionList, noticeBox, errorBox, fill} from './shared.js';
+import {pageHeader, section, dl, cautionList, noticeBox, errorBox, fill, csvButton} from './shared.js';
 
 // A failed secondary request shows its error in place; the rest of the page stays.
 const soft = (p) => p.catch((err) => ({error: err}));
@@ -33,7 +33,7 @@ export async function render(main, [estimateId], ctx) {
       `Record measured ${when(est.measured_at)}${est.temperature_c !== null ? ', ' + degC(est.temperature_c) : ''}`),
       section('Result', resultFacts(r), h('h3', null, 'Cautions'), h('div', {id: 'cautions'}, cautionList(r.cautions)), noticeBox(r.notice)),
       section('Spectrum', spectrum.error ? errorBox(spectrum.error, 'The spectrum could not be computed') : spectrumChart(spectrum)),
-      section('Frequencies', h('div', {class: 'shapes'}, frequencyChart(r), differenceChart(r)), frequencyTable(r)),
+      section('Frequencies', h('div', {class: 'shapes'}, frequencyChart(r), differenceChart(r)), frequencyTable(r), csvButton(`/v1/estimates/${estimateId}`, `estimate-${estimateId}-modes.csv`)),
       section('Mode shapes', shapes.error ? errorBox(shapes.error, 'The model shapes could not be computed') : shapeCharts(shapes)),
       section('Record', record.error ? errorBox(record.error) : recordFacts(record)));
 }

@@ -1,6 +1,7 @@
 // Number, unit and time formatting, and small DOM helpers. Fixed locale
-// (en-GB) so that every engineer reads the same digits; times are UTC,
-// as stored.
+// (en-GB) so that every engineer reads the same digits; times are shown in
+// the display time zone the user chose (UTC unless changed), stored and
+// sent as UTC. Chart axes stay in UTC and say so.
 
 const nf = (digits) => new Intl.NumberFormat('en-GB', {minimumFractionDigits: digits, maximumFractionDigits: digits});
 const NF = [0, 1, 2, 3, 4].map(nf);
@@ -32,11 +33,80 @@ export function ms(iso) {
 const pad = (n) => String(n).padStart(2, '0');
 const MONTHS = ['Jan', 'Feb', 'Mar', 'Apr', 'May', 'Jun', 'Jul', 'Aug', 'Sep', 'Oct', 'Nov', 'Dec'];
 
-// "2026-11-20 10:00 UTC"
+// ---- display time zone: chosen per user, kept in this browser
+// (localStorage); times are stored and sent as UTC whatever is chosen.
+
+const ZONE_KEY = 'taut.timeZone';
+
+export function displayZone() {
+  const z = localStorage.getItem(ZONE_KEY) || 'UTC';
+  try {
+    new Intl.DateTimeFormat('en-GB', {timeZone: z});
+    return z;
+  } catch (e) {
+    return 'UTC';
+  }
+}
+
+export function setDisplayZone(zone) {
+  if (!zone || zone === 'UTC') localStorage.removeItem(ZONE_KEY);
+  else localStorage.setItem(ZONE_KEY, zone);
+}
+
+// The zones offered: UTC, the browser's own, then every IANA zone.
+export function zoneChoices() {
+  const local = Intl.DateTimeFormat().resolvedOptions().timeZone;
+  const all = typeof Intl.supportedValuesOf === 'function' ? Intl.supportedValuesOf('timeZone') : [];
+  return [...new Set(['UTC', local, ...all].filter(Boolean))];
+}
+
+const zoneFormats = new Map();
+function partsIn(zone, t) {
+  if (!zoneFormats.has(zone)) {
+    zoneFormats.set(zone, new Intl.DateTimeFormat('en-GB', {timeZone: zone, year: 'numeric', month: '2-digit', day: '2-digit',
+      hour: '2-digit', minute: '2-digit', hourCycle: 'h23', timeZoneName: 'short'}));
+  }
+  const o = {};
+  for (const p of zoneFormats.get(zone).formatToParts(new Date(t))) o[p.type] = p.value;
+  return o;
+}
+
+// "2026-11-20 10:00 UTC", or in the chosen zone: "2026-11-20 11:00 CET".
 export function when(iso) {
   if (!iso) return '–';
-  const d = new Date(iso);
-  return `${d.getUTCFullYear()}-${pad(d.getUTCMonth() + 1)}-${pad(d.getUTCDate())} ${pad(d.getUTCHours())}:${pad(d.getUTCMinutes())} UTC`;
+  const zone = displayZone();
+  if (zone === 'UTC') {
+    const d = new Date(iso);
+    return `${d.getUTCFullYear()}-${pad(d.getUTCMonth() + 1)}-${pad(d.getUTCDate())} ${pad(d.getUTCHours())}:${pad(d.getUTCMinutes())} UTC`;
+  }
+  const p = partsIn(zone, Date.parse(iso));
+  return `${p.year}-${p.month}-${p.day} ${p.hour}:${p.minute} ${p.timeZoneName}`;
+}
+
+// The zone's name for column headings: "UTC" or "Europe/Paris".
+export function zoneLabel() {
+  return displayZone();
+}
+
+// A value for <input type=datetime-local> in the display zone, and back to
+// an ISO UTC string.
+export function toLocalInput(t) {
+  const zone = displayZone();
+  if (zone === 'UTC') return new Date(t).toISOString().slice(0, 16);
+  const p = partsIn(zone, t);
+  return `${p.year}-${p.month}-${p.day}T${p.hour}:${p.minute}`;
+}
+export function fromLocalInput(text) {
+  // The instant whose wall time in the zone is `text`: start from it read
+  // as UTC and correct by the zone's offset there (twice, for DST edges).
+  const wall = Date.parse(text + ':00Z');
+  let t = wall;
+  for (let i = 0; i < 2; i++) {
+    const p = partsIn(displayZone(), t);
+    const shown = Date.parse(`${p.year}-${p.month}-${p.day}T${p.hour}:${p.minute}:00Z`);
+    t += wall - shown;
+  }
+  return new Date(t).toISOString().replace(/\.\d+Z$/, 'Z');
 }
 
 export function dayLabel(t) {

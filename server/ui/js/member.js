@@ -3,9 +3,10 @@
 // axis; bending stiffness and end fixity histories; the member description
 // drawn with its sensors; the member's alerts and latest estimates.
 import {api, qs} from './api.js';
-import {h, s, kN, kNm2, num, degC, when, ms, pct, sig} from './format.js';
+import {h, s, kN, kNm2, num, degC, when, ms, pct, sig, zoneLabel, toLocalInput, fromLocalInput} from './format.js';
 import {plot} from './charts.js';
-import {pageHeader, section, dl, cautionList, noticeBox, fill} from './shared.js';
+import {pageHeader, section, dl, cautionList, noticeBox, fill, csvButton, errorBox} from './shared.js';
+import {roleAtLeast} from './api.js';
 
 const DAY = 86400e3;
 const RANGES = [
@@ -21,12 +22,13 @@ export async function render(main, [memberId], ctx) {
   const span = RANGES.find((r) => r[0] === rangeKey)[2];
   const from = new Date(span === null ? 0 : Date.now() - span).toISOString().replace(/\.\d+Z$/, 'Z');
   const window = qs({from});
-  const [member, history, drift, fixity, alertList] = await Promise.all([
+  const [member, history, drift, fixity, alertList, logbook] = await Promise.all([
     api.get(`/v1/members/${memberId}`),
     api.get(`/v1/members/${memberId}/force/history${window}`),
     api.get(`/v1/members/${memberId}/drift${window}`),
     api.get(`/v1/members/${memberId}/fixity/history${window}`),
     api.get(`/v1/alerts${qs({member_id: memberId})}`),
+    api.get(`/v1/members/${memberId}/logbook`),
   ]);
   ctx.fetched();
   if (ctx.stale()) return;
@@ -40,6 +42,13 @@ export async function render(main, [memberId], ctx) {
   const alerts = alertList.alerts.slice().sort((a, b) => ms(a.raised_at) - ms(b.raised_at))
       .map((a, i) => ({...a, label: 'A' + (i + 1), at: timeOf.get(a.estimate_id) ?? ms(a.raised_at)}));
 
+  // Logbook entries, labelled L1, L2, ... in time order, on the time axis.
+  const entries = logbook.entries.map((e, i) => ({...e, label: 'L' + (i + 1), at: ms(e.occurred_at)}));
+  const csv = {
+    history: {path: `/v1/members/${memberId}/force/history${window}`, filename: `force-history-${member.external_id}.csv`},
+    estimates: {path: `/v1/members/${memberId}/estimates${window}`, filename: `estimates-${member.external_id}.csv`},
+  };
+
   const rangeNav = h('nav', {class: 'range', 'aria-label': 'Time range'}, h('span', {class: 'range-label'}, 'Range: '),
       RANGES.map(([key, label]) => h('a', {href: `#/members/${memberId}?range=${key}`, class: 'chip',
         'aria-current': key === rangeKey ? 'true' : null}, label)));
@@ -47,7 +56,7 @@ export async function render(main, [memberId], ctx) {
   const summary = latest
     ? dl([
       ['Latest force', h('span', null, h('strong', null, kN(latest.axial_force_n)), ` (95 %: ${num(latest.ci95_n[0] / 1000, 1)} to ${num(latest.ci95_n[1] / 1000, 1)} kN)`)],
-      d.design_axial_force_n ? ['Utilisation', pct(latest.axial_force_n / d.design_axial_force_n) + ` of ${kN(d.design_axial_force_n)}`] : null,
+      d.design_axial_force_n ? ['Force ratio N / N design', forceRatioText(latest, d.design_axial_force_n)] : null,
       ['Measured', h('a', {href: `#/estimates/${latest.estimate_id}`}, when(latest.measured_at))],
       ['Estimates shown', String(points.length) + (history.truncated ? ' (truncated)' : '')],
       ['Open alerts', String(alerts.filter((a) => a.state === 'open').length)],
@@ -59,23 +68,37 @@ export async function render(main, [memberId], ctx) {
         {label: 'Portfolio', href: `#/structures/${member.structure_id}`}, {label: member.external_id}],
       `Member description version ${member.version}`),
       summary, rangeNav,
-      section('Axial force', forceChart(points, drift, d, alerts), driftSummary(drift)),
-      section('Bending stiffness and end fixity', eiChart(points, drift), fixityChart(fixity.points)),
+      section('Axial force', forceChart(points, drift, d, alerts, entries, csv.history), driftSummary(drift)),
+      section('Bending stiffness and end fixity', eiChart(points, drift, entries, csv.estimates), fixityChart(fixity.points, csv.estimates)),
+      section('Logbook', logbookPanel(memberId, entries, ctx)),
       section('Member', memberDrawing(d), memberFacts(d)),
       section('Alerts', alertsList(alerts)),
-      section('Latest estimates', latestList(points)),
+      section('Latest estimates', latestList(points), csvButton(csv.estimates.path, csv.estimates.filename)),
       noticeBox(drift.notice));
 }
 
 // ------------------------------------------------------------------ force
 
-function forceChart(points, drift, d, alerts) {
+// N / N_design and its 95 % interval: for a tie a low ratio is the danger.
+export function forceRatioText(p, design) {
+  const a = p.ci95_n[0] / design, b = p.ci95_n[1] / design;
+  return `${num(p.axial_force_n / design, 2)} (95 %: ${num(Math.min(a, b), 2)} to ${num(Math.max(a, b), 2)}) of ${kN(design)}`;
+}
+
+// Logbook marks on a time chart (squares, labelled L1, L2, ...).
+function logLayer(entries) {
+  return {kind: 'events', name: 'Logbook entry (L1, L2, …)', key: 'logbook', cls: 's-log', marker: 'square',
+    data: entries.map((e) => ({x: e.at, label: e.label,
+      text: `${e.label} ${e.kind}${e.new_baseline ? ' (new baseline)' : ''}, ${when(e.occurred_at)}, ${e.author}: ${e.note}`}))};
+}
+
+function forceChart(points, drift, d, alerts, entries, csv) {
   const limits = new Map(drift.points.map((p) => [p.estimate_id, p]));
   const kn = (v) => (v === null || v === undefined ? null : v / 1000);
   const rows = points.map((p) => {
     const q = limits.get(p.estimate_id) || {};
     return {...p, t: ms(p.measured_at), expected: q.force_expected_n ?? null, lim: q.force_limits_n || null,
-      z: q.force_z ?? null, in_baseline: q.in_baseline};
+      z: q.force_z ?? null, in_baseline: q.in_baseline, excluded: !!q.excluded};
   });
   const th = drift.force.thresholds;
   const first = rows.length ? rows[0] : null, last = rows.length ? rows[rows.length - 1] : null;
@@ -109,6 +132,7 @@ function forceChart(points, drift, d, alerts) {
         data: rows.map((r) => ({x: r.t, y: kn(r.axial_force_n), row: r}))},
       {kind: 'events', name: 'Alert (A1, A2, …)', key: 'alerts', cls: 's-alert',
         data: alerts.map((a) => ({x: a.at, label: a.label, text: `${a.label} ${a.rule} (${a.state}): ${a.message}`}))},
+      logLayer(entries),
     ],
     cursor: {
       layer: 'force',
@@ -116,20 +140,23 @@ function forceChart(points, drift, d, alerts) {
         const r = p.row;
         return `${when(r.measured_at)}: ${kN(r.axial_force_n)} (95 %: ${num(r.ci95_n[0] / 1000, 1)} to ${num(r.ci95_n[1] / 1000, 1)} kN), ` +
           `${degC(r.temperature_c)}` + (r.expected !== null ? `, baseline ${kN(r.expected)}` : '') +
-          (r.z !== null ? `, z = ${num(r.z, 1)}` : '') + (r.in_baseline ? ', in the baseline' : '');
+          (r.z !== null ? `, z = ${num(r.z, 1)}` : '') + (r.in_baseline ? ', in the baseline' : '') +
+          (r.excluded ? ', judged unusable: left out of the baseline and the rules' : '');
       },
       activate: (p) => (location.hash = `#/estimates/${p.row.estimate_id}`),
     },
     table: {
       rows,
+      csv,
       columns: [
-        {label: 'Measured (UTC)', value: (r) => h('a', {href: `#/estimates/${r.estimate_id}`}, when(r.measured_at))},
+        {label: `Measured (${zoneLabel()})`, value: (r) => h('a', {href: `#/estimates/${r.estimate_id}`}, when(r.measured_at))},
         {label: 'Force [kN]', value: (r) => num(r.axial_force_n / 1000, 2)},
         {label: '95 % interval [kN]', value: (r) => `${num(r.ci95_n[0] / 1000, 2)} to ${num(r.ci95_n[1] / 1000, 2)}`},
         {label: 'Temperature [°C]', value: (r) => num(r.temperature_c, 1)},
         {label: 'Baseline [kN]', value: (r) => num(kn(r.expected), 2)},
         {label: 'Alert limits [kN]', value: (r) => (r.lim ? `${num(r.lim[0] / 1000, 2)} to ${num(r.lim[1] / 1000, 2)}` : '–')},
         {label: 'z', value: (r) => num(r.z, 2)},
+        {label: 'Drift rules', value: (r) => (r.excluded ? 'left out (unusable)' : r.in_baseline ? 'baseline' : 'judged')},
       ],
     },
   });
@@ -148,7 +175,7 @@ function driftSummary(drift) {
 
 // ----------------------------------------------------- EI and fixity
 
-function eiChart(points, drift) {
+function eiChart(points, drift, entries, csv) {
   const lim = new Map(drift.points.map((p) => [p.estimate_id, p]));
   const k = (v) => (v === null || v === undefined ? null : v / 1000);
   const rows = points.map((p) => ({...p, t: ms(p.measured_at), expected: (lim.get(p.estimate_id) || {}).ei_expected_nm2 ?? null}));
@@ -170,21 +197,22 @@ function eiChart(points, drift) {
       th.loss_nm2 !== null ? {kind: 'hline', name: 'Stiffness-loss alert threshold', key: 'loss', cls: 's-threshold', dash: '10 3 2 3', y: k(th.loss_nm2),
         label: `${pct(1 - drift.settings.max_ei_loss_share)} of nominal`} : null,
       {kind: 'line', name: 'EI', key: 'ei', cls: 's-ei', marker: 'diamond', data: withEi.map((r) => ({x: r.t, y: k(r.bending_stiffness_nm2), row: r}))},
+      logLayer(entries),
     ],
     cursor: {
       layer: 'ei',
       describe: (p) => `${when(p.row.measured_at)}: EI ${kNm2(p.row.bending_stiffness_nm2)} ± ${kNm2(p.row.bending_stiffness_std_nm2 || 0)} (1 σ)`,
       activate: (p) => (location.hash = `#/estimates/${p.row.estimate_id}`),
     },
-    table: {rows: withEi, columns: [
-      {label: 'Measured (UTC)', value: (r) => when(r.measured_at)},
+    table: {rows: withEi, csv, columns: [
+      {label: `Measured (${zoneLabel()})`, value: (r) => when(r.measured_at)},
       {label: 'EI [kN·m²]', value: (r) => num(r.bending_stiffness_nm2 / 1000, 3)},
       {label: 'σ [kN·m²]', value: (r) => num((r.bending_stiffness_std_nm2 || 0) / 1000, 3)},
     ]},
   });
 }
 
-function fixityChart(points) {
+function fixityChart(points, csv) {
   const rows = points.map((p) => ({...p, t: ms(p.measured_at)}));
   const side = (r, k) => r[k] || {};
   const bars = (k) => rows.filter((r) => side(r, k).ci95).map((r) => ({x: r.t, lo: side(r, k).ci95[0], hi: side(r, k).ci95[1]}));
@@ -207,8 +235,8 @@ function fixityChart(points) {
       describe: (p) => `${when(p.row.measured_at)}: left ${fx(p.row.left)}, right ${fx(p.row.right)}`,
       activate: (p) => (location.hash = `#/estimates/${p.row.estimate_id}`),
     },
-    table: {rows, columns: [
-      {label: 'Measured (UTC)', value: (r) => when(r.measured_at)},
+    table: {rows, csv, columns: [
+      {label: `Measured (${zoneLabel()})`, value: (r) => when(r.measured_at)},
       {label: 'Left r', value: (r) => fx(r.left)},
       {label: 'Right r', value: (r) => fx(r.right)},
     ]},
@@ -309,6 +337,56 @@ function memberFacts(d) {
   ]);
 }
 
+// ----------------------------------------------------------- logbook
+
+const LOG_KINDS = [['inspected', 'Inspected'], ['re-tensioned', 'Re-tensioned'], ['sensor-replaced', 'Sensor replaced'],
+  ['repaired', 'Repaired'], ['other', 'Other']];
+
+function logbookPanel(memberId, entries, ctx) {
+  const list = entries.length
+    ? h('table', {class: 'compact', id: 'logbook'}, h('caption', null, 'What was done to the member, oldest first'),
+        h('thead', null, h('tr', null, ['', `When (${zoneLabel()})`, 'Kind', 'By', 'Note', 'Baseline'].map((t) => h('th', {scope: 'col'}, t)))),
+        h('tbody', null, entries.map((e) => h('tr', {dataset: {entry: e.id}},
+            h('td', null, h('span', {class: 'log-label'}, e.label)), h('td', null, when(e.occurred_at)),
+            h('td', null, e.kind), h('td', null, e.author), h('td', null, e.note || '–'),
+            h('td', null, e.new_baseline ? 'new baseline from here' : '–')))))
+    : h('p', {class: 'muted', id: 'logbook'}, 'No logbook entries for this member.');
+  const tools = h('p', null, csvButton(`/v1/members/${memberId}/logbook`, `logbook-${memberId}.csv`));
+  if (!roleAtLeast(ctx.me.role, 'upload')) {
+    return [list, tools, h('p', {class: 'help'}, 'Adding entries needs an upload or admin token.')];
+  }
+  const kind = h('select', {id: 'log-kind', name: 'kind'}, LOG_KINDS.map(([v, t]) => h('option', {value: v}, t)));
+  const when_ = h('input', {id: 'log-when', name: 'occurred_at', type: 'datetime-local', required: true, value: toLocalInput(Date.now())});
+  const author = h('input', {id: 'log-author', name: 'author', type: 'text', required: true, maxlength: 200, autocomplete: 'name'});
+  const note = h('textarea', {id: 'log-note', name: 'note', rows: 2, maxlength: 4000});
+  const baseline = h('input', {id: 'log-baseline', name: 'new_baseline', type: 'checkbox'});
+  const status = h('div', {id: 'log-status', 'aria-live': 'assertive'});
+  const form = h('form', {class: 'logbook-form', novalidate: true},
+      h('p', null, h('label', {for: 'log-kind'}, 'Kind'), h('br'), kind),
+      h('p', null, h('label', {for: 'log-when'}, `When (${zoneLabel()})`), h('br'), when_),
+      h('p', null, h('label', {for: 'log-author'}, 'By'), h('br'), author),
+      h('p', {class: 'wide'}, h('label', {for: 'log-note'}, 'Note'), h('br'), note),
+      h('p', {class: 'wide'}, baseline, h('label', {for: 'log-baseline'},
+          ' Start a new drift baseline from this time (after re-tensioning or a repair the old level no longer applies)')),
+      h('p', null, h('button', {type: 'submit', class: 'primary', id: 'log-send'}, 'Add to the logbook')), status);
+  form.addEventListener('submit', async (ev) => {
+    ev.preventDefault();
+    status.replaceChildren();
+    if (!author.value.trim() || !when_.value) {
+      status.append(errorBox({message: 'Say who did it and when.'}, 'Not added'));
+      return;
+    }
+    try {
+      await api.post(`/v1/members/${memberId}/logbook`, JSON.stringify({kind: kind.value, occurred_at: fromLocalInput(when_.value),
+        author: author.value.trim(), note: note.value, new_baseline: baseline.checked}), 'application/json');
+      ctx.reload();
+    } catch (err) {
+      status.append(errorBox(err, 'Not added'));
+    }
+  });
+  return [list, tools, h('h3', null, 'New entry'), form];
+}
+
 // ----------------------------------------------------------- lists
 
 function alertsList(alerts) {
@@ -323,7 +401,7 @@ function latestList(points) {
   if (!points.length) return h('p', {class: 'muted'}, 'No estimates in this range.');
   const recent = points.slice(-10).reverse();
   return h('table', {class: 'compact'}, h('caption', null, 'The ten most recent estimates in the range'),
-      h('thead', null, h('tr', null, ['Measured (UTC)', 'Force', '95 % interval', 'Temperature'].map((t) => h('th', {scope: 'col'}, t)))),
+      h('thead', null, h('tr', null, [`Measured (${zoneLabel()})`, 'Force', '95 % interval', 'Temperature'].map((t) => h('th', {scope: 'col'}, t)))),
       h('tbody', null, recent.map((p) => h('tr', null,
           h('td', null, h('a', {href: `#/estimates/${p.estimate_id}`}, when(p.measured_at))),
           h('td', {class: 'num'}, kN(p.axial_force_n, 2)),

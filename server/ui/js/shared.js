@@ -2,6 +2,7 @@
 // cautions, and the page-state signal the browser test and the bench read
 // (<html data-page=... data-state=loading|ready|error>, window.tautTiming).
 import {h} from './format.js';
+import {api} from './api.js';
 
 // replaceChildren without the pitfall: null and false children are left
 // out (the DOM would insert the text "null").
@@ -83,4 +84,41 @@ export function pageReady() {
 
 export function pageFailed() {
   document.documentElement.dataset.state = 'error';
+}
+
+// ---- downloads (CSV exports, the inspection report)
+
+// A button that fetches `path` (a string, or a function giving it at click
+// time) with the token and saves the answer as `filename`. The last
+// download is kept in window.tautLastDownload ({name, type, bytes, head, lines})
+// for the browser test.
+export function downloadButton(path, filename, label, id = null) {
+  const status = h('span', {class: 'csv-status', 'aria-live': 'polite'});
+  const button = h('button', {type: 'button', class: 'csv', id,
+    onclick: async () => {
+      status.textContent = ' …';
+      try {
+        const res = await api.raw(typeof path === 'function' ? path() : path);
+        const blob = await res.blob();
+        const text = blob.type.startsWith('application/pdf') ? '' : await blob.text();
+        window.tautLastDownload = {name: filename, type: blob.type, bytes: blob.size, head: text.slice(0, 400),
+          lines: text.split('\r\n').length - 1};
+        const a = h('a', {href: URL.createObjectURL(blob), download: filename, hidden: true});
+        document.body.append(a);
+        a.click();
+        setTimeout(() => {
+          URL.revokeObjectURL(a.href);
+          a.remove();
+        }, 1000);
+        status.textContent = ` ${filename} (${blob.size} bytes)`;
+      } catch (err) {
+        status.textContent = ' ' + (err.message || String(err));
+      }
+    }}, h('span', {'aria-hidden': 'true'}, '⤓ '), label);
+  return h('span', {class: 'csv-download'}, button, status);
+}
+
+// The CSV form of an API route (?format=csv) beside a data table.
+export function csvButton(path, filename, label = 'Download CSV') {
+  return downloadButton(path + (path.includes('?') ? '&' : '?') + 'format=csv', filename, label);
 }
