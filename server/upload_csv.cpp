@@ -39,11 +39,17 @@ Status ReadUploadedCsv(const std::string& body, const model::Member& member, con
   }
   std::istringstream in(body);
   Status s = estimation::ParseRecordCsv(in, ro, record);
-  // A channel that is not a sensor of the member is a rule the upload
-  // breaks, not a malformed file (docs/API.md: 422). The reader reports it
-  // as an invalid argument like any other error, so it is told apart by its
-  // message (record.cpp, the header check).
-  if (!s.ok() && s.message.find("is not a sensor of member") != std::string::npos) *http_status = 422;
+  // A channel that is not a sensor of the member and a record too short
+  // (fewer than kMinSamples rows or kMinRecordDuration_s) are rules a
+  // well-formed upload breaks, not malformed files (docs/API.md: 422). The
+  // reader reports them as invalid arguments like any other error, so they
+  // are told apart by their messages (record.cpp: the header check and
+  // step 4). TODO: a rule/format distinction in the reader's Status.
+  if (!s.ok()) {
+    for (const char* rule : {"is not a sensor of member", "samples after the header", "record lasts "}) {
+      if (s.message.find(rule) != std::string::npos) *http_status = 422;
+    }
+  }
   return s;
 }
 

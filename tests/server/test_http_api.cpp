@@ -317,9 +317,9 @@ TEST_F(HttpApiTest, EveryReaderErrorIsA4xxWithItsMessage) {
   r = c.Post(path, renamed, "text/csv");
   EXPECT_EQ(r->status, 422);  // a rule, not a malformed file (docs/API.md)
   EXPECT_NE(r->body.find("v9"), std::string::npos) << r->body;
-  // Too short (docs/FORMATS.md: at least 10 s).
+  // Too short (docs/FORMATS.md: at least 10 s): a rule, 422 (docs/API.md).
   r = c.Post(path, SyntheticCsv(dir_.string(), 7, 5.0), "text/csv");
-  EXPECT_EQ(r->status, 400);
+  EXPECT_EQ(r->status, 422);
   EXPECT_NE(r->body.find("10"), std::string::npos) << r->body;
   // Garbage, an unsupported media type, a bad override.
   EXPECT_EQ(c.Post(path, "hello", "text/csv")->status, 400);
