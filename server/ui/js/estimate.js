@@ -6,7 +6,7 @@
 import {api} from './api.js';
 import {h, kN, kNm2, num, sig, hz, when, degC} from './format.js';
 import {plot} from './charts.js';
-import {pageHeader, section, dl, cautionList, noticeBox, errorBox, fill, csvButton} from './shared.js';
+import {pageHeader, section, dl, cautionList, verdictLine, noticeBox, errorBox, fill, csvButton} from './shared.js';
 
 // A failed secondary request shows its error in place; the rest of the page stays.
 const soft = (p) => p.catch((err) => ({error: err}));
@@ -31,7 +31,7 @@ export async function render(main, [estimateId], ctx) {
         member.error ? null : {label: 'Portfolio', href: `#/structures/${member.structure_id}`},
         {label: name, href: `#/members/${est.member_id}`}, {label: `Estimate ${est.id}`}].filter(Boolean),
       `Record measured ${when(est.measured_at)}${est.temperature_c !== null ? ', ' + degC(est.temperature_c) : ''}`),
-      section('Result', resultFacts(r), h('h3', null, 'Cautions'), h('div', {id: 'cautions'}, cautionList(r.cautions)), noticeBox(r.notice)),
+      section('Result', verdictLine(r), resultFacts(r), h('h3', null, 'Cautions'), h('div', {id: 'cautions'}, cautionList(r.cautions)), noticeBox(r.notice)),
       section('Spectrum', spectrum.error ? errorBox(spectrum.error, 'The spectrum could not be computed') : spectrumChart(spectrum)),
       section('Frequencies', h('div', {class: 'shapes'}, frequencyChart(r), differenceChart(r)), frequencyTable(r), csvButton(`/v1/estimates/${estimateId}`, `estimate-${estimateId}-modes.csv`)),
       section('Mode shapes', shapes.error ? errorBox(shapes.error, 'The model shapes could not be computed') : shapeCharts(shapes)),
@@ -202,6 +202,11 @@ function shapeCharts(sh) {
 
 // -------------------------------------------------------------- record
 
+function readerNotes(notes) {
+  if (!Array.isArray(notes) || notes.length === 0) return 'the canonical format, in m/s2, no conversion';
+  return h('ul', {class: 'reader-notes'}, ...notes.map((n) => h('li', null, n)));
+}
+
 function recordFacts(rec) {
   const button = h('button', {type: 'button', class: 'primary', id: 'download'}, 'Download the record (CSV)');
   const status = h('span', {class: 'help', 'aria-live': 'polite'});
@@ -227,5 +232,9 @@ function recordFacts(rec) {
     ['Sampling', `${num(rec.sample_rate_hz, 2)} Hz, ${rec.sample_count} samples (${num(rec.sample_count / rec.sample_rate_hz, 1)} s)`],
     ['Channels', rec.channels.join(', ')],
     ['SHA-256 of the upload', h('code', {class: 'hash'}, rec.content_sha256)],
+    // What the reader detected and applied at upload: the logger dialect,
+    // skipped lines, units, and the calibration (sensitivity, serial,
+    // calibration date, polarity) that turned volts into m/s2.
+    ['As read', readerNotes(rec.reader_notes)],
   ]), h('p', null, button, status));
 }

@@ -35,7 +35,16 @@ export function cautionList(cautions, empty = 'No cautions.') {
   if (!cautions || cautions.length === 0) return h('p', {class: 'muted'}, empty);
   return h('ul', {class: 'cautions'},
       cautions.map((c) => h('li', null, h('span', {class: 'glyph', 'aria-hidden': 'true'}, '△ '),
-          h('code', {class: 'caution-code'}, c.code), ' ', c.message)));
+          h('code', {class: 'caution-code'}, c.code),
+          c.severity ? h('span', {class: `severity severity-${c.severity}`}, ` ${c.severity}`) : null,
+          ' ', c.message)));
+}
+
+// The one-line verdict for the technician on site (docs/FORMATS.md 3.4);
+// a result stored before verdicts existed reads as usable.
+export function verdictLine(result) {
+  const v = (result && result.verdict) || {code: 'usable', summary: 'Usable.'};
+  return h('p', {class: `verdict-line verdict-${v.code}`, id: 'verdict'}, v.summary);
 }
 
 export function loading(text = 'Loading…') {
