@@ -1,5 +1,6 @@
-// Estimates, the force of a member (latest and history), the portfolio of a
-// structure and the dashboard's chart data (computed in dashboard_data.h).
+// Estimates, the force of a member (latest and history) and the dashboard's
+// chart data (computed in dashboard_data.h). The portfolio of a structure is
+// served by routes_triage.cpp.
 #include <cmath>
 #include <limits>
 
