@@ -28,6 +28,7 @@ void Check(const StorageStatus& s) {
   if (s.ok()) return;
   if (s.not_found()) Fail(404, "not-found", s.message);
   if (s.busy()) Fail(503, "unavailable", "the database stayed busy: " + s.message);
+  if (s.unavailable()) Fail(503, "unavailable", "the database cannot be reached: " + s.message);
   switch (s.sqlite_code & 0xff) {
     case SQLITE_CONSTRAINT:
       Fail(409, "conflict", s.message);

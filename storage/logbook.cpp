@@ -51,17 +51,16 @@ StorageStatus Logbook::Add(Id organisation_id, const NewLogEntry& e, std::int64_
   }
   return internal::WriteTransaction(db_, [&]() -> StorageStatus {
     Statement member(
-        db_.handle(),
-        "SELECT 1 FROM member WHERE id = ?1 AND organisation_id = ?2 AND deleted_at_unix_ms IS NULL");
+        db_, "SELECT 1 FROM member WHERE id = ?1 AND organisation_id = ?2 AND deleted_at_unix_ms IS NULL");
     member.Bind(1, e.member_id).Bind(2, organisation_id);
     const int rc = member.Step();
     if (rc == SQLITE_DONE)
       return StorageStatus::NotFound("member " + std::to_string(e.member_id) + " not found");
     if (rc != SQLITE_ROW) return member.status();
     Statement s(
-        db_.handle(),
+        db_,
         "INSERT INTO member_log (organisation_id, member_id, kind, note, author, occurred_at_unix_ms, "
-        "new_baseline, created_at_unix_ms) VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8)");
+        "new_baseline, created_at_unix_ms) VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8) RETURNING id");
     s.Bind(1, organisation_id)
         .Bind(2, e.member_id)
         .Bind(3, std::string_view(e.kind))
@@ -70,14 +69,12 @@ StorageStatus Logbook::Add(Id organisation_id, const NewLogEntry& e, std::int64_
         .Bind(6, e.occurred_at_unix_ms)
         .Bind(7, static_cast<std::int64_t>(e.new_baseline ? 1 : 0))
         .Bind(8, now_unix_ms);
-    if (StorageStatus r = s.Run(); !r.ok()) return r;
-    *id = sqlite3_last_insert_rowid(db_.handle());
-    return {};
+    return internal::InsertReturningId(s, id);
   });
 }
 
 StorageStatus Logbook::Get(Id organisation_id, Id entry_id, LogEntry* out) {
-  Statement s(db_.handle(),
+  Statement s(db_,
               std::string("SELECT ") + kColumns + " FROM member_log WHERE id = ?1 AND organisation_id = ?2");
   s.Bind(1, entry_id).Bind(2, organisation_id);
   const int rc = s.Step();
@@ -90,10 +87,10 @@ StorageStatus Logbook::Get(Id organisation_id, Id entry_id, LogEntry* out) {
 
 StorageStatus Logbook::List(Id organisation_id, Id member_id, std::int64_t from_unix_ms,
                             std::int64_t to_unix_ms, std::vector<LogEntry>* out) {
-  Statement s(db_.handle(), std::string("SELECT ") + kColumns +
-                                " FROM member_log WHERE organisation_id = ?1 AND member_id = ?2 AND "
-                                "occurred_at_unix_ms >= ?3 AND occurred_at_unix_ms < ?4 "
-                                "ORDER BY occurred_at_unix_ms, id");
+  Statement s(db_, std::string("SELECT ") + kColumns +
+                       " FROM member_log WHERE organisation_id = ?1 AND member_id = ?2 AND "
+                       "occurred_at_unix_ms >= ?3 AND occurred_at_unix_ms < ?4 "
+                       "ORDER BY occurred_at_unix_ms, id");
   s.Bind(1, organisation_id).Bind(2, member_id).Bind(3, from_unix_ms).Bind(4, to_unix_ms);
   std::vector<LogEntry> rows;
   for (;;) {
@@ -108,19 +105,15 @@ StorageStatus Logbook::List(Id organisation_id, Id member_id, std::int64_t from_
 
 StorageStatus Logbook::Delete(Id organisation_id, Id entry_id) {
   return internal::WriteTransaction(db_, [&]() -> StorageStatus {
-    Statement s(db_.handle(), "DELETE FROM member_log WHERE id = ?1 AND organisation_id = ?2");
+    Statement s(db_, "DELETE FROM member_log WHERE id = ?1 AND organisation_id = ?2");
     s.Bind(1, entry_id).Bind(2, organisation_id);
-    if (StorageStatus r = s.Run(); !r.ok()) return r;
-    if (sqlite3_changes(db_.handle()) != 1) {
-      return StorageStatus::NotFound("log entry " + std::to_string(entry_id) + " not found");
-    }
-    return {};
+    return internal::RunOneRow(s, "log entry " + std::to_string(entry_id));
   });
 }
 
 StorageStatus Logbook::LatestBaselineStart(Id organisation_id, Id member_id,
                                            std::int64_t* occurred_at_unix_ms) {
-  Statement s(db_.handle(),
+  Statement s(db_,
               "SELECT max(occurred_at_unix_ms) FROM member_log WHERE organisation_id = ?1 AND member_id = ?2 "
               "AND new_baseline = 1");
   s.Bind(1, organisation_id).Bind(2, member_id);

@@ -3,6 +3,7 @@
 #include <array>
 #include <string>
 
+#include "storage/postgres_migrations.h"
 #include "storage/statement.h"
 
 namespace taut::storage {
@@ -299,7 +300,28 @@ CREATE TABLE member_log (
 CREATE INDEX member_log_member_time ON member_log(organisation_id, member_id, occurred_at_unix_ms);
 )sql";
 
-constexpr std::array<Migration, 7> kMigrations = {{
+// Step 8: several service replicas on one database (docs/OPERATIONS.md).
+// - job.lease_owner / lease_expires_at_unix_ms: the worker that claimed a
+//   running job and until when its claim holds; the worker's heartbeat
+//   renews it, and a job whose lease expired (its replica died) is claimed
+//   again by another. NULL expiry: a claim without a lease (one process).
+// - webhook_delivery_claim: which replica makes attempt N of a
+//   (subscription, alert) delivery, until when; one row per attempt, so an
+//   attempt is made by one replica, and again only after its claim expired.
+constexpr const char* kV8 = R"sql(
+ALTER TABLE job ADD COLUMN lease_owner TEXT;
+ALTER TABLE job ADD COLUMN lease_expires_at_unix_ms INTEGER;
+CREATE TABLE webhook_delivery_claim (
+  subscription_id     INTEGER NOT NULL,
+  alert_id            INTEGER NOT NULL,
+  attempt             INTEGER NOT NULL CHECK (attempt >= 1),
+  owner               TEXT NOT NULL,
+  expires_at_unix_ms  INTEGER NOT NULL,
+  PRIMARY KEY (subscription_id, alert_id, attempt)
+);
+)sql";
+
+constexpr std::array<Migration, 8> kMigrations = {{
     {1, "initial schema", kV1},
     {2, "estimate: member version, temperature, standard deviations, history index", kV2},
     {3, "alerts and webhooks", kV3},
@@ -307,6 +329,7 @@ constexpr std::array<Migration, 7> kMigrations = {{
     {5, "estimate: end fixities extracted from the result", kV5},
     {6, "record: the reader's notes (dialect, calibration applied)", kV6},
     {7, "estimate: verdict extracted from the result; member logbook", kV7},
+    {8, "job leases and webhook delivery claims for several replicas", kV8},
 }};
 
 constexpr const char* kMigrationTable = R"sql(
@@ -322,13 +345,14 @@ CREATE TABLE IF NOT EXISTS schema_migration (
 int LatestSchemaVersion() { return static_cast<int>(kMigrations.size()); }
 
 StorageStatus SchemaVersion(Database& db, int* version) {
+  if (db.is_postgres()) return PgSchemaVersion(*db.postgres(), version);
   *version = 0;
   internal::Statement exists(
-      db.handle(), "SELECT 1 FROM sqlite_master WHERE type = 'table' AND name = 'schema_migration'");
+      db, "SELECT 1 FROM sqlite_master WHERE type = 'table' AND name = 'schema_migration'");
   const int rc = exists.Step();
   if (rc == SQLITE_DONE) return {};
   if (rc != SQLITE_ROW) return exists.status();
-  internal::Statement max(db.handle(), "SELECT coalesce(max(version), 0) FROM schema_migration");
+  internal::Statement max(db, "SELECT coalesce(max(version), 0) FROM schema_migration");
   if (max.Step() != SQLITE_ROW) return max.status();
   *version = static_cast<int>(max.Int64(0));
   return {};
@@ -339,6 +363,7 @@ StorageStatus Migrate(Database& db, int target_version) {
     return {SQLITE_MISUSE, "target schema version " + std::to_string(target_version) + " must be in 1.." +
                                std::to_string(LatestSchemaVersion())};
   }
+  if (db.is_postgres()) return PgMigrate(*db.postgres(), target_version);
   if (StorageStatus s = db.Exec(kMigrationTable); !s.ok()) return s;
   for (const Migration& m : kMigrations) {
     if (m.version > target_version) break;
@@ -354,7 +379,7 @@ StorageStatus Migrate(Database& db, int target_version) {
         e.message = "schema step " + std::to_string(m.version) + " (" + m.name + "): " + e.message;
         return e;
       }
-      internal::Statement row(db.handle(),
+      internal::Statement row(db,
                               "INSERT INTO schema_migration (version, name, applied_at_unix_ms) "
                               "VALUES (?1, ?2, CAST((julianday('now') - 2440587.5) * 86400000 AS INTEGER))");
       row.Bind(1, static_cast<std::int64_t>(m.version)).Bind(2, std::string_view(m.name));

@@ -21,8 +21,11 @@
 //   5  estimate.end_fixity_json extracted from the result
 //   6  record.reader_notes (dialect, calibration applied)
 //   7  estimate.verdict_code (in the history index), member_log
+//   8  job leases (owner, expiry) and webhook delivery claims: several
+//      replicas on one database
 // Every step has a PostgreSQL twin of the same number
-// (postgres_migrations.h).
+// (postgres_migrations.h). Every call below works on both backends: on a
+// Database opened with a postgresql:// URI it runs the PostgreSQL steps.
 #pragma once
 
 #include <string>

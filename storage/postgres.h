@@ -3,18 +3,27 @@
 // docs/OPERATIONS.md section 2).
 //
 // Like the SQLite side (database.h) nothing here throws: every call returns
-// a StorageStatus. Until the storage interface is shared by both backends,
-// PostgreSQL failures are carried in StorageStatus with SQLite's codes:
-//   SQLITE_CANTOPEN  the server cannot be reached or refuses the login;
+// a StorageStatus. The repositories are shared by both backends, so
+// PostgreSQL failures are carried with the SQLite codes the callers already
+// test (PostgreSQL 15 documentation, Appendix A "PostgreSQL Error Codes"):
+//   SQLITE_CANTOPEN  the server cannot be reached, refuses the login or the
+//                    connection was lost (class 08, 57P01-57P03):
+//                    StorageStatus::unavailable();
+//   SQLITE_CONSTRAINT_UNIQUE / _FOREIGNKEY / _CHECK / _NOTNULL
+//                    23505 / 23503 / 23514 / 23502 (other class 23, and
+//                    P0001 raised by a trigger: SQLITE_CONSTRAINT);
+//   SQLITE_BUSY      40001 serialization_failure, 40P01 deadlock, 55P03
+//                    lock_not_available: retried by WriteTransaction;
 //   SQLITE_MISMATCH  the database is at a newer schema than this build;
-//   SQLITE_ERROR     any other failure; the message starts with the
-//                    five-character SQLSTATE ("23503 ...") when the server
-//                    sent one.
+//   SQLITE_ERROR     any other failure.
+// The message starts with the five-character SQLSTATE ("23503 ...") when
+// the server sent one.
 #pragma once
 
 #include <libpq-fe.h>
 
 #include <string>
+#include <string_view>
 #include <vector>
 
 #include "storage/database.h"
@@ -32,6 +41,16 @@ StorageStatus CheckConnectionUri(const std::string& uri);
 // True when `db` names a PostgreSQL database (a postgresql:// or
 // postgres:// URI) rather than an SQLite file.
 bool IsPostgresUri(const std::string& db);
+
+// `sql` with every ?N placeholder (SQLite's numbered form, as the
+// repositories write them) replaced by $N, outside quoted literals and
+// identifiers. Repeated uses of one number stay one parameter.
+std::string PgPlaceholders(std::string_view sql);
+
+// The StorageStatus of a libpq result (see the code list above): ok for
+// PGRES_TUPLES_OK and PGRES_COMMAND_OK. A null result or a dropped
+// connection is unavailable().
+StorageStatus PgResultStatus(PGconn* conn, const PGresult* result);
 
 // One open connection. Move-only; closes on destruction. Not thread-safe:
 // one PgConnection per thread, as for Database.
@@ -60,9 +79,17 @@ class PgConnection {
   StorageStatus Query(const std::string& sql, const std::vector<std::string>& params,
                       std::vector<std::vector<std::string>>* rows);
 
+  // True inside a transaction block (also a failed one).
+  bool InTransaction() const;
+
+  // Reconnects a connection the server dropped (PQreset); ok when the
+  // connection is up. unavailable() when the server cannot be reached.
+  StorageStatus Reconnect();
+
   PGconn* handle() const { return conn_; }  // owned by this object
 
  private:
+  StorageStatus SessionSettings();
   PGconn* conn_ = nullptr;
 };
 

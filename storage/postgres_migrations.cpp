@@ -229,12 +229,40 @@ CREATE TABLE member_log (
 CREATE INDEX member_log_member_time ON member_log(organisation_id, member_id, occurred_at_unix_ms);
 )sql";
 
+// SQLite step 8: job leases and webhook delivery claims (several replicas).
+// Also taut_json_text(doc, path...): the JSON value at `path` of `doc` as
+// text (an object as its JSON text, a string unquoted), NULL when `doc` is
+// not JSON or has no such value: what SQLite's
+// CASE WHEN json_valid(x) THEN json_extract(x, '$.a.b') END gives, used
+// when an estimate is stored (PostgreSQL 15 has no non-throwing JSON test).
+constexpr const char* kV8 = R"sql(
+ALTER TABLE job ADD COLUMN lease_owner TEXT;
+ALTER TABLE job ADD COLUMN lease_expires_at_unix_ms BIGINT;
+CREATE TABLE webhook_delivery_claim (
+  subscription_id     BIGINT NOT NULL,
+  alert_id            BIGINT NOT NULL,
+  attempt             BIGINT NOT NULL CHECK (attempt >= 1),
+  owner               TEXT NOT NULL,
+  expires_at_unix_ms  BIGINT NOT NULL,
+  PRIMARY KEY (subscription_id, alert_id, attempt)
+);
+CREATE FUNCTION taut_json_text(doc TEXT, VARIADIC path TEXT[]) RETURNS TEXT
+  LANGUAGE plpgsql IMMUTABLE AS $fn$
+BEGIN
+  RETURN doc::json #>> path;
+EXCEPTION WHEN others THEN
+  RETURN NULL;
+END
+$fn$;
+)sql";
+
 // Append-only, like the SQLite list; a step's number is its SQLite twin's.
 const std::vector<PgMigration>& Steps() {
   static const std::vector<PgMigration> steps = {
       {5, "baseline: the schema of SQLite steps 1-5", kBaseline},
       {6, "record: the reader's notes (dialect, calibration applied)", kV6},
       {7, "estimate: verdict extracted from the result; member logbook", kV7},
+      {8, "job leases and webhook delivery claims for several replicas", kV8},
   };
   return steps;
 }
@@ -277,8 +305,13 @@ StorageStatus PgSchemaVersion(PgConnection& db, int* version) {
   return {};
 }
 
-StorageStatus PgMigrate(PgConnection& db) {
+StorageStatus PgMigrate(PgConnection& db, int target_version) {
   const int latest = PgLatestSchemaVersion();
+  if (target_version < Steps().front().version || target_version > latest) {
+    return {SQLITE_MISUSE, "target schema version " + std::to_string(target_version) + " must be in " +
+                               std::to_string(Steps().front().version) + ".." + std::to_string(latest) +
+                               " on PostgreSQL"};
+  }
   // The migration table and the newer-schema check, under the lock: a
   // replica of a newer build may be migrating at this moment.
   StorageStatus s = InTransaction(db, [&]() -> StorageStatus {
@@ -294,6 +327,7 @@ StorageStatus PgMigrate(PgConnection& db) {
   });
   if (!s.ok()) return s;
   for (const PgMigration& m : Steps()) {
+    if (m.version > target_version) break;
     s = InTransaction(db, [&]() -> StorageStatus {
       if (StorageStatus l = db.Exec(kMigrationLock); !l.ok()) return l;
       int current = 0;

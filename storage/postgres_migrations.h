@@ -27,10 +27,12 @@ int PgLatestSchemaVersion();
 // The database's version (0 for a database without taut's tables).
 StorageStatus PgSchemaVersion(PgConnection& db, int* version);
 
-// Applies every missing step up to PgLatestSchemaVersion(). A database at a
-// newer version than this build knows is refused (SQLITE_MISMATCH) with a
-// message naming both versions, and nothing is written to it.
-StorageStatus PgMigrate(PgConnection& db);
+// Applies every missing step up to `target_version` (5, the baseline, ..
+// PgLatestSchemaVersion()). A database at a newer version than this build
+// knows is refused (SQLITE_MISMATCH) with a message naming both versions,
+// and nothing is written to it.
+StorageStatus PgMigrate(PgConnection& db, int target_version);
+inline StorageStatus PgMigrate(PgConnection& db) { return PgMigrate(db, PgLatestSchemaVersion()); }
 
 // PgConnection::Open followed by PgMigrate: what a replica does at start.
 StorageStatus PgOpenAndMigrate(PgConnection& db, const std::string& uri);

@@ -1,6 +1,11 @@
 // Repositories of the taut database: organisations, API tokens, structures,
 // members (versioned), records, jobs, estimates, alerts and webhooks.
 //
+// One interface, two backends: a Repository runs on the Database it is
+// given, an SQLite file or a PostgreSQL database (database.h), with the
+// same results; each query is written once (statement.h). The code is split
+// by entity: repository_tokens.cpp, _members, _records, _estimates, _alerts.
+//
 // Conventions for every call:
 // - Returns StorageStatus; outputs are written only on success. A missing
 //   id, or an id that belongs to another organisation, is not_found()
@@ -12,8 +17,11 @@
 //   organisation (FindToken) or that serve every organisation (the job
 //   queue: ClaimNextJob, RequeueRunningJobs, SetJobProgress, FinishJob,
 //   FailJob, CompleteJobWithEstimate); each says so.
-// - Every write runs in one BEGIN IMMEDIATE transaction (statement.h states
-//   the busy/retry policy): it is applied completely or not at all.
+// - Every write runs in one transaction (BEGIN IMMEDIATE on SQLite,
+//   SERIALIZABLE on PostgreSQL; statement.h states the busy/retry policy):
+//   it is applied completely or not at all.
+// - A database that cannot be reached (PostgreSQL down, connection lost) is
+//   unavailable(): nothing of the call was written.
 // - Values are bound as statement parameters, never spliced into SQL.
 // - Times are integers: milliseconds since 1970-01-01T00:00:00Z (UTC), in
 //   fields named *_unix_ms. Callers supply "now" so tests are repeatable.
@@ -151,6 +159,20 @@ struct Job {
   int attempts = 0;            // times the job was claimed
   std::int64_t created_at_unix_ms = 0;
   std::optional<std::int64_t> started_at_unix_ms, finished_at_unix_ms;
+  // The worker holding a running job and until when (schema step 8); ""
+  // and absent for a claim without a lease.
+  std::string lease_owner;
+  std::optional<std::int64_t> lease_expires_at_unix_ms;
+};
+
+// A worker's claim on the job it runs, for several replicas on one
+// database: `owner` names the worker (unique among live workers, e.g.
+// host, process and thread), the claim holds for duration_ms unless the
+// worker's heartbeat renews it (RenewJobLease). A replica that dies stops
+// renewing; once the lease expired another worker claims the job again.
+struct JobLease {
+  std::string owner;             // 1..200 characters
+  std::int64_t duration_ms = 0;  // > 0
 };
 
 // An estimate: the docs/FORMATS.md section 3 object as JSON text plus the columns
@@ -301,14 +323,32 @@ class Repository {
   // claiming: one organisation's backlog cannot starve another's);
   // *claimed = false if the queue is empty. Two workers never
   // claim the same job: the claim is one UPDATE under the write lock.
+  // On PostgreSQL the candidate row is taken with FOR UPDATE SKIP LOCKED
+  // (documentation, SELECT "The Locking Clause"), so concurrent claimers
+  // of several replicas pass each other instead of queueing.
+  // This form takes no lease (one process; RequeueRunningJobs at start).
   StorageStatus ClaimNextJob(std::int64_t now_unix_ms, Job* out, bool* claimed);
+  // With a lease: as above, and a running job whose lease expired before
+  // now (its worker died) is claimable too (attempts + 1 again). The job's
+  // lease_owner and expiry (now + duration_ms) are set.
+  StorageStatus ClaimNextJob(std::int64_t now_unix_ms, const JobLease& lease, Job* out, bool* claimed);
+  // The heartbeat: extends the lease of a running job held by `owner` to
+  // now + duration_ms. not_found() when the job is no longer running under
+  // this owner (its lease expired and another worker took it): the worker
+  // must store nothing for it.
+  StorageStatus RenewJobLease(Id job_id, std::string_view owner, std::int64_t now_unix_ms,
+                              std::int64_t duration_ms);
+  // The calls below finish a running job. With a non-empty `lease_owner`
+  // the job must also be held by that owner (not_found() otherwise), so a
+  // worker whose lease was taken over cannot store a second estimate.
   // progress in [0, 1]; the job must be running.
-  StorageStatus SetJobProgress(Id job_id, double progress);
-  StorageStatus FailJob(Id job_id, std::string_view reason, std::int64_t now_unix_ms);  // reason non-empty
+  StorageStatus SetJobProgress(Id job_id, double progress, std::string_view lease_owner = {});
+  StorageStatus FailJob(Id job_id, std::string_view reason, std::int64_t now_unix_ms,
+                        std::string_view lease_owner = {});  // reason non-empty
   // Stores the estimate of a running job's record and marks the job done
   // (progress 1) in one transaction.
   StorageStatus CompleteJobWithEstimate(Id job_id, const NewEstimate& estimate, std::int64_t now_unix_ms,
-                                        Id* estimate_id);
+                                        Id* estimate_id, std::string_view lease_owner = {});
   // Start-up: every job left running by a stopped process goes back to
   // queued (progress 0). *count = number of jobs requeued.
   StorageStatus RequeueRunningJobs(int* count);
@@ -376,8 +416,14 @@ class Repository {
   // As RaiseAlert, but at most once per (member, rule, estimate): when such
   // an alert exists already, *id is its id, *created = false and nothing is
   // written. alert.estimate_id must be set.
+  // unless_standing: nor when the member has an open or acknowledged alert
+  // of the same rule for another estimate (*id is that alert's). Checked in
+  // the write transaction, which on PostgreSQL first takes a
+  // transaction-level advisory lock on the member (pg_advisory_xact_lock),
+  // so the drift checks of one member by several workers or replicas raise
+  // one alert per rule.
   StorageStatus RaiseAlertOnce(Id organisation_id, const NewAlert& alert, std::int64_t now_unix_ms, Id* id,
-                               bool* created);
+                               bool* created, bool unless_standing = false);
   // Per-member drift settings as JSON text (server/ parses it);
   // not_found() when the member uses the defaults.
   StorageStatus GetDriftSettings(Id organisation_id, Id member_id, std::string* settings_json);
@@ -405,6 +451,13 @@ class Repository {
     std::int64_t due_at_unix_ms = 0;
   };
   StorageStatus DueDeliveries(std::int64_t now_unix_ms, std::size_t limit, std::vector<DueDelivery>* out);
+  // Claims attempt d.attempt of the (subscription, alert) delivery for
+  // `owner` until now + duration_ms (schema step 8), so that of several
+  // replicas reading the same due list one makes the attempt. *claimed =
+  // false when another owner's claim on it has not expired or the attempt
+  // (or a later one) is logged already.
+  StorageStatus ClaimDelivery(const DueDelivery& d, std::string_view owner, std::int64_t now_unix_ms,
+                              std::int64_t duration_ms, bool* claimed);
 
   // Test hook (STYLE.md item 13, fail-at-step-N): called with a running
   // step number (1, 2, ...) before each SQL statement executed inside a

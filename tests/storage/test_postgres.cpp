@@ -64,10 +64,10 @@ Shape SqliteShape() {
   EXPECT_TRUE(OpenAndMigrate(db, ":memory:").ok());
   Shape shape;
   internal::Statement tables(
-      db.handle(), "SELECT name FROM sqlite_master WHERE type = 'table' AND name NOT LIKE 'sqlite_%'");
+      db, "SELECT name FROM sqlite_master WHERE type = 'table' AND name NOT LIKE 'sqlite_%'");
   while (tables.Step() == SQLITE_ROW) {
     const std::string t = tables.Text(0);
-    internal::Statement cols(db.handle(), "SELECT name, \"notnull\", pk FROM pragma_table_info(?1)");
+    internal::Statement cols(db, "SELECT name, \"notnull\", pk FROM pragma_table_info(?1)");
     cols.Bind(1, t);
     // SQLite's INTEGER PRIMARY KEY is the rowid and never NULL, though
     // table_info reports notnull 0 for it; PostgreSQL says NOT NULL.
@@ -90,8 +90,7 @@ Shape PostgresShape(PgConnection& db) {
 std::set<std::string> SqliteIndexes() {
   Database db;
   EXPECT_TRUE(OpenAndMigrate(db, ":memory:").ok());
-  internal::Statement s(db.handle(),
-                        "SELECT name FROM sqlite_master WHERE type = 'index' AND sql IS NOT NULL");
+  internal::Statement s(db, "SELECT name FROM sqlite_master WHERE type = 'index' AND sql IS NOT NULL");
   std::set<std::string> out;
   while (s.Step() == SQLITE_ROW) out.insert(s.Text(0));
   return out;
