@@ -11,6 +11,7 @@
 #include "server/iso_time.h"
 #include "server/worker.h"
 #include "storage/migrations.h"
+#include "storage/postgres.h"
 #include "storage/repository.h"
 
 namespace taut::server {
@@ -26,6 +27,7 @@ struct ServeCliOptions {
   int request_deadline_s = kDefaultRequestDeadline_s;
   int max_connections_per_client = kDefaultMaxConnectionsPerClient;
   int job_time_limit_s = kDefaultJobTimeLimit_s;
+  int job_lease_s = 30;
   std::vector<std::string> webhook_allow;
   bool quiet = false;
 };
@@ -44,7 +46,19 @@ bool SplitListen(const std::string& listen, std::string* host, int* port) {
   return *port <= 65535;
 }
 
+// A postgresql:// URI must carry no password (it would show in the process
+// list and the unit file): one line naming the rule, exit code 2.
+bool CheckDbOption(const std::string& db, const char* command, std::ostream& err) {
+  if (!storage::IsPostgresUri(db)) return true;
+  if (storage::StorageStatus s = storage::CheckConnectionUri(db); !s.ok()) {
+    err << command << ": --db: " << s.message << "\n";
+    return false;
+  }
+  return true;
+}
+
 int RunServe(const ServeCliOptions& o, std::ostream& out, std::ostream& err) {
+  if (!CheckDbOption(o.db_path, "taut serve", err)) return 2;
   ServeOptions so;
   so.db_path = o.db_path;
   if (!SplitListen(o.listen, &so.host, &so.port)) {
@@ -74,6 +88,7 @@ int RunServe(const ServeCliOptions& o, std::ostream& out, std::ostream& err) {
   wo.db_path = o.db_path;
   wo.workers = o.workers;
   wo.job_time_limit = std::chrono::seconds(o.job_time_limit_s);
+  wo.job_lease = std::chrono::seconds(o.job_lease_s);
   wo.webhook_policy = so.webhook_policy;
   wo.log = o.quiet ? nullptr : &std::cerr;
   WorkerPool workers(wo, &metrics);
@@ -107,6 +122,7 @@ struct TokenCliOptions {
 // Opens the database and finds the organisation by name (not created).
 bool OpenOrganisation(const TokenCliOptions& o, const char* what, storage::Database& db,
                       storage::Organisation* org, std::ostream& err) {
+  if (!CheckDbOption(o.db_path, (std::string("taut token ") + what).c_str(), err)) return false;
   if (storage::StorageStatus s = storage::OpenAndMigrate(db, o.db_path); !s.ok()) {
     err << "taut token " << what << ": " << o.db_path << ": " << s.message << "\n";
     return false;
@@ -153,6 +169,7 @@ int RunTokenRevoke(const TokenCliOptions& o, std::ostream& out, std::ostream& er
 }
 
 int RunTokenCreate(const TokenCliOptions& o, std::ostream& out, std::ostream& err) {
+  if (!CheckDbOption(o.db_path, "taut token create", err)) return 2;
   storage::Database db;
   if (storage::StorageStatus s = storage::OpenAndMigrate(db, o.db_path); !s.ok()) {
     err << "taut token create: " << o.db_path << ": " << s.message << "\n";
@@ -214,7 +231,9 @@ void RegisterServeCommand(CLI::App& app, CliContext* ctx) {
   // over the file, the file over the environment (CLI11 reads the file first
   // and takes a variable only for an option still unset).
   cmd->fallthrough();
-  cmd->add_option("--db", o->db_path, "SQLite database file (created and migrated if needed)")
+  cmd->add_option("--db", o->db_path,
+                  "SQLite database file, or postgresql://USER@HOST:PORT/DB for PostgreSQL (password from "
+                  "PGPASSWORD or ~/.pgpass, never in the URI); created or migrated if needed")
       ->required()
       ->envname("TAUT_DB");
   cmd->add_option("--listen", o->listen, "HOST:PORT to listen on; port 0 picks a free port")
@@ -244,6 +263,12 @@ void RegisterServeCommand(CLI::App& app, CliContext* ctx) {
                   "seconds one identification may run before its job fails with that reason")
       ->check(CLI::Range(1, 86400))
       ->capture_default_str();
+  cmd->add_option("--job-lease", o->job_lease_s,
+                  "seconds a running job stays claimed without a heartbeat; after that another replica "
+                  "on the same database runs it again (the heartbeat renews it every third of this)")
+      ->check(CLI::Range(1, 3600))
+      ->envname("TAUT_JOB_LEASE")
+      ->capture_default_str();
   cmd->add_option("--webhook-allow", o->webhook_allow,
                   "address range (CIDR) webhooks may point to although it is not public, e.g. 10.1.0.0/16; "
                   "repeatable (loopback, private and link-local are refused otherwise)");
@@ -255,7 +280,8 @@ void RegisterServeCommand(CLI::App& app, CliContext* ctx) {
   token->require_subcommand(1);
   CLI::App* create = token->add_subcommand(
       "create", "Create an API token (printed once; the database keeps only a salted hash)");
-  create->add_option("--db", t->db_path, "SQLite database file")->required();
+  create->add_option("--db", t->db_path, "SQLite database file or postgresql:// URI (as taut serve)")
+      ->required();
   create->add_option("--org", t->org, "organisation name (created if it does not exist)")->required();
   create->add_option("--role", t->role, "read, upload or admin")
       ->required()
@@ -263,11 +289,13 @@ void RegisterServeCommand(CLI::App& app, CliContext* ctx) {
   create->add_option("--label", t->label, "free text to recognise the token by");
   create->callback([t, ctx] { ctx->exit_code = RunTokenCreate(*t, *ctx->out, *ctx->err); });
   CLI::App* list = token->add_subcommand("list", "List an organisation's tokens (never their secrets)");
-  list->add_option("--db", t->db_path, "SQLite database file")->required();
+  list->add_option("--db", t->db_path, "SQLite database file or postgresql:// URI (as taut serve)")
+      ->required();
   list->add_option("--org", t->org, "organisation name")->required();
   list->callback([t, ctx] { ctx->exit_code = RunTokenList(*t, *ctx->out, *ctx->err); });
   CLI::App* revoke = token->add_subcommand("revoke", "Revoke a token at once (requests with it get 401)");
-  revoke->add_option("--db", t->db_path, "SQLite database file")->required();
+  revoke->add_option("--db", t->db_path, "SQLite database file or postgresql:// URI (as taut serve)")
+      ->required();
   revoke->add_option("--org", t->org, "organisation name")->required();
   revoke->add_option("--id", t->id, "token id (first column of taut token list)")->required();
   revoke->callback([t, ctx] { ctx->exit_code = RunTokenRevoke(*t, *ctx->out, *ctx->err); });

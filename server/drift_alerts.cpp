@@ -151,7 +151,11 @@ bool CheckDriftAndRaiseAlerts(storage::Repository& repo, Id organisation_id, Id 
     na.evidence = EvidenceJson(alert, report, ei_rule ? "bending_stiffness_nm2" : "axial_force_n").dump();
     Id alert_id = 0;
     bool created = false;
-    if (StorageStatus s = repo.RaiseAlertOnce(organisation_id, na, NowUnixMs(), &alert_id, &created);
+    // unless_standing: the standing check above, repeated in the write
+    // transaction under the member's lock, so that concurrent checks of the
+    // member (other workers, other replicas) raise the rule once.
+    if (StorageStatus s = repo.RaiseAlertOnce(organisation_id, na, NowUnixMs(), &alert_id, &created,
+                                              /*unless_standing=*/true);
         !s.ok()) {
       {
         log("level=error " + where + " rule=" + alert.rule + ": " + s.message);

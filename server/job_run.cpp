@@ -50,12 +50,14 @@ estimation::Record ToEstimationRecord(const storage::Record& stored) {
 }  // namespace
 
 std::string RunIdentification(storage::Repository& repo, const storage::Job& job, Id* estimate_id,
-                              Id* member_id, std::chrono::seconds time_limit) {
+                              Id* member_id, std::chrono::seconds time_limit, bool* retry) {
+  if (retry != nullptr) *retry = false;
   const auto deadline = std::chrono::steady_clock::now() + time_limit;
   const std::string over_time = "the identification ran longer than the job time limit of " +
                                 std::to_string(time_limit.count()) + " s (taut serve --job-time-limit)";
   storage::Record stored;
   if (StorageStatus s = repo.GetRecord(job.organisation_id, job.record_id, &stored); !s.ok()) {
+    if (retry != nullptr) *retry = s.unavailable() || s.busy();
     return "record " + std::to_string(job.record_id) + ": " + s.message;
   }
   *member_id = stored.member_id;
@@ -66,6 +68,7 @@ std::string RunIdentification(storage::Repository& repo, const storage::Job& job
   if (StorageStatus s =
           repo.GetMemberVersion(job.organisation_id, stored.member_id, stored.member_version, &version);
       !s.ok()) {
+    if (retry != nullptr) *retry = s.unavailable() || s.busy();
     return "member " + std::to_string(stored.member_id) + ": " + s.message;
   }
   model::Member member;
@@ -80,7 +83,7 @@ std::string RunIdentification(storage::Repository& repo, const storage::Job& job
     if (std::chrono::steady_clock::now() > deadline) throw TimeLimitExceeded();
     if (share < 1.0 && share - written >= kProgressStep) {
       written = share;
-      repo.SetJobProgress(job.id, share);  // best effort: progress is advisory
+      repo.SetJobProgress(job.id, share, job.lease_owner);  // best effort: progress is advisory
     }
   };
   estimation::Estimate estimate;
@@ -100,7 +103,9 @@ std::string RunIdentification(storage::Repository& repo, const storage::Job& job
   if (!estimate.bending_stiffness_nm2.fixed)
     ne.bending_stiffness_std_nm2 = estimate.bending_stiffness_nm2.std;
   ne.result_json = EstimateToJson(estimate).dump();
-  if (StorageStatus s = repo.CompleteJobWithEstimate(job.id, ne, NowUnixMs(), estimate_id); !s.ok()) {
+  if (StorageStatus s = repo.CompleteJobWithEstimate(job.id, ne, NowUnixMs(), estimate_id, job.lease_owner);
+      !s.ok()) {
+    if (retry != nullptr) *retry = s.unavailable() || s.busy();
     return "storing the estimate: " + s.message;
   }
   return "";

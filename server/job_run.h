@@ -15,8 +15,11 @@ namespace taut::server {
 // reason to keep with the job. The job's progress is written as it runs
 // (best effort). An identification still running after `time_limit` is
 // abandoned at its next progress point and fails with that reason. Does not
-// fail the job itself.
+// fail the job itself. *retry (may be null) is set when the failure is the
+// database's (unavailable or busy), not the job's: the job should then run
+// again rather than fail. A leased job (job.lease_owner) is stored only
+// while this worker still holds the lease.
 std::string RunIdentification(storage::Repository& repo, const storage::Job& job, storage::Id* estimate_id,
-                              storage::Id* member_id, std::chrono::seconds time_limit);
+                              storage::Id* member_id, std::chrono::seconds time_limit, bool* retry = nullptr);
 
 }  // namespace taut::server

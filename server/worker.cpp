@@ -1,9 +1,12 @@
 #include "server/worker.h"
 
+#include <unistd.h>
+
 #include <atomic>
 #include <iostream>
 #include <map>
 #include <memory>
+#include <random>
 
 #include "server/alert_rules.h"
 #include "server/drift_alerts.h"
@@ -25,19 +28,34 @@ constexpr std::size_t kDriftBatch = 64;
 // organisations still busy are skipped, so the batch is generous).
 constexpr std::size_t kDeliveryBatch = 256;
 
+// host:pid:random, unique among live processes (the random part tells a
+// restarted process from its predecessor with a reused pid).
+std::string DefaultReplicaId() {
+  char host[256] = {};
+  if (gethostname(host, sizeof host - 1) != 0) host[0] = '\0';
+  std::random_device rd;
+  char suffix[9];
+  std::snprintf(suffix, sizeof suffix, "%08x", static_cast<unsigned>(rd()));
+  return std::string(host) + ":" + std::to_string(getpid()) + ":" + suffix;
+}
+
 }  // namespace
 
 struct WorkerPool::Impl {
-  Impl(WorkerOptions o, Metrics* m) : options(std::move(o)), metrics(m) {}
+  Impl(WorkerOptions o, Metrics* m) : options(std::move(o)), metrics(m) {
+    if (options.replica_id.empty()) options.replica_id = DefaultReplicaId();
+  }
 
   WorkerOptions options;
   Metrics* metrics;  // not owned; may be null
   std::mutex mu;
-  std::condition_variable job_cv, webhook_cv;
+  std::condition_variable job_cv, webhook_cv, heartbeat_cv;
   bool stopping = false;
   int job_signals = 0, webhook_signals = 0;
   std::vector<std::thread> threads;
   std::mutex log_mu;
+  std::mutex held_mu;
+  std::map<Id, std::string> held;  // job id -> lease owner, for the heartbeat
 
   void Log(const std::string& line) {
     if (!options.log) return;
@@ -81,12 +99,22 @@ struct WorkerPool::Impl {
         SignalWebhooks();
       storage::Job job;
       bool claimed = false;
-      if (StorageStatus s = repo.ClaimNextJob(NowUnixMs(), &job, &claimed); !s.ok()) {
+      const storage::JobLease lease{options.replica_id + "/w" + std::to_string(index),
+                                    options.job_lease.count()};
+      if (StorageStatus s = repo.ClaimNextJob(NowUnixMs(), lease, &job, &claimed); !s.ok()) {
         Log("level=error worker=" + std::to_string(index) + " claim: " + s.message);
         claimed = false;
       }
       if (claimed) {
+        {
+          std::lock_guard<std::mutex> lock(held_mu);
+          held[job.id] = job.lease_owner;
+        }
         RunJob(repo, job, index);
+        {
+          std::lock_guard<std::mutex> lock(held_mu);
+          held.erase(job.id);
+        }
         continue;  // look for the next job at once
       }
       if (!Wait(job_cv, job_signals, options.poll_interval)) break;
@@ -98,20 +126,28 @@ struct WorkerPool::Impl {
     std::string failure;
     Id estimate_id = 0;
     Id member_id = 0;
+    bool retry = false;
     if (job.attempts > options.max_job_attempts) {
       failure = "the identification was interrupted " + std::to_string(job.attempts - 1) +
                 " times (the service stopped while it ran); not retried";
     } else {
       try {
-        failure = RunIdentification(repo, job, &estimate_id, &member_id, options.job_time_limit);
+        failure = RunIdentification(repo, job, &estimate_id, &member_id, options.job_time_limit, &retry);
       } catch (const std::exception& e) {
         failure = std::string("internal error: ") + e.what();
       }
     }
     const double seconds = std::chrono::duration<double>(std::chrono::steady_clock::now() - t0).count();
     if (metrics) metrics->RecordIdentify(seconds, failure.empty());
+    if (retry) {
+      // The database failed, not the job: it stays running under its lease,
+      // which expires, and then any worker runs it again.
+      Log("level=warn worker=" + std::to_string(index) + " job=" + std::to_string(job.id) +
+          " state=retry-later reason=\"" + failure + "\"");
+      return;
+    }
     if (!failure.empty()) {
-      if (StorageStatus s = repo.FailJob(job.id, failure, NowUnixMs()); !s.ok()) {
+      if (StorageStatus s = repo.FailJob(job.id, failure, NowUnixMs(), job.lease_owner); !s.ok()) {
         Log("level=error job=" + std::to_string(job.id) + " cannot record the failure: " + s.message);
       }
       Log("level=info worker=" + std::to_string(index) + " job=" + std::to_string(job.id) +
@@ -141,6 +177,35 @@ struct WorkerPool::Impl {
     if (CheckDriftAndRaiseAlerts(repo, organisation_id, member_id, estimate_id,
                                  [this](const std::string& line) { Log(line); })) {
       SignalWebhooks();
+    }
+  }
+
+  // ---- leases
+
+  // Renews the lease of every job this process runs, every job_lease / 3.
+  void HeartbeatLoop() {
+    storage::Database db;
+    if (StorageStatus s = db.Open(options.db_path); !s.ok()) {
+      return Log("level=error heartbeat database: " + s.message);
+    }
+    storage::Repository repo(db);
+    const auto period = std::max(options.job_lease / 3, std::chrono::milliseconds(50));
+    int no_signals = 0;  // woken only by Stop()
+    while (Wait(heartbeat_cv, no_signals, period)) {
+      std::map<Id, std::string> jobs;
+      {
+        std::lock_guard<std::mutex> lock(held_mu);
+        jobs = held;
+      }
+      for (const auto& [id, owner] : jobs) {
+        const StorageStatus s = repo.RenewJobLease(id, owner, NowUnixMs(), options.job_lease.count());
+        if (s.not_found()) {
+          Log("level=warn job=" + std::to_string(id) +
+              " lease lost (another worker took the job over); its " + "result will not be stored");
+        } else if (!s.ok()) {
+          Log("level=error job=" + std::to_string(id) + " lease renewal: " + s.message);
+        }
+      }
     }
   }
 
@@ -207,8 +272,18 @@ struct WorkerPool::Impl {
       return Log("level=error webhooks database: " + s.message);
     }
     storage::Repository repo(db);
+    // A claim outlives the attempt (its HTTP timeout) with a margin; after
+    // it expired another replica may make the attempt again.
+    const std::int64_t claim_ms = 2 * options.webhook_timeout.count() + 10000;
     for (const auto& d : list) {
       if (Stopping()) return;
+      bool claimed = false;
+      if (StorageStatus s = repo.ClaimDelivery(d, options.replica_id, NowUnixMs(), claim_ms, &claimed);
+          !s.ok()) {
+        Log("level=error webhooks claim alert=" + std::to_string(d.alert_id) + ": " + s.message);
+        continue;
+      }
+      if (!claimed) continue;  // another replica makes this attempt
       DeliverWebhook(repo, d, options, metrics, [this](const std::string& line) { Log(line); });
     }
   }
@@ -229,11 +304,17 @@ Status WorkerPool::Start() {
       return Status::InvalidArgument(s.options.db_path + ": " + st.message);
     }
     storage::Repository repo(db);
-    int requeued = 0;
-    if (StorageStatus st = repo.RequeueRunningJobs(&requeued); !st.ok()) {
-      return Status::InvalidArgument(s.options.db_path + ": requeueing interrupted jobs: " + st.message);
+    // One process per SQLite file is the rule (docs/OPERATIONS.md): what is
+    // running was left by its predecessor and goes back to the queue now.
+    // On PostgreSQL other replicas' jobs are running; a dead replica's come
+    // back when their leases expire.
+    if (!db.is_postgres()) {
+      int requeued = 0;
+      if (StorageStatus st = repo.RequeueRunningJobs(&requeued); !st.ok()) {
+        return Status::InvalidArgument(s.options.db_path + ": requeueing interrupted jobs: " + st.message);
+      }
+      if (requeued > 0) s.Log("level=info requeued=" + std::to_string(requeued) + " interrupted jobs");
     }
-    if (requeued > 0) s.Log("level=info requeued=" + std::to_string(requeued) + " interrupted jobs");
   }
   {
     std::lock_guard<std::mutex> lock(s.mu);
@@ -241,6 +322,7 @@ Status WorkerPool::Start() {
   }
   for (int i = 0; i < s.options.workers; ++i) s.threads.emplace_back([&s, i] { s.JobLoop(i); });
   s.threads.emplace_back([&s] { s.WebhookLoop(); });
+  s.threads.emplace_back([&s] { s.HeartbeatLoop(); });
   return Status::Ok();
 }
 
@@ -261,6 +343,7 @@ void WorkerPool::Stop() {
   }
   s.job_cv.notify_all();
   s.webhook_cv.notify_all();
+  s.heartbeat_cv.notify_all();
   for (auto& t : s.threads) {
     if (t.joinable()) t.join();
   }

@@ -7,7 +7,17 @@
 // run drift detection (estimation/drift.h) over the member's estimates and
 // raise the alerts that fire at the new estimate. A job whose inputs cannot
 // be identified fails with the reason (the estimation's message); a job is
-// never lost: jobs left running by a stopped process are requeued at Start.
+// never lost: jobs left running by a stopped process are requeued at Start
+// (SQLite), and every running job is leased (storage JobLease): a heartbeat
+// thread renews the leases of the jobs this process runs, and a job whose
+// lease expired, because its process died, is claimed again by any worker
+// of any replica. So several `taut serve` processes may share one database
+// (PostgreSQL; docs/OPERATIONS.md): a job is run by one worker at a time,
+// stored once (the estimate is stored only under the lease), drift alerts
+// are decided under a per-member lock, and each webhook delivery attempt
+// is claimed by one replica (Repository::ClaimDelivery). A job whose
+// database became unreachable mid-run is not failed: it runs again once
+// its lease expires.
 //
 // Webhooks: every new alert is POSTed to each active subscription of its
 // organisation (docs/API.md "Alerts and webhooks"); failed deliveries are
@@ -35,7 +45,7 @@
 namespace taut::server {
 
 struct WorkerOptions {
-  std::string db_path;  // the service's SQLite file (migrated by the caller)
+  std::string db_path;  // SQLite file or postgresql:// URI (migrated by the caller)
   int workers = 2;      // job threads, >= 1
   // Workers sleep at most this long between queue polls when nobody calls
   // Notify() (a job queued by another process is still picked up).
@@ -55,6 +65,13 @@ struct WorkerOptions {
   WebhookPolicy webhook_policy;
   // One key=value line per job, alert and delivery. Not owned; may be null.
   std::ostream* log = nullptr;
+  // The lease of a running job: renewed every job_lease / 3 while the job
+  // runs; another replica may claim the job once it expired. Longer than
+  // any pause of a live process (a lost lease costs a repeated
+  // identification, never a second estimate).
+  std::chrono::milliseconds job_lease{30000};
+  // This process's name in leases and delivery claims ("" = host:pid:random).
+  std::string replica_id;
 };
 
 class WorkerPool {

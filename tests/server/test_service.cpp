@@ -41,6 +41,7 @@
 #include "server/worker.h"
 #include "storage/migrations.h"
 #include "storage/repository.h"
+#include "tests/server/hanger_record.h"
 #include "tests/server/serve_process.h"
 
 // After Eigen: <resolv.h> (pulled in by httplib) defines _res.
@@ -52,48 +53,8 @@ namespace {
 using nlohmann::json;
 using namespace std::chrono_literals;
 
-std::string ReadFile(const std::string& path) {
-  std::ifstream in(path);
-  std::stringstream ss;
-  ss << in.rdbuf();
-  return ss.str();
-}
-
-// The invented test member (examples/oskerton-footbridge-h2.json: a 7.4 m,
-// 36 mm steel hanger with three lateral accelerometers).
-struct Hanger {
-  model::Member member;
-  std::string text;
-  Hanger() {
-    const std::string path = std::string(TAUT_EXAMPLES_DIR) + "/oskerton-footbridge-h2.json";
-    text = ReadFile(path);
-    EXPECT_TRUE(LoadMemberFile(path, &member, MemberReadOptions{.require_id = true}).ok());
-  }
-};
-
-// A model-generated ambient record of the hanger as CSV text.
-std::string HangerCsv(const Hanger& h, double axial_force_n, const std::string& recorded_at,
-                      double temperature_c, unsigned seed, double duration_s = 100.0) {
-  model::ModalParameters truth;
-  truth.axial_force_n = axial_force_n;
-  truth.fixity_left = 0.35;
-  truth.fixity_right = 0.6;
-  model::AmbientSpec spec;
-  spec.duration_s = duration_s;
-  spec.sample_rate_hz = 128;
-  spec.modes = 4;
-  spec.seed = seed;
-  spec.rms_m_s2 = 0.02;
-  std::vector<std::string> channels;
-  Eigen::MatrixXd a;
-  EXPECT_TRUE(
-      model::SynthesizeAmbient(h.member, model::Direction::kLateral, truth, spec, &channels, &a).ok());
-  RecordCsvHeader header;
-  header.recorded_at = recorded_at;
-  header.temperature_c = temperature_c;
-  return FormatRecordCsv(header, channels, spec.sample_rate_hz, a.rows(),
-                         [&](std::int64_t i, std::size_t c) { return a(i, static_cast<Eigen::Index>(c)); });
-}
+using taut::testing::Hanger;
+using taut::testing::HangerCsv;
 
 class ServiceTest : public ::testing::Test {
  protected:

@@ -563,5 +563,100 @@ TEST_P(RepositoryTest, WebhookDeliveriesAreLogged) {
   EXPECT_EQ(hooks[0].secret, "secret");
 }
 
+// Several replicas (schema step 8): a leased job is renewed by its owner's
+// heartbeat, taken over by another worker once the lease expired, and the
+// first owner can then store nothing. Times are the caller's "now", so the
+// expiry is exact (no sleeping).
+TEST_P(RepositoryTest, ExpiredLeaseIsClaimedAgainAndTheLoserStoresNothing) {
+  const Fixture f = MakeFixture(repo_, "Lease Street Works");
+  RecordInsertResult ins;
+  ASSERT_TRUE(repo_.InsertRecord(f.org, SmallRecord(f.member, 1, 1), 1, &ins).ok());
+  Job a, b;
+  bool claimed = false;
+  ASSERT_TRUE(repo_.ClaimNextJob(1000, JobLease{"replica-a/w0", 2000}, &a, &claimed).ok());
+  ASSERT_TRUE(claimed);
+  EXPECT_EQ(a.lease_owner, "replica-a/w0");
+  EXPECT_EQ(a.lease_expires_at_unix_ms.value_or(0), 3000);
+  // Within the lease nobody else gets it; the heartbeat extends it.
+  ASSERT_TRUE(repo_.ClaimNextJob(2500, JobLease{"replica-b/w0", 2000}, &b, &claimed).ok());
+  EXPECT_FALSE(claimed);
+  ASSERT_TRUE(repo_.RenewJobLease(a.id, "replica-a/w0", 2900, 2000).ok());
+  ASSERT_TRUE(repo_.ClaimNextJob(4000, JobLease{"replica-b/w0", 2000}, &b, &claimed).ok());
+  EXPECT_FALSE(claimed) << "renewed until 4900";
+  EXPECT_TRUE(repo_.RenewJobLease(a.id, "replica-b/w0", 4000, 2000).not_found()) << "not b's lease";
+  // Replica a stops renewing (it died): after 4900 replica b takes the job.
+  ASSERT_TRUE(repo_.ClaimNextJob(5000, JobLease{"replica-b/w0", 2000}, &b, &claimed).ok());
+  ASSERT_TRUE(claimed);
+  EXPECT_EQ(b.id, a.id);
+  EXPECT_EQ(b.attempts, 2);
+  EXPECT_EQ(b.lease_owner, "replica-b/w0");
+  // a, late, can neither renew, report progress, store nor fail the job.
+  EXPECT_TRUE(repo_.RenewJobLease(a.id, "replica-a/w0", 5100, 2000).not_found());
+  EXPECT_TRUE(repo_.SetJobProgress(a.id, 0.5, "replica-a/w0").not_found());
+  Id est = 0;
+  const NewEstimate e{ins.record_id, 30000, 200, 29600, 30400, 8000, 100, "{}"};
+  EXPECT_TRUE(repo_.CompleteJobWithEstimate(a.id, e, 5200, &est, "replica-a/w0").not_found());
+  EXPECT_TRUE(repo_.FailJob(a.id, "late", 5200, "replica-a/w0").not_found());
+  ASSERT_TRUE(repo_.CompleteJobWithEstimate(b.id, e, 5300, &est, "replica-b/w0").ok());
+  EXPECT_EQ(CountRows(db_, "estimate"), 1);
+  Job done;
+  ASSERT_TRUE(repo_.GetJob(f.org, a.id, &done).ok());
+  EXPECT_EQ(done.state, JobState::kDone);
+  EXPECT_FALSE(done.lease_expires_at_unix_ms.has_value()) << "a finished job holds no lease";
+}
+
+// Of several replicas reading the same due delivery, one claims the attempt;
+// after its claim expired (the replica died before logging it) another may
+// make it; once logged it is claimed by nobody.
+TEST_P(RepositoryTest, OneReplicaClaimsEachDeliveryAttempt) {
+  const Fixture f = MakeFixture(repo_, "Claim Row Estate");
+  Id hook = 0, alert = 0;
+  ASSERT_TRUE(repo_.CreateWebhook(f.org, "https://hooks.example.invalid/t", "s3cret", 10, &hook).ok());
+  ASSERT_TRUE(
+      repo_.RaiseAlert(f.org, {f.member, std::nullopt, "force-residual", "m", "{}"}, 20, &alert).ok());
+  std::vector<Repository::DueDelivery> due;
+  ASSERT_TRUE(repo_.DueDeliveries(30, 10, &due).ok());
+  ASSERT_EQ(due.size(), 1u);
+  bool a = false, b = false;
+  ASSERT_TRUE(repo_.ClaimDelivery(due[0], "replica-a", 30, 1000, &a).ok());
+  ASSERT_TRUE(repo_.ClaimDelivery(due[0], "replica-b", 40, 1000, &b).ok());
+  EXPECT_TRUE(a);
+  EXPECT_FALSE(b) << "replica a's claim holds until 1030";
+  ASSERT_TRUE(repo_.ClaimDelivery(due[0], "replica-b", 1030, 1000, &b).ok());
+  EXPECT_TRUE(b) << "expired claim taken over";
+  Id d = 0;
+  ASSERT_TRUE(repo_.RecordDelivery(f.org, {0, hook, alert, 1, 1100, 200, "", true, std::nullopt}, &d).ok());
+  ASSERT_TRUE(repo_.ClaimDelivery(due[0], "replica-c", 5000, 1000, &b).ok());
+  EXPECT_FALSE(b) << "attempt 1 is logged";
+}
+
+// RaiseAlertOnce(unless_standing): a rule with an open or acknowledged
+// alert for the member raises no other, whichever estimate fires it.
+TEST_P(RepositoryTest, AStandingAlertOfTheRuleBlocksAnotherForTheMember) {
+  const Fixture f = MakeFixture(repo_, "Standing Rule Trust");
+  Id est[2] = {};
+  for (int i = 0; i < 2; ++i) {
+    RecordInsertResult ins;
+    ASSERT_TRUE(repo_.InsertRecord(f.org, SmallRecord(f.member, 10 + i, 100 + i), 1, &ins).ok());
+    Job j;
+    bool claimed = false;
+    ASSERT_TRUE(repo_.ClaimNextJob(2, &j, &claimed).ok());
+    ASSERT_TRUE(
+        repo_.CompleteJobWithEstimate(j.id, {ins.record_id, 1, 0, 0, 2, 1, 0, "{}"}, 3, &est[i]).ok());
+  }
+  Id first = 0, second = 0;
+  bool created = false;
+  NewAlert alert{f.member, est[0], "force-cusum", "inspect", "{}"};
+  ASSERT_TRUE(repo_.RaiseAlertOnce(f.org, alert, 10, &first, &created, true).ok());
+  EXPECT_TRUE(created);
+  alert.estimate_id = est[1];
+  ASSERT_TRUE(repo_.RaiseAlertOnce(f.org, alert, 11, &second, &created, true).ok());
+  EXPECT_FALSE(created);
+  EXPECT_EQ(second, first);
+  ASSERT_TRUE(repo_.ResolveAlert(f.org, first, 12).ok());
+  ASSERT_TRUE(repo_.RaiseAlertOnce(f.org, alert, 13, &second, &created, true).ok());
+  EXPECT_TRUE(created) << "resolved: the condition may be raised again";
+}
+
 }  // namespace
 }  // namespace taut::storage
