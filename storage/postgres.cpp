@@ -11,7 +11,7 @@ std::string Trimmed(const char* message) {
   std::string m = message ? message : "";
   while (!m.empty() && (m.back() == '\n' || m.back() == ' ')) m.pop_back();
   for (char& c : m)
-    if (c == '\n') c = ' ';
+    if (c == '\n' || c == '\t') c = ' ';
   return m;
 }
 
