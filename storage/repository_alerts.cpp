@@ -290,6 +290,7 @@ StorageStatus Repository::ClaimDelivery(const DueDelivery& d, std::string_view o
   *claimed = false;
   if (owner.empty() || duration_ms <= 0) return Misuse("a delivery claim needs its owner and a duration > 0");
   return Write([&]() -> StorageStatus {
+    *claimed = false;  // again on a retry (statement.h)
     if (StorageStatus f = Fault(); !f.ok()) return f;
     Statement logged(db_,
                      "SELECT 1 FROM webhook_delivery WHERE subscription_id = ?1 AND alert_id = ?2 AND "

@@ -242,6 +242,7 @@ StorageStatus Repository::ClaimNextJob(std::int64_t now_unix_ms, const JobLease&
   }
   static const std::string kSqlite = ClaimSql(false), kPostgres = ClaimSql(true);
   return Write([&]() -> StorageStatus {
+    *claimed = false;  // again on a retry (statement.h): a rolled-back claim is no claim
     if (StorageStatus f = Fault(); !f.ok()) return f;
     Statement s(db_, db_.is_postgres() ? kPostgres : kSqlite);
     s.Bind(1, now_unix_ms);

@@ -102,8 +102,10 @@ class Statement {
 // back-off, up to kPgMaxWriteAttempts times (PostgreSQL 15 documentation,
 // 13.2.3 "Serializable Isolation Level": "applications using this level
 // must be prepared to retry transactions due to serialization failures").
-// `body` must therefore write its outputs only from what it read inside the
-// transaction. A lost connection is unavailable() and is not retried here.
+// `body` must therefore set every output it has on each run (a flag set by
+// a rolled-back attempt must not survive into the next one; the PostgreSQL
+// run of the concurrency tests caught exactly that). A lost connection is
+// unavailable() and is not retried here.
 inline constexpr int kMaxWriteAttempts = 3;
 inline constexpr int kPgMaxWriteAttempts = 20;
 

@@ -16,6 +16,7 @@
 #include <set>
 #include <thread>
 
+#include "tests/storage/backend_fixture.h"
 #include "tests/storage/storage_test_support.h"
 
 namespace taut::storage {
@@ -189,13 +190,15 @@ TEST_F(FaultTest, WriterWaitsForAShortLockInsteadOfFailing) {
   EXPECT_TRUE(s.ok()) << s.message;
 }
 
-TEST(Concurrency, EightWritersLoseAndDuplicateNothing) {
-  TempDbFile file;
+// Both backends: SQLite's single writer, PostgreSQL's serializable
+// transactions retried on conflict (statement.h).
+class ConcurrencyTest : public testing::BackendTest {};
+TAUT_BOTH_BACKENDS(ConcurrencyTest);
+
+TEST_P(ConcurrencyTest, EightWritersLoseAndDuplicateNothing) {
   Fixture f;
   {
-    Database db;
-    ASSERT_TRUE(OpenAndMigrate(db, file.path()).ok());
-    Repository repo(db);
+    Repository repo(db_);
     f = MakeFixture(repo, "Eight Gateways Ltd");
   }
   constexpr int kThreads = 8, kUnique = 30, kShared = 10;
@@ -205,7 +208,7 @@ TEST(Concurrency, EightWritersLoseAndDuplicateNothing) {
   for (int t = 0; t < kThreads; ++t) {
     threads.emplace_back([&, t] {
       Database db;  // one connection per thread
-      if (StorageStatus s = db.Open(file.path()); !s.ok()) {
+      if (StorageStatus s = db.Open(path()); !s.ok()) {
         errors[t] = s.message;
         return;
       }
@@ -248,18 +251,15 @@ TEST(Concurrency, EightWritersLoseAndDuplicateNothing) {
     EXPECT_EQ(originals, 1) << "exactly one thread stored shared upload " << i;
   }
   Database db;
-  ASSERT_TRUE(db.Open(file.path()).ok());
+  ASSERT_TRUE(db.Open(path()).ok());
   EXPECT_EQ(CountRows(db, "record"), kThreads * kUnique + kShared);
   EXPECT_EQ(CountRows(db, "job"), kThreads * kUnique + kShared);
 }
 
-TEST(Concurrency, FourWorkersNeverClaimTheSameJob) {
-  TempDbFile file;
+TEST_P(ConcurrencyTest, FourWorkersNeverClaimTheSameJob) {
   constexpr int kJobs = 60, kWorkers = 4;
   {
-    Database db;
-    ASSERT_TRUE(OpenAndMigrate(db, file.path()).ok());
-    Repository repo(db);
+    Repository repo(db_);
     const Fixture f = MakeFixture(repo, "Four Workers Ltd");
     for (int i = 0; i < kJobs; ++i) {
       RecordInsertResult r;
@@ -272,7 +272,7 @@ TEST(Concurrency, FourWorkersNeverClaimTheSameJob) {
   for (int w = 0; w < kWorkers; ++w) {
     threads.emplace_back([&, w] {
       Database db;
-      if (!db.Open(file.path()).ok()) {
+      if (!db.Open(path()).ok()) {
         ++failures;
         return;
       }

@@ -4,6 +4,7 @@
 #include <sqlite3.h>
 
 #include "storage/logbook.h"
+#include "tests/storage/backend_fixture.h"
 #include "tests/storage/storage_test_support.h"
 
 namespace taut::storage {
@@ -12,19 +13,14 @@ namespace {
 using testing::MakeFixture;
 using testing::TempDbFile;
 
-class LogbookTest : public ::testing::Test {
+class LogbookTest : public testing::BackendTest {
  protected:
-  void SetUp() override {
-    const StorageStatus s = OpenAndMigrate(db_, file_.path());
-    ASSERT_TRUE(s.ok()) << s.message;
-  }
-  TempDbFile file_;
-  Database db_;
   Repository repo_{db_};
   Logbook log_{db_};
 };
+TAUT_BOTH_BACKENDS(LogbookTest);
 
-TEST_F(LogbookTest, EntriesAreKeptInTimeOrderAndScopedToTheOrganisation) {
+TEST_P(LogbookTest, EntriesAreKeptInTimeOrderAndScopedToTheOrganisation) {
   const auto a = MakeFixture(repo_, "Harbour Works");
   const auto b = MakeFixture(repo_, "Valley Works");
   Id e1 = 0, e2 = 0, e3 = 0;
@@ -58,7 +54,7 @@ TEST_F(LogbookTest, EntriesAreKeptInTimeOrderAndScopedToTheOrganisation) {
   EXPECT_EQ(start, 3000);
 }
 
-TEST_F(LogbookTest, InvalidEntriesAreRefusedNamingTheField) {
+TEST_P(LogbookTest, InvalidEntriesAreRefusedNamingTheField) {
   const auto a = MakeFixture(repo_, "Harbour Works");
   Id x = 0;
   StorageStatus s = log_.Add(a.org, {a.member, "painted", "", "R. Field", 1, false}, 1, &x);

@@ -19,6 +19,7 @@
 #include "storage/migrations.h"
 #include "storage/postgres.h"
 #include "storage/postgres_migrations.h"
+#include "storage/repository.h"
 #include "storage/statement.h"
 #include "tests/storage/postgres_server.h"
 
@@ -150,6 +151,73 @@ TEST_F(PostgresTest, ConcurrentReplicasApplyEachStepOnce) {
   ASSERT_TRUE(PgMigrate(db).ok());
   ASSERT_TRUE(db.Query("SELECT count(*) FROM schema_migration", {}, &rows).ok());
   EXPECT_EQ(rows.at(0).at(0), steps);
+}
+
+// Every earlier PostgreSQL version (5, the baseline, up to the latest - 1)
+// upgrades with its rows kept, through the same OpenAndMigrate the service
+// calls, and the repository reads and writes the upgraded database.
+TEST_F(PostgresTest, EveryEarlierVersionUpgradesAndKeepsItsRows) {
+  for (int from = 5; from < LatestSchemaVersion(); ++from) {
+    SCOPED_TRACE("from version " + std::to_string(from));
+    static int n = 0;
+    const std::string name = db_name_ + "_v" + std::to_string(++n);
+    {
+      PgConnection admin;
+      ASSERT_TRUE(admin.Open(server_->Uri("postgres")).ok());
+      ASSERT_TRUE(admin.Exec("CREATE DATABASE " + name).ok());
+      PgConnection db;
+      ASSERT_TRUE(db.Open(server_->Uri(name)).ok());
+      const StorageStatus m = PgMigrate(db, from);
+      ASSERT_TRUE(m.ok()) << m.message;
+      // Rows in the columns of the baseline; the samples blob is binary32
+      // 1.0 little-endian, 0x3F800000 (IEEE 754-2008, 3.4).
+      const StorageStatus seed = db.Exec(
+          "INSERT INTO organisation (name, created_at_unix_ms) VALUES ('Seed Estate', 1);"
+          "INSERT INTO structure (organisation_id, name, created_at_unix_ms) VALUES (1, 'Seed hall', 1);"
+          "INSERT INTO member (organisation_id, structure_id, external_id, current_version, "
+          "created_at_unix_ms) VALUES (1, 1, 'tie-1', 1, 1);"
+          "INSERT INTO member_version (member_id, version, description_json, created_at_unix_ms) "
+          "VALUES (1, 1, '{}', 1);"
+          "INSERT INTO record (organisation_id, member_id, member_version, recorded_at_unix_ms, units, "
+          "excitation, sample_rate_hz, channels, channel_count, sample_count, sample_format, samples, "
+          "content_sha256, samples_sha256, created_at_unix_ms) VALUES (1, 1, 1, 1000, 'm/s2', 'ambient', "
+          "100, 'a1', 1, 1, 'f32le', '\\x0000803f'::bytea, repeat('a', 64), repeat('b', 64), 1);"
+          "INSERT INTO job (organisation_id, record_id, state, created_at_unix_ms) VALUES (1, 1, 'running', "
+          "1);"
+          "INSERT INTO estimate (organisation_id, member_id, member_version, record_id, job_id, "
+          "measured_at_unix_ms, axial_force_n, force_ci95_low_n, force_ci95_high_n, result_json, "
+          "created_at_unix_ms) VALUES (1, 1, 1, 1, 1, 1000, 30000, 29000, 31000, "
+          "'{\"verdict\": {\"code\": \"unusable\"}}', 1);");
+      ASSERT_TRUE(seed.ok()) << seed.message;
+    }
+    Database db;  // a later start of the service
+    const StorageStatus s = OpenAndMigrate(db, server_->Uri(name));
+    ASSERT_TRUE(s.ok()) << s.message;
+    int version = 0;
+    ASSERT_TRUE(SchemaVersion(db, &version).ok());
+    EXPECT_EQ(version, LatestSchemaVersion());
+    Repository repo(db);
+    Record r;
+    ASSERT_TRUE(repo.GetRecord(1, 1, &r).ok());
+    ASSERT_EQ(r.samples.size(), 1u);
+    EXPECT_EQ(r.samples[0], 1.0);
+    Estimate e;
+    ASSERT_TRUE(repo.GetEstimate(1, 1, &e).ok());
+    EXPECT_EQ(e.axial_force_n, 30000.0);
+    // Step 7 extracts the verdict of results stored before it.
+    EXPECT_EQ(e.verdict_code, from < 7 ? "unusable" : "");
+    // Step 8: the job left running has no lease; requeued and claimed with one.
+    Job j;
+    ASSERT_TRUE(repo.GetJob(1, 1, &j).ok());
+    EXPECT_TRUE(j.lease_owner.empty());
+    int requeued = 0;
+    ASSERT_TRUE(repo.RequeueRunningJobs(&requeued).ok());
+    EXPECT_EQ(requeued, 1);
+    bool claimed = false;
+    ASSERT_TRUE(repo.ClaimNextJob(5000, JobLease{"replica/w0", 1000}, &j, &claimed).ok());
+    ASSERT_TRUE(claimed);
+    EXPECT_EQ(j.lease_expires_at_unix_ms.value_or(0), 6000);
+  }
 }
 
 TEST_F(PostgresTest, NewerSchemaIsRefusedNamingBothVersions) {
