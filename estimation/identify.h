@@ -5,7 +5,7 @@
 // Sign convention: N > 0 in tension. Units: SI, suffix on every field.
 //
 // Unknowns (internal, scaled so that Ceres' relative finite-difference step
-// means the same thing for each, see identify.cpp):
+// means the same thing for each, see identify_problem.h):
 //   N                      axial force, bounded below only by buckling,
 //   ln EI                  EI > 0,
 //   r_left, r_right        fixity factors in [0, 1] of `elastic` ends only
@@ -77,7 +77,7 @@ inline constexpr double kDesignForceDeviationShare = 0.3;
 // this share raises the large-amplitude caution (0.5 % is several frequency
 // stds of a good record; common practice, recalled value).
 inline constexpr double kLargeAmplitudeFrequencyShift = 0.005;
-// EI prior conflict (identify.cpp IdentifyFromModes): an estimate more than
+// EI prior conflict (identify_hypotheses.cpp ResolvePriorConflict): an estimate more than
 // kPriorConflictSigma prior stds from the nominal EI (or a poor fit) makes
 // the identification run again with the prior relaxed to
 // kRelaxedPriorSigmaLn (one std = a factor e^2 = 7.4: the 4-12 times errors

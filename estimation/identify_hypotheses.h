@@ -1,0 +1,48 @@
+// The hypothesis search of model updating (issue 12, failure classes 2
+// and 3): which numbering of the measured modes and which EI prior the
+// reported estimate rests on. Internal to estimation/.
+//
+// - One identification (IdentifyWithPrior, identify.cpp) fits one
+//   numbering (the order search's winner, pairing.h, or a forced one) with
+//   one EI prior, from several starts (GridStarts).
+// - An EI prior conflict (kPriorConflictSigma, identify.h) reruns it with
+//   the prior relaxed (ResolvePriorConflict; caution "stiffness-off-nominal").
+// - A close rival numbering is fitted too and either replaces the estimate
+//   or widens the N interval to cover both (CompareRivalNumbering; caution
+//   "order-hypotheses-disagree").
+// Scores are in chi-square units (twice the Ceres cost).
+#pragma once
+
+#include <vector>
+
+#include "estimation/identify.h"
+#include "estimation/identify_problem.h"
+#include "estimation/pairing.h"
+
+namespace taut::estimation::fit {
+
+// One identification with the EI prior of `options` (the whole sequence of
+// the file comment of identify.h). `forced_orders` (optional): the
+// numbering to use instead of the search's (one entry per measured mode in
+// ascending frequency, 0 = left out); `search` (optional) receives the
+// search's hypothesis with its rival. Defined in identify.cpp.
+Status IdentifyWithPrior(const model::Member& member, const ModalIdentification& ident,
+                         const IdentifyOptions& options, Estimate* estimate,
+                         const std::vector<int>* forced_orders = nullptr, OrderHypothesis* search = nullptr);
+
+// The starts of the fit after the first (the pairing point): a grid over
+// the fixities of the elastic ends (options.start_fixities) at the
+// regression start `x_reg`.
+std::vector<Unknowns> GridStarts(const FitContext& ctx, const Unknowns& x_reg, const IdentifyOptions& options);
+
+// The EI prior conflict check on `est` (made with `options`' prior, `search`
+// its order search): may replace both with the relaxed-prior identification.
+void ResolvePriorConflict(const model::Member& member, const ModalIdentification& ident,
+                          const IdentifyOptions& options, Estimate* est, OrderHypothesis* search);
+
+// Competing numberings: fits the search's rival when it scored within
+// kRivalSearchScore of the winner (see identify.h).
+void CompareRivalNumbering(const model::Member& member, const ModalIdentification& ident,
+                           const IdentifyOptions& options, const OrderHypothesis& search, Estimate* est);
+
+}  // namespace taut::estimation::fit
