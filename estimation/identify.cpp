@@ -561,7 +561,6 @@ Status IdentifyWithPrior(const model::Member& member, const ModalIdentification&
     }
     n_std = std::max(std::isfinite(n_std) ? n_std : 0.0, (n_hi - n_lo) / (2.0 * kZ95));
   }
-  est.fit.profile_model_calls = ctx.calls - calls_before_profile;
   est.axial_force_n = {n_hat, n_std, n_lo, n_hi, false, !unidentified[0] && !profile_open};
   if (profile_open || !std::isfinite(n_std)) {
     est.cautions.push_back({"force-interval-open",
@@ -569,13 +568,32 @@ Status IdentifyWithPrior(const model::Member& member, const ModalIdentification&
                             "searched; the interval shown is only the searched range."});
   }
 
-  // EI: log-normal interval from the std of ln EI.
+  // EI: log-normal Wald interval from the std of ln EI, and the profile
+  // likelihood of ln EI (as for N; the Wald interval alone was 2-3 times too
+  // narrow across repeated records of one member, issue 12): the wider one
+  // is reported (fit.bending_stiffness_interval).
+  std::string ei_method = "wald";
   {
     const double ei = ctx.EI(x.data());
     // Without a covariance the prior's std is an upper bound of the
     // posterior std of ln EI (data only add information to a Gaussian prior).
     const double s = have_cov ? std_of(1) : options.ei_prior_sigma_ln;
-    est.bending_stiffness_nm2 = {ei,    ei * s,          ei * std::exp(-kZ95 * s), ei * std::exp(kZ95 * s),
+    double ln_lo = -kZ95 * s, ln_hi = kZ95 * s;  // ln(EI_bound / EI)
+    if (options.profile_bending_stiffness) {
+      ProfileInput pin;
+      pin.unknown = 1;
+      pin.cov = have_cov ? &cov : nullptr;
+      pin.cov_scale = cov_scale;
+      pin.fallback_step = options.ei_prior_sigma_ln;
+      pin.min_step = 1e-3;
+      const ProfileInterval prof = Profile(ctx, best, free_block, pin, options);
+      const double p_lo = prof.low - x[1], p_hi = prof.high - x[1];
+      if (p_hi - p_lo > ln_hi - ln_lo) ei_method = "profile";
+      ln_lo = std::min(ln_lo, p_lo);
+      ln_hi = std::max(ln_hi, p_hi);
+    }
+    const double s_reported = std::max(s, (ln_hi - ln_lo) / (2.0 * kZ95));
+    est.bending_stiffness_nm2 = {ei,    ei * s_reported, ei * std::exp(ln_lo), ei * std::exp(ln_hi),
                                  false, !unidentified[1]};
     if (s > kPriorDominatedShare * options.ei_prior_sigma_ln) {
       est.cautions.push_back(
@@ -584,6 +602,7 @@ Status IdentifyWithPrior(const model::Member& member, const ModalIdentification&
                " N m^2 +- " + FormatNumber(100 * options.ei_prior_sigma_ln, 2) + " %), not by the record."});
     }
   }
+  est.fit.profile_model_calls = ctx.calls - calls_before_profile;
 
   // Fixities.
   model::ModalResult final_modes;
@@ -649,6 +668,7 @@ Status IdentifyWithPrior(const model::Member& member, const ModalIdentification&
   est.fit.starts_at_best = at_best;
   est.fit.elements = elements;
   est.fit.axial_force_interval = n_method;
+  est.fit.bending_stiffness_interval = ei_method;
 
   AppendFitCautions(member, ctx.free_axial, &est);
 

@@ -26,7 +26,8 @@
 //                        residual is free of the measured shape's scale and sign);
 //   prior:               (ln EI - ln EI_nominal) / ei_prior_sigma_ln.
 // Uncertainty: Gauss-Newton covariance from ceres::Covariance (DENSE_SVD)
-// scaled by the reduced chi-square when above 1; the N interval is the wider
+// scaled by the reduced chi-square when above 1; the N interval (and the EI
+// interval, on ln EI) is the wider
 // of the Wald interval and the profile-likelihood interval (N held on a
 // grid, the other unknowns re-optimised, boundary at a rise of the
 // chi-square by 3.841, the 95 % point of chi-square with one degree of
@@ -117,6 +118,9 @@ struct IdentifyOptions {
   PairingOptions pairing;
   // Compute the profile-likelihood interval of N (a few extra fits).
   bool profile_axial_force = true;
+  // Compute the profile-likelihood interval of EI (ln EI held on a grid,
+  // the others re-optimised; a few extra fits).
+  bool profile_bending_stiffness = true;
   // Estimate the axial support stiffness where it applies (a declared
   // support spring, vertical plane, sag coupling that moves the lowest
   // mode by more than its std; identify.cpp). false: the declared value holds.
@@ -168,6 +172,9 @@ struct FitSummary {
   // the time-domain fit "modal-floor": its Wald interval widened to the
   // modal estimate's relative width (identify_record.cpp).
   std::string axial_force_interval = "wald";
+  // The same for EI: "wald" (log-normal, from the std of ln EI) or
+  // "profile" (the profile likelihood of ln EI, when wider).
+  std::string bending_stiffness_interval = "wald";
 };
 
 // The time-domain fit behind a "transient" estimate (identify_record.h).

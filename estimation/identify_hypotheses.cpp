@@ -8,7 +8,8 @@
 
 namespace taut::estimation::fit {
 
-std::vector<Unknowns> GridStarts(const FitContext& ctx, const Unknowns& x_reg, const IdentifyOptions& options) {
+std::vector<Unknowns> GridStarts(const FitContext& ctx, const Unknowns& x_reg,
+                                 const IdentifyOptions& options) {
   std::vector<Unknowns> starts;
   if (!ctx.free_left && !ctx.free_right) return starts;
   const std::vector<double> grid_l = ctx.free_left ? options.start_fixities : std::vector<double>{0.0};
@@ -120,7 +121,6 @@ void CompareRivalNumbering(const model::Member& member, const ModalIdentificatio
                                                   " % of the estimate " + FormatKn(n.value) + "."});
   }
 }
-
 
 void ResolvePriorConflict(const model::Member& member, const ModalIdentification& ident,
                           const IdentifyOptions& options, Estimate* est_out, OrderHypothesis* search) {

@@ -33,7 +33,8 @@ Status IdentifyWithPrior(const model::Member& member, const ModalIdentification&
 // The starts of the fit after the first (the pairing point): a grid over
 // the fixities of the elastic ends (options.start_fixities) at the
 // regression start `x_reg`.
-std::vector<Unknowns> GridStarts(const FitContext& ctx, const Unknowns& x_reg, const IdentifyOptions& options);
+std::vector<Unknowns> GridStarts(const FitContext& ctx, const Unknowns& x_reg,
+                                 const IdentifyOptions& options);
 
 // The EI prior conflict check on `est` (made with `options`' prior, `search`
 // its order search): may replace both with the relaxed-prior identification.

@@ -73,7 +73,6 @@ bool FitContext::Evaluate(const Unknowns& x, double* res) const {
 
 namespace {
 
-
 // The Ceres functor: five one-entry parameter blocks (x0..x4 above), so
 // that held unknowns are constant blocks for which Ceres asks no Jacobian
 // (and numeric differentiation spends no model calls).
@@ -201,7 +200,8 @@ FitOutcome RunFit(const FitContext& ctx, const Unknowns& start, int held, const 
   for (int phase = 0; phase < 3; ++phase) {
     ceres::Problem problem;
     BuildProblem(ctx, out.x, held == 0, &problem);
-    if (held > 0 && !problem.IsParameterBlockConstant(&out.x[held])) problem.SetParameterBlockConstant(&out.x[held]);
+    if (held > 0 && !problem.IsParameterBlockConstant(&out.x[held]))
+      problem.SetParameterBlockConstant(&out.x[held]);
     for (int j = kLeft; j < kUnknowns; ++j) {
       if (phase == 1 && held_at_bound[j]) problem.SetParameterBlockConstant(&out.x[j]);
     }

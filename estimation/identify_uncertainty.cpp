@@ -47,7 +47,8 @@ bool CovarianceAt(const FitContext& ctx, Unknowns x, const Blocks& held, const B
   return true;
 }
 
-Blocks UnidentifiedUnknowns(const FitContext& ctx, const Unknowns& x, const Blocks& free_block, double cov_scale) {
+Blocks UnidentifiedUnknowns(const FitContext& ctx, const Unknowns& x, const Blocks& free_block,
+                            double cov_scale) {
   Blocks unidentified{};
   Eigen::MatrixXd jac;
   if (!JacobianAt(ctx, x, &jac)) return unidentified;

@@ -55,7 +55,8 @@ constexpr double kParticipation = 0.3;
 // unknown with a component >= kParticipation in a direction whose std
 // (scaled by cov_scale) exceeds kMaxIdentifiableStd natural units. All false
 // when the Jacobian cannot be evaluated.
-Blocks UnidentifiedUnknowns(const FitContext& ctx, const Unknowns& x, const Blocks& free_block, double cov_scale);
+Blocks UnidentifiedUnknowns(const FitContext& ctx, const Unknowns& x, const Blocks& free_block,
+                            double cov_scale);
 
 // Profile likelihood: at most this many steps outward per side, the first
 // of 1.96 Wald stds (or `fallback_step`), doubling after each step that
@@ -63,11 +64,11 @@ Blocks UnidentifiedUnknowns(const FitContext& ctx, const Unknowns& x, const Bloc
 constexpr int kMaxProfileSteps = 10;
 
 struct ProfileInput {
-  int unknown = 0;             // 0 (N) or 1 (ln EI)
+  int unknown = 0;                        // 0 (N) or 1 (ln EI)
   const CovarianceMatrix* cov = nullptr;  // Wald covariance (scaled), null when none
-  double cov_scale = 1.0;      // max(1, reduced chi-square)
-  double fallback_step = 0.1;  // first step without a Wald std [internal units]
-  double min_step = 1e-3;      // smallest first step [internal units]
+  double cov_scale = 1.0;                 // max(1, reduced chi-square)
+  double fallback_step = 0.1;             // first step without a Wald std [internal units]
+  double min_step = 1e-3;                 // smallest first step [internal units]
 };
 struct ProfileInterval {
   double low = 0.0, high = 0.0;  // internal units of the unknown
