@@ -206,6 +206,8 @@ Status IdentifyWithPrior(const model::Member& member, const ModalIdentification&
   ctx.free_left = member.left.kind == model::RotationEnd::Kind::kElastic;
   ctx.free_right = member.right.kind == model::RotationEnd::Kind::kElastic;
   ctx.ea_over_l = member.AxialRigidity_n() / member.length_m;
+  ctx.length_m = member.length_m;
+  ctx.ea_from_fitted_e = options.sag_ea_from_fitted_e;
   // Declared axial support ratio (the start of x4; see AxialSupportMatters).
   double rho_declared = 1.0;
   {
@@ -478,6 +480,12 @@ Status IdentifyWithPrior(const model::Member& member, const ModalIdentification&
   int n_data = 1;  // prior
   for (const auto& p : ctx.pairs) n_data += 1 + (ctx.UseShapes() ? static_cast<int>(p.shape.size()) - 1 : 0);
   const int dof = n_data - n_free;
+
+  // EA of the sag term: from the fitted E, or the nominal one where the
+  // data prefer it (identify_hypotheses.h).
+  const SagComparison sag = CompareSagAxialRigidity(
+      ctx, options,
+      plane == model::Direction::kVertical && member.axial.kind != model::AxialEnds::Kind::kFree, dof, &best);
   const double chi2 = 2.0 * best.cost;
   const double reduced_chi2 = dof > 0 ? chi2 / dof : 0.0;
   const double cov_scale = std::max(1.0, reduced_chi2);
@@ -561,6 +569,22 @@ Status IdentifyWithPrior(const model::Member& member, const ModalIdentification&
     }
     n_std = std::max(std::isfinite(n_std) ? n_std : 0.0, (n_hi - n_lo) / (2.0 * kZ95));
   }
+  // EA of the sag term undecided by the data: the interval also covers the
+  // nominal-EA estimate (the same interval shifted to its force).
+  if (sag.comparable && std::abs(sag.other_force_n - n_hat) > 0.25 * (n_hi - n_lo)) {
+    const double d = sag.other_force_n - n_hat;
+    n_lo = std::min(n_lo, n_lo + d);
+    n_hi = std::max(n_hi, n_hi + d);
+    n_std = std::max(n_std, (n_hi - n_lo) / (2.0 * kZ95));
+    n_method = "sag-stiffness";
+    est.cautions.push_back(
+        {"sag-stiffness-uncertain",
+         "The sag of the member couples its vertical modes to its axial stiffness EA, which the record does "
+         "not fix: EA from the fitted E gives " +
+             FormatKn(n_hat) + ", EA from the nominal E (" + FormatNumber(sag.other_ea_share, 3) +
+             " times that) gives " + FormatKn(sag.other_force_n) +
+             "; the interval covers both. Knowing E or the section settles it."});
+  }
   est.axial_force_n = {n_hat, n_std, n_lo, n_hi, false, !unidentified[0] && !profile_open};
   if (profile_open || !std::isfinite(n_std)) {
     est.cautions.push_back({"force-interval-open",
@@ -630,7 +654,8 @@ Status IdentifyWithPrior(const model::Member& member, const ModalIdentification&
   est.fixity_left = fixity(2, ctx.free_left, final_ok ? final_modes.fixity_left : 0.0);
   est.fixity_right = fixity(3, ctx.free_right, final_ok ? final_modes.fixity_right : 0.0);
   est.axial_support_ratio = fixity(kAxial, ctx.free_axial, rho_declared);
-  est.axial_support_stiffness_n_per_m = SupportStiffness(est.axial_support_ratio.value, ctx.ea_over_l);
+  est.axial_support_stiffness_n_per_m =
+      SupportStiffness(est.axial_support_ratio.value, ctx.EaOverL(x.data()));
 
   // Modes with pairing and model values at the estimate.
   for (size_t i = 0; i < measured.size(); ++i) {

@@ -125,6 +125,13 @@ struct IdentifyOptions {
   // support spring, vertical plane, sag coupling that moves the lowest
   // mode by more than its std; identify.cpp). false: the declared value holds.
   bool estimate_axial_support = true;
+  // EA of the sag and stretching term from the fitted E (E = EI_fit /
+  // I_nominal of the plane; EA = E A) instead of the nominal E (issue 12).
+  // A section turned the other way or a corroded one changes I and A
+  // differently, so where EA matters the nominal EA is fitted too and the
+  // data choose, or the N interval covers both (identify_hypotheses.h
+  // CompareSagAxialRigidity; caution "sag-stiffness-uncertain").
+  bool sag_ea_from_fitted_e = true;
 };
 
 // One identified quantity: value, one-sigma std and 95 % interval, or
@@ -168,7 +175,9 @@ struct FitSummary {
   long profile_model_calls = 0;  // of which in the profile-likelihood interval
   int elements = 0;              // mesh used
   // "wald" or "profile" (the wider one), or "hypotheses": the union of the
-  // intervals of two numberings of the modes that fit equally well, or for
+  // intervals of two numberings of the modes that fit equally well, or
+  // "sag-stiffness": widened to cover the force with EA from the nominal E
+  // as well as from the fitted one (both fit alike), or for
   // the time-domain fit "modal-floor": its Wald interval widened to the
   // modal estimate's relative width (identify_record.cpp).
   std::string axial_force_interval = "wald";

@@ -5,6 +5,7 @@
 
 #include "estimation/identify_uncertainty.h"
 #include "estimation/refusal.h"
+#include "model/modal.h"
 
 namespace taut::estimation::fit {
 
@@ -57,6 +58,33 @@ double PriorSigmaOf(const Estimate& e, const IdentifyOptions& options) {
   return options.ei_prior_sigma_ln;
 }
 
+// Widens the N interval of `est` to cover [lo, hi] (never the tighter of two
+// candidates), records `method` in fit.axial_force_interval and adds the
+// wide-interval caution when the widened interval calls for it.
+void CoverBoth(double lo, double hi, const char* method, Estimate* est) {
+  EstimatedQuantity& n = est->axial_force_n;
+  n.ci95_low = std::min(n.ci95_low, lo);
+  n.ci95_high = std::max(n.ci95_high, hi);
+  n.std = std::max(n.std, (n.ci95_high - n.ci95_low) / (2.0 * kZ95));
+  est->fit.axial_force_interval = method;
+  const bool wide = std::any_of(est->cautions.begin(), est->cautions.end(),
+                                [](const Caution& c) { return c.code == "wide-interval"; });
+  if (!wide && n.ci95_high - n.ci95_low > kWideIntervalShare * std::abs(n.value)) {
+    est->cautions.push_back({"wide-interval", "The 95 % interval of the axial force [" +
+                                                  FormatKn(n.ci95_low) + ", " + FormatKn(n.ci95_high) +
+                                                  "] is wider than " +
+                                                  FormatNumber(100 * kWideIntervalShare, 2) +
+                                                  " % of the estimate " + FormatKn(n.value) + "."});
+  }
+}
+
+// Carries the cautions of the hypothesis search made before `from` into `to`.
+void KeepSearchCautions(const Estimate& from, Estimate* to) {
+  for (const auto& c : from.cautions) {
+    if (c.code == "stiffness-off-nominal") to->cautions.push_back(c);
+  }
+}
+
 }  // namespace
 
 // Competing numberings (issue 12, failure class 3): when the search's rival
@@ -93,33 +121,59 @@ void CompareRivalNumbering(const model::Member& member, const ModalIdentificatio
   };
   if (alt_score < score - threshold) {
     alt.fit.forward_model_calls = est->fit.forward_model_calls;
-    for (const auto& c : est->cautions) {
-      if (c.code == "stiffness-off-nominal") alt.cautions.push_back(c);
-    }
+    KeepSearchCautions(*est, &alt);
     *est = std::move(alt);
     return;
   }
   if (alt_score > score + threshold) return;
-  EstimatedQuantity& n = est->axial_force_n;
-  n.ci95_low = std::min(n.ci95_low, alt.axial_force_n.ci95_low);
-  n.ci95_high = std::max(n.ci95_high, alt.axial_force_n.ci95_high);
-  n.std = std::max(n.std, (n.ci95_high - n.ci95_low) / (2.0 * kZ95));
-  est->fit.axial_force_interval = "hypotheses";
+  const EstimatedQuantity& n = est->axial_force_n;
   est->cautions.push_back(
       {"order-hypotheses-disagree",
        "Two numberings of the modes fit the record about equally well: lowest paired order " +
            std::to_string(lowest(*est)) + " gives " + FormatKn(n.value) + ", lowest paired order " +
            std::to_string(lowest(alt)) + " gives " + FormatKn(alt.axial_force_n.value) +
            "; the interval covers both. A record with more modes or sensors away from the nodes decides."});
-  const bool wide = std::any_of(est->cautions.begin(), est->cautions.end(),
-                                [](const Caution& c) { return c.code == "wide-interval"; });
-  if (!wide && n.ci95_high - n.ci95_low > kWideIntervalShare * std::abs(n.value)) {
-    est->cautions.push_back({"wide-interval", "The 95 % interval of the axial force [" +
-                                                  FormatKn(n.ci95_low) + ", " + FormatKn(n.ci95_high) +
-                                                  "] is wider than " +
-                                                  FormatNumber(100 * kWideIntervalShare, 2) +
-                                                  " % of the estimate " + FormatKn(n.value) + "."});
+  CoverBoth(alt.axial_force_n.ci95_low, alt.axial_force_n.ci95_high, "hypotheses", est);
+}
+
+SagComparison CompareSagAxialRigidity(FitContext& ctx, const IdentifyOptions& options, bool sag_possible,
+                                      int dof, FitOutcome* best) {
+  SagComparison out;
+  if (!ctx.ea_from_fitted_e || !sag_possible || !best->usable) return out;
+  // Does EA matter? EA times e^(+-prior std) at the estimate.
+  model::ModalParameters p = ctx.Params(best->x);
+  const double ea = ctx.EaOverL(best->x.data()) * ctx.length_m;
+  model::ModalResult lo, hi;
+  ctx.calls += 2;
+  p.axial_rigidity_n = ea * std::exp(-options.ei_prior_sigma_ln);
+  if (!ctx.model->Solve(p, ctx.num_modes, &lo).ok()) return out;
+  p.axial_rigidity_n = ea * std::exp(options.ei_prior_sigma_ln);
+  if (!ctx.model->Solve(p, ctx.num_modes, &hi).ok()) return out;
+  bool matters = false;
+  for (const PairData& pd : ctx.pairs) {
+    const int k = pd.order - 1;
+    matters = matters || std::abs(hi.modes[k].frequency_hz - lo.modes[k].frequency_hz) > 2.0 * pd.sigma_hz;
   }
+  if (!matters) return out;
+  // The other EA, polished from the estimate.
+  ctx.ea_from_fitted_e = false;
+  ctx.Reset();
+  const FitOutcome alt = RunFit(ctx, best->x, -1, options);
+  out.alternative_fitted = alt.usable;
+  const double threshold = kChi2Dof1At95 * std::max(1.0, dof > 0 ? 2.0 * best->cost / dof : 1.0);
+  if (alt.usable && 2.0 * alt.cost < 2.0 * best->cost - threshold) {
+    *best = alt;  // the nominal E explains the sag better: keep ctx on it
+    out.switched = true;
+    return out;
+  }
+  ctx.ea_from_fitted_e = true;
+  ctx.Reset();
+  if (alt.usable && 2.0 * alt.cost <= 2.0 * best->cost + threshold) {
+    out.comparable = true;
+    out.other_force_n = ctx.N(alt.x.data());
+    out.other_ea_share = ctx.ei_nominal / ctx.EI(best->x.data());  // nominal EA over fitted-E EA
+  }
+  return out;
 }
 
 void ResolvePriorConflict(const model::Member& member, const ModalIdentification& ident,

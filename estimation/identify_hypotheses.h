@@ -41,6 +41,26 @@ std::vector<Unknowns> GridStarts(const FitContext& ctx, const Unknowns& x_reg,
 void ResolvePriorConflict(const model::Member& member, const ModalIdentification& ident,
                           const IdentifyOptions& options, Estimate* est, OrderHypothesis* search);
 
+// EA of the sag term (issue 12): the fit takes EA from the fitted E
+// (FitContext::ea_from_fitted_e, IdentifyOptions::sag_ea_from_fitted_e).
+// Where EA matters (`sag_possible`: vertical plane, axially restrained; and
+// EA times e^(+-prior std) moves a paired mode by more than its std, i.e.
+// 2 std end to end), the fit is polished from `best` with EA from the
+// nominal E (a section whose I, not E, is off). When that explains the data
+// better by the 95 % chi-square threshold (scaled by the reduced
+// chi-square when above 1; `dof` the fit's degrees of freedom) it replaces
+// `best` and ctx stays on the nominal EA; when it scores alike, its force is
+// returned so that the N interval can cover both.
+struct SagComparison {
+  bool alternative_fitted = false;
+  bool switched = false;        // best replaced, ctx.ea_from_fitted_e now false
+  bool comparable = false;      // within the threshold, not switched
+  double other_force_n = 0.0;   // N with the nominal EA (when comparable)
+  double other_ea_share = 1.0;  // nominal EA over the fitted-E EA
+};
+SagComparison CompareSagAxialRigidity(FitContext& ctx, const IdentifyOptions& options, bool sag_possible,
+                                      int dof, FitOutcome* best);
+
 // Competing numberings: fits the search's rival when it scored within
 // kRivalSearchScore of the winner (see identify.h).
 void CompareRivalNumbering(const model::Member& member, const ModalIdentification& ident,

@@ -92,7 +92,17 @@ struct FitContext {
   // The axial support ratio rho = k_ax / (EA / L) (x4) is an unknown (see
   // AxialSupportMatters); otherwise the member's declared axial ends hold.
   bool free_axial = false;
-  double ea_over_l = 1.0;  // EA / L [N/m]
+  double ea_over_l = 1.0;  // nominal EA / L [N/m]
+  double length_m = 1.0;
+  // EA of the sag and stretching term from the fitted E (E = EI / I_nominal
+  // of the plane, so EA = EA_nominal EI / EI_nominal; issue 12) rather than
+  // from the nominal E: the sag coupling (Irvine, Cable Structures, 1981,
+  // the parameter lambda^2 = (m g L / N)^2 L / (N L_e / EA)) grows with EA.
+  bool ea_from_fitted_e = false;
+  // EA / L at x [N/m].
+  double EaOverL(const double* x) const {
+    return ea_from_fitted_e ? ea_over_l * EI(x) / ei_nominal : ea_over_l;
+  }
   mutable long calls = 0;
 
   bool UseShapes() const { return model_index.size() >= 2; }
@@ -115,8 +125,9 @@ struct FitContext {
     p.bending_stiffness_nm2 = EI(x.data());
     if (free_left) p.fixity_left = x[kLeft] - kFixityOffset;
     if (free_right) p.fixity_right = x[kRight] - kFixityOffset;
+    if (ea_from_fitted_e) p.axial_rigidity_n = EaOverL(x.data()) * length_m;
     if (free_axial)
-      p.axial_support_stiffness_n_per_m = SupportStiffness(x[kAxial] - kFixityOffset, ea_over_l);
+      p.axial_support_stiffness_n_per_m = SupportStiffness(x[kAxial] - kFixityOffset, EaOverL(x.data()));
     return p;
   }
 
