@@ -241,10 +241,13 @@ Status IdentifyWithPrior(const model::Member& member, const ModalIdentification&
   const double ei_start =
       std::clamp(hyp.bending_stiffness_nm2, ei_nominal / ei_spread, ei_nominal * ei_spread);
   const double x1_start = std::log(ei_start / ei_nominal) + kLnEiOffset;
-  Unknowns x_reg = {std::max(hyp.axial_force_n, -0.5 * n_euler_pinned) / ctx.n_scale, x1_start,
-                    kFixityOffset + 0.0, kFixityOffset + 0.0, kFixityOffset + rho_declared};
+  Unknowns x_reg = {hyp.axial_force_n / ctx.n_scale, x1_start, kFixityOffset + 0.0, kFixityOffset + 0.0,
+                    kFixityOffset + rho_declared};
   if (!ctx.free_left) x_reg[2] = kFixityOffset;  // unused for held ends
   if (!ctx.free_right) x_reg[3] = kFixityOffset;
+  // No start beyond kStartCriticalShare of the critical load at its own
+  // fixities (identify_hypotheses.h).
+  x_reg[0] = AboveCompressionFloor(ctx, x_reg, n_euler_pinned);
 
   auto pairs_from = [&](const std::vector<ModePair>& mp) {
     std::vector<PairData> out;
@@ -284,7 +287,8 @@ Status IdentifyWithPrior(const model::Member& member, const ModalIdentification&
       const int n0 = hyp.order[i0];
       const double f_model = r.modes[n0 - 1].frequency_hz, f = measured[i0].frequency_hz;
       const double n_new = ctx.N(x_pair.data()) + (f * f - f_model * f_model) / (n0 * n0 * f2_per_n);
-      x_pair[0] = std::max(n_new, -0.5 * n_euler_pinned) / ctx.n_scale;
+      x_pair[0] = n_new / ctx.n_scale;
+      x_pair[0] = AboveCompressionFloor(ctx, x_pair, n_euler_pinned);
     }
   }
   model::ModalResult start_modes;
@@ -401,7 +405,13 @@ Status IdentifyWithPrior(const model::Member& member, const ModalIdentification&
     const double slope = low->order * low->order * f2_per_n;
     const double n_new =
         ctx.N(st.data()) + (low->frequency_hz * low->frequency_hz - f_model * f_model) / slope;
-    st[0] = std::max(n_new, -0.5 * n_euler_pinned) / ctx.n_scale;
+    st[0] = n_new / ctx.n_scale;
+    st[0] = AboveCompressionFloor(ctx, st, n_euler_pinned);
+  }
+  // Compression: a grid over N / P_cr (restrained critical load) at
+  // mid-range fixities (identify_hypotheses.h), not corrected.
+  if (ctx.N(x_pair.data()) < 0.0) {
+    for (const Unknowns& st : CompressionStarts(ctx, x_pair)) starts.push_back(st);
   }
 
   std::vector<FitOutcome> outcomes;

@@ -26,6 +26,30 @@ std::vector<Unknowns> GridStarts(const FitContext& ctx, const Unknowns& x_reg,
   return starts;
 }
 
+double AboveCompressionFloor(const FitContext& ctx, const Unknowns& x, double fallback_n) {
+  if (x[0] >= 0.0) return x[0];
+  double p_cr = 0.0;
+  ++ctx.calls;
+  if (!ctx.model->CriticalCompression(ctx.Params(x), &p_cr).ok() || !(p_cr > 0.0)) p_cr = fallback_n;
+  return std::max(x[0], -kStartCriticalShare * p_cr / ctx.n_scale);
+}
+
+std::vector<Unknowns> CompressionStarts(const FitContext& ctx, const Unknowns& at) {
+  Unknowns mid = at;
+  if (ctx.free_left) mid[kLeft] = kFixityOffset + 0.5;
+  if (ctx.free_right) mid[kRight] = kFixityOffset + 0.5;
+  double p_cr = 0.0;
+  ++ctx.calls;
+  std::vector<Unknowns> out;
+  if (!ctx.model->CriticalCompression(ctx.Params(mid), &p_cr).ok() || !(p_cr > 0.0)) return out;
+  for (double share : kCompressionStartShares) {
+    Unknowns x = mid;
+    x[0] = -share * p_cr / ctx.n_scale;
+    out.push_back(x);
+  }
+  return out;
+}
+
 namespace {
 
 // Score of an estimate without its EI prior: the chi-square of the data

@@ -36,6 +36,25 @@ Status IdentifyWithPrior(const model::Member& member, const ModalIdentification&
 std::vector<Unknowns> GridStarts(const FitContext& ctx, const Unknowns& x_reg,
                                  const IdentifyOptions& options);
 
+// Starts stay below this share of the critical compression at their own
+// fixities: the model is evaluated at them, and near buckling the lowest
+// frequency falls to zero and its eigenvector turns ill-conditioned.
+inline constexpr double kStartCriticalShare = 0.9;
+// x[0] (the internal force N / N_scale), raised to -kStartCriticalShare of
+// the critical compression of the member at x's EI and fixities (the Euler
+// load of the restrained member, ModalModel::CriticalCompression; sag
+// ignored) when below it; `fallback_n` (the pinned Euler load at nominal EI)
+// when that cannot be computed. One model call, only when x[0] < 0.
+double AboveCompressionFloor(const FitContext& ctx, const Unknowns& x, double fallback_n);
+
+// Compression (issue 12, failure class 3): the starts at N = -s P_cr for s
+// in kCompressionStartShares, P_cr the critical load at `at`'s EI with
+// mid-range fixities of its elastic ends (the pinned-beam regression that
+// gives the first start knows no restraint, and a restrained strut carries
+// up to four times the pinned Euler load).
+inline constexpr double kCompressionStartShares[] = {0.3, 0.6, 0.85};
+std::vector<Unknowns> CompressionStarts(const FitContext& ctx, const Unknowns& at);
+
 // The EI prior conflict check on `est` (made with `options`' prior, `search`
 // its order search): may replace both with the relaxed-prior identification.
 void ResolvePriorConflict(const model::Member& member, const ModalIdentification& ident,
