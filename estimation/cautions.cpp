@@ -55,6 +55,7 @@ constexpr std::array kCatalogue = {
     CatalogueEntry{"force-interval-open", kR, "the force interval is open"},
     CatalogueEntry{"stiffness-from-prior", kI, "the bending stiffness comes mainly from its nominal value"},
     CatalogueEntry{"stiffness-off-nominal", kR, "the bending stiffness is far from its nominal value"},
+    CatalogueEntry{"sag-stiffness-uncertain", kR, "the axial stiffness behind the sag effect is uncertain"},
     CatalogueEntry{"order-hypotheses-disagree", kR,
                    "two numberings of the modes fit and give different forces"},
     CatalogueEntry{"single-mode", kR, "only one mode pairs with the model"},

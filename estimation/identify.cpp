@@ -1,91 +1,36 @@
+// Model updating, one identification (identify.h): channels and plane,
+// the order search's start, pairing, mesh, the starts and the re-pairing
+// rounds, then the uncertainty and the cautions of the fit. The units:
+// identify_problem.h (unknowns, residuals, bounds, one fit),
+// identify_hypotheses.h (starts, relaxed prior, rival numberings),
+// identify_uncertainty.h (covariance, identifiability, profiles),
+// identify_cautions.h (the fit's cautions).
 #include "estimation/identify.h"
 
-#include <ceres/ceres.h>
-#include <ceres/normal_prior.h>
-
-#include <Eigen/Dense>
 #include <algorithm>
-#include <array>
 #include <chrono>
 #include <cmath>
 #include <limits>
 #include <memory>
 #include <numbers>
-#include <set>
-#include <sstream>
+#include <string>
 
+#include "estimation/identify_cautions.h"
+#include "estimation/identify_hypotheses.h"
+#include "estimation/identify_problem.h"
+#include "estimation/identify_uncertainty.h"
 #include "estimation/refusal.h"
 #include "model/modal.h"
 
 namespace taut::estimation {
 
+namespace fit {
+
 namespace {
 
-// --- Internal parameterisation --------------------------------------------
-//
-// Ceres' numeric differentiation steps each parameter by
-// max(sqrt(eps), relative_step |x|). The forward model's eigenvalues are
-// accurate to about 1e-13 relative and its shapes to about 1e-11 (Lanczos
-// residual 1e-11, modal.cpp), so the central-difference error
-//   h^2 |f'''| / 6 + eps_model / h
-// is smallest near h = (3 eps_model / |f'''|)^(1/3) ~ 1e-4 for parameters of
-// order one with O(1) third derivatives (the modal quantities are smooth,
-// analytic functions of N, ln EI and r away from buckling). We therefore
-// keep every internal parameter of order one and away from zero:
-//   x0 = N / N_scale            (N_scale = max(|N_start|, pi^2 EI_nom / L^2)),
-//   x1 = ln(EI / EI_nom) + kLnEiOffset,
-//   x2 = r_left + kFixityOffset, x3 = r_right + kFixityOffset,
-//   x4 = rho + kFixityOffset, rho = k_ax / (EA / L) the axial support ratio
-//        (0 = axially free supports, 1 = rigid; an unknown only where
-//        AxialSupportMatters, else held),
-// so the step is ~1e-4 N_scale in N, ~1e-3 in ln EI and 1e-4..2e-4 in r, rho.
-// (x0 may pass through zero for a compressed member; there the step falls
-// to sqrt(eps) N_scale ~ 1.5e-8 N_scale, whose round-off error
-// 1e-13 / 1.5e-8 ~ 1e-5 relative is still far below the frequency stds.)
-constexpr double kRelativeStep = 1e-4;
-constexpr double kLnEiOffset = 10.0;
-constexpr double kFixityOffset = 1.0;
-
-// The internal unknowns x0..x4 and the positions of the bounded ones.
-constexpr int kUnknowns = 5;
-constexpr int kLeft = 2, kRight = 3, kAxial = 4;
-using Unknowns = std::array<double, kUnknowns>;
-
-// Series support stiffness k_s [N/m] of an axial support ratio
-// rho = k_ax / (EA/L) in [0, 1]: 1/k_ax = L/EA + 1/k_s (parameters.h), so
-// k_s = (EA/L) rho / (1 - rho); +inf at rho = 1 (rigid supports).
-double SupportStiffness(double rho, double ea_over_l) {
-  return rho >= 1.0 ? std::numeric_limits<double>::infinity() : ea_over_l * rho / (1.0 - rho);
-}
-
-// 95 % two-sided normal quantile and the 95 % quantile of chi-square with
-// one degree of freedom (scipy.stats.norm.ppf(0.975), scipy.stats.chi2.ppf(0.95, 1)).
-constexpr double kZ95 = 1.959963984540054;
-constexpr double kChi2Dof1At95 = 3.841458820694124;
-// Std of a uniform distribution on [0, 1]: what "unknown fixity" means.
-constexpr double kUniformUnitStd = 0.28867513459481287;  // 1 / sqrt(12)
-
-// Identifiability: the weighted Jacobian's columns are scaled to natural
-// units (N: its own magnitude, ln EI: 1, r: the whole range 1). A direction
-// of J^T J whose std 1/sqrt(lambda) exceeds kMaxIdentifiableStd natural
-// units is not determined by the data; parameters with a component of at
-// least kParticipation in it are named.
-constexpr double kMaxIdentifiableStd = 0.5;
-constexpr double kParticipation = 0.3;
 // Posterior std of ln EI above this share of the prior std: EI comes mainly
 // from the prior.
 constexpr double kPriorDominatedShare = 0.8;
-
-// Two starts reached the same minimum when their costs agree to this
-// (relative, with an absolute floor of the same size in cost units) and
-// their forces to kSameMinimumForce of N_scale.
-constexpr double kSameMinimumCost = 1e-4;
-constexpr double kSameMinimumForce = 1e-3;
-
-// Profile likelihood: at most this many steps outward per side, the first
-// of 1.96 Wald stds (or 10 % of the force scale), doubling after each step
-// that stays inside the interval, halving after a failed evaluation.
-constexpr int kMaxProfileSteps = 10;
 // Mesh refinements allowed when the mesh error check fails.
 constexpr int kMaxMeshRefinements = 3;
 // Re-pairing rounds after a fit (the pairing is redone at the estimate).
@@ -95,448 +40,13 @@ constexpr int kPairingExtraModes = 2;
 // Fixity of the first start (the middle of [0, 1]).
 constexpr double kMidFixity = 0.5;
 
-struct PairData {
-  int measured = 0;  // index into the sorted measured modes
-  int order = 0;     // model order, 1-based
-  double frequency_hz = 0.0;
-  double sigma_hz = 0.0;
-  std::vector<double> shape;  // in-plane channels
-};
-
-struct FitContext {
-  const model::ModalModel* model = nullptr;  // not owned
-  std::vector<PairData> pairs;
-  std::vector<int> model_index;  // per in-plane channel: index into shape_at_sensors
-  int num_modes = 1;
-  double n_scale = 1.0;
-  double ei_nominal = 1.0;
-  double ei_prior_sigma_ln = 0.15;
-  double shape_std = 0.05;
-  bool free_left = false, free_right = false;
-  // The axial support ratio rho = k_ax / (EA / L) (x4) is an unknown (see
-  // AxialSupportMatters); otherwise the member's declared axial ends hold.
-  bool free_axial = false;
-  double ea_over_l = 1.0;  // EA / L [N/m]
-  mutable long calls = 0;
-
-  bool UseShapes() const { return model_index.size() >= 2; }
-  int NumResiduals() const {
-    int n = 1;
-    for (const auto& p : pairs) n += 1 + (UseShapes() ? static_cast<int>(p.shape.size()) : 0);
-    return n;
-  }
-  bool Free(int j) const {
-    return j < 2 || (j == kLeft && free_left) || (j == kRight && free_right) || (j == kAxial && free_axial);
-  }
-
-  double N(const double* x) const { return x[0] * n_scale; }
-  double EI(const double* x) const { return ei_nominal * std::exp(x[1] - kLnEiOffset); }
-
-  // Model parameters at x (bounded unknowns inside [0, 1]).
-  model::ModalParameters Params(const Unknowns& x) const {
-    model::ModalParameters p;
-    p.axial_force_n = N(x.data());
-    p.bending_stiffness_nm2 = EI(x.data());
-    if (free_left) p.fixity_left = x[kLeft] - kFixityOffset;
-    if (free_right) p.fixity_right = x[kRight] - kFixityOffset;
-    if (free_axial)
-      p.axial_support_stiffness_n_per_m = SupportStiffness(x[kAxial] - kFixityOffset, ea_over_l);
-    return p;
-  }
-
-  // Recent evaluations, keyed by the exact unknowns: Ceres 2.1 evaluates
-  // the residuals and the numeric Jacobian at an accepted point a second
-  // time (seen in a trace of the model calls), and the odd reflection at a
-  // bound (Evaluate) asks for the bound point itself. 24 entries hold two
-  // full central-difference stencils of 9 points.
-  struct Memo {
-    Unknowns key{};
-    std::vector<double> residuals;
-    bool ok = false;
-  };
-  static constexpr size_t kMemoSize = 24;
-  mutable std::array<Memo, kMemoSize> memo;
-  mutable size_t memo_next = 0;
-  mutable size_t memo_used = 0;
-
-  // The last model solution (Lanczos start of the next solve).
-  mutable model::ModalResult last;
-  mutable bool last_ok = false;
-
-  // Clears the memo and the last solution (after the model or the pairing changed).
-  void Reset() const {
-    memo_used = 0;
-    last_ok = false;
-  }
-
-  // Residuals for bounded unknowns inside [0, 1].
-  bool EvaluateInside(const Unknowns& x, double* res) const {
-    const int m = NumResiduals();
-    for (size_t i = 0; i < memo_used; ++i) {
-      if (memo[i].key == x && static_cast<int>(memo[i].residuals.size()) == m) {
-        std::copy(memo[i].residuals.begin(), memo[i].residuals.end(), res);
-        return memo[i].ok;
-      }
-    }
-    const bool ok = EvaluateUncached(x, res);
-    Memo& slot = memo[memo_next];
-    memo_next = (memo_next + 1) % kMemoSize;
-    memo_used = std::min(memo_used + 1, kMemoSize);
-    slot.key = x;
-    slot.ok = ok;
-    slot.residuals.assign(res, res + m);
-    return ok;
-  }
-
-  bool EvaluateUncached(const Unknowns& x, double* res) const {
-    model::ModalResult r;
-    ++calls;
-    // Started from the previous evaluation's modes (a nearby point: the
-    // stencil of a numeric Jacobian or the next iterate).
-    const bool near_ok = last_ok && last.modes.size() >= static_cast<size_t>(num_modes);
-    if (!model->Solve(Params(x), num_modes, &r, near_ok ? &last : nullptr).ok()) return false;
-    last = r;
-    last_ok = true;
-    const double ei = EI(x.data());
-    int k = 0;
-    for (const PairData& p : pairs) {
-      const model::Mode& mode = r.modes[p.order - 1];
-      res[k++] = (p.frequency_hz - mode.frequency_hz) / p.sigma_hz;
-      if (!UseShapes()) continue;
-      double pp = 0.0, pm = 0.0;
-      for (size_t c = 0; c < model_index.size(); ++c) {
-        const double psi = mode.shape_at_sensors[model_index[c]];
-        pp += psi * psi;
-        pm += psi * p.shape[c];
-      }
-      const double alpha = pp > 0.0 ? pm / pp : 0.0;
-      for (size_t c = 0; c < model_index.size(); ++c) {
-        res[k++] = (p.shape[c] - alpha * mode.shape_at_sensors[model_index[c]]) / shape_std;
-      }
-    }
-    res[k++] = std::log(ei / ei_nominal) / ei_prior_sigma_ln;
-    return true;
-  }
-
-  // Residuals for any bounded unknown: outside [0, 1] the residual vector
-  // is continued by odd reflection about the bound, R(-r) = 2 R(0) - R(r),
-  // so that central differences at a bound (where Ceres' bounds allow the
-  // iterate to sit) see a C1 function and give the one-sided derivative.
-  bool Evaluate(const Unknowns& x, double* res) const {
-    const int m = NumResiduals();
-    for (int j = kLeft; j < kUnknowns; ++j) {
-      if (!Free(j)) continue;
-      const double r = x[j] - kFixityOffset;
-      if (r >= 0.0 && r <= 1.0) continue;
-      const double bound = r < 0.0 ? 0.0 : 1.0;
-      Unknowns at = x, mirrored = x;
-      at[j] = kFixityOffset + bound;
-      mirrored[j] = kFixityOffset + 2.0 * bound - r;
-      std::vector<double> a(m), b(m);
-      if (!Evaluate(at, a.data()) || !Evaluate(mirrored, b.data())) return false;
-      for (int i = 0; i < m; ++i) res[i] = 2.0 * a[i] - b[i];
-      return true;
-    }
-    return EvaluateInside(x, res);
-  }
-};
-
-// The Ceres functor: five one-entry parameter blocks (x0..x4 above), so
-// that held unknowns are constant blocks for which Ceres asks no Jacobian
-// (and numeric differentiation spends no model calls).
-struct ModalCost {
-  const FitContext* ctx;  // not owned; must outlive the cost function
-  bool operator()(const double* x0, const double* x1, const double* x2, const double* x3, const double* x4,
-                  double* residuals) const {
-    return ctx->Evaluate({x0[0], x1[0], x2[0], x3[0], x4[0]}, residuals);
-  }
-};
-
-struct FitOutcome {
-  Unknowns x{};
-  double cost = std::numeric_limits<double>::infinity();
-  bool usable = false;
-  bool converged = false;
-  // Stopped on arriving at the reference minimum (see ArrivalCallback).
-  bool arrived = false;
-  int iterations = 0;
-};
-
-// Watches a Levenberg-Marquardt run (Solver::Options::
-// update_state_every_iteration, so that `x` is the current iterate):
-//  - arrival: a start that has come within half the same-minimum
-//    tolerances of an earlier start's minimum (cost within
-//    kSameMinimumCost / 2 relative, every internal unknown within
-//    kSameMinimumForce / 2; the unknowns are all of order one, see the
-//    parameterisation above) has found that minimum and would only repeat
-//    the earlier start's last iterations: the run stops, counts as converged
-//    to the best (FitSummary::starts_at_best) and never replaces the fully
-//    converged reference;
-//  - a fixity stuck on a bound of [0, 1] for kStuckIterations iterations:
-//    Ceres projects each step onto the box, so along a bound the other
-//    unknowns creep (seen in a profile fit: 20 iterations at trust-region
-//    ratios 0.1-0.2 with the left fixity at 0, still not converged); the run
-//    stops so that RunFit can hold that fixity on its bound (an active set,
-//    Nocedal and Wright, Numerical Optimization, 2006, sec. 16.5).
-constexpr int kStuckIterations = 2;
-constexpr double kAtBound = 1e-9;
-
-class FitMonitor : public ceres::IterationCallback {
- public:
-  // Not owned; must outlive the solve. reference may be null.
-  FitMonitor(const Unknowns* x, const FitOutcome* reference, std::array<bool, kUnknowns> watch_bounds)
-      : x_(x), reference_(reference), watch_(watch_bounds) {}
-  ceres::CallbackReturnType operator()(const ceres::IterationSummary& s) override {
-    if (reference_ != nullptr && Arrived(s.cost)) {
-      arrived_ = true;
-      return ceres::SOLVER_TERMINATE_SUCCESSFULLY;
-    }
-    bool any = false;
-    for (int j = kLeft; j < kUnknowns; ++j) {
-      if (!watch_[j]) continue;
-      const double r = (*x_)[j] - kFixityOffset;
-      count_[j] = (r <= kAtBound || r >= 1.0 - kAtBound) ? count_[j] + 1 : 0;
-      if (count_[j] >= kStuckIterations) stuck_[j] = true;
-      any = any || stuck_[j];
-    }
-    return any ? ceres::SOLVER_TERMINATE_SUCCESSFULLY : ceres::SOLVER_CONTINUE;
-  }
-  bool arrived() const { return arrived_; }
-  const std::array<bool, kUnknowns>& stuck() const { return stuck_; }
-
- private:
-  bool Arrived(double cost) const {
-    if (!reference_->usable) return false;
-    if (cost > reference_->cost + 0.5 * kSameMinimumCost * std::max(1.0, reference_->cost)) return false;
-    for (int j = 0; j < kUnknowns; ++j) {
-      if (std::abs((*x_)[j] - reference_->x[j]) > 0.5 * kSameMinimumForce) return false;
-    }
-    return true;
-  }
-  const Unknowns* x_;
-  const FitOutcome* reference_;
-  std::array<bool, kUnknowns> watch_;
-  std::array<int, kUnknowns> count_{};
-  std::array<bool, kUnknowns> stuck_{};
-  bool arrived_ = false;
-};
-
-ceres::CostFunction* MakeCost(const FitContext& ctx) {
-  ceres::NumericDiffOptions nd;
-  nd.relative_step_size = kRelativeStep;
-  return new ceres::NumericDiffCostFunction<ModalCost, ceres::CENTRAL, ceres::DYNAMIC, 1, 1, 1, 1, 1>(
-      new ModalCost{&ctx}, ceres::TAKE_OWNERSHIP, ctx.NumResiduals(), nd);
-}
-
-// Adds the residual block on x and sets bounds and held blocks.
-void BuildProblem(const FitContext& ctx, Unknowns& x, bool hold_force, ceres::Problem* problem) {
-  problem->AddResidualBlock(MakeCost(ctx), nullptr, &x[0], &x[1], &x[2], &x[3], &x[4]);
-  if (hold_force) problem->SetParameterBlockConstant(&x[0]);
-  for (int j = kLeft; j < kUnknowns; ++j) {
-    double* p = &x[j];
-    if (!ctx.Free(j)) {
-      problem->SetParameterBlockConstant(p);
-      continue;
-    }
-    problem->SetParameterLowerBound(p, 0, kFixityOffset + 0.0);
-    problem->SetParameterUpperBound(p, 0, kFixityOffset + 1.0);
-  }
-}
-
-// Solver tolerances. Full fits: Ceres' relative cost-change and step
-// tolerances at 1e-8 leave the cost converged far beyond what the
-// intervals need (a chi-square change of 1e-8 relative). Profile fits only
-// need the cost to a small share of the 3.84 threshold, so they stop
-// earlier.
-constexpr double kFitTolerance = 1e-8;
-constexpr double kProfileFitTolerance = 1e-6;
-constexpr int kProfileMaxIterations = 20;
-
-// Cost 1/2 |r|^2 at x (infinity when the model cannot be evaluated).
-double CostAt(const FitContext& ctx, const Unknowns& x) {
-  std::vector<double> r(static_cast<size_t>(ctx.NumResiduals()));
-  if (!ctx.Evaluate(x, r.data())) return std::numeric_limits<double>::infinity();
-  double c = 0.0;
-  for (double v : r) c += v * v;
-  return 0.5 * c;
-}
-
-// Step into [0, 1] that checks whether a fixity held on a bound belongs
-// there: the first-order condition of the bound-constrained minimum is
-// that the cost does not fall on moving inward (Nocedal and Wright 2006,
-// eq. 12.34). 1e-4 is the central-difference step of the fixities.
-constexpr double kBoundProbe = 1e-4;
-
-// `reference` (optional): an earlier start's minimum; the run stops on
-// arriving there (FitMonitor). A fixity stuck on a bound is held there for
-// a second run; when a step inward from that result lowers the cost, a
-// third run with it free again follows.
-FitOutcome RunFit(const FitContext& ctx, const Unknowns& start, bool hold_force,
-                  const IdentifyOptions& options, const FitOutcome* reference = nullptr) {
-  FitOutcome out;
-  out.x = start;
-  std::array<bool, kUnknowns> held_at_bound{};
-  int iterations = 0;
-  ceres::Solver::Summary summary;
-  for (int phase = 0; phase < 3; ++phase) {
-    ceres::Problem problem;
-    BuildProblem(ctx, out.x, hold_force, &problem);
-    for (int j = kLeft; j < kUnknowns; ++j) {
-      if (phase == 1 && held_at_bound[j]) problem.SetParameterBlockConstant(&out.x[j]);
-    }
-    ceres::Solver::Options so;
-    so.trust_region_strategy_type = ceres::LEVENBERG_MARQUARDT;
-    so.linear_solver_type = ceres::DENSE_QR;
-    so.max_num_iterations =
-        hold_force ? std::min(options.max_iterations, kProfileMaxIterations) : options.max_iterations;
-    so.function_tolerance = hold_force ? kProfileFitTolerance : kFitTolerance;
-    so.parameter_tolerance = hold_force ? kProfileFitTolerance : kFitTolerance;
-    so.gradient_tolerance = 1e-12;
-    so.logging_type = ceres::SILENT;
-    so.minimizer_progress_to_stdout = false;
-    so.num_threads = 1;
-    std::array<bool, kUnknowns> watch{};
-    for (int j = kLeft; j < kUnknowns; ++j) watch[j] = phase == 0 && ctx.Free(j);
-    FitMonitor monitor(&out.x, phase == 0 ? reference : nullptr, watch);
-    so.callbacks.push_back(&monitor);
-    so.update_state_every_iteration = true;
-    ceres::Solve(so, &problem, &summary);
-    iterations += static_cast<int>(summary.iterations.size()) - 1;
-    out.arrived = monitor.arrived();
-    if (!summary.IsSolutionUsable()) break;
-    if (phase == 0) {
-      held_at_bound = monitor.stuck();
-      if (out.arrived || std::none_of(held_at_bound.begin(), held_at_bound.end(), [](bool b) { return b; }))
-        break;
-    } else if (phase == 1) {
-      bool release = false;
-      for (int j = kLeft; j < kUnknowns; ++j) {
-        if (!held_at_bound[j]) continue;
-        Unknowns probe = out.x;
-        probe[j] += (probe[j] - kFixityOffset < 0.5 ? 1.0 : -1.0) * kBoundProbe;
-        release = release || CostAt(ctx, probe) < summary.final_cost * (1.0 - kFitTolerance);
-      }
-      if (!release) break;
-    }
-  }
-  out.usable = summary.IsSolutionUsable() && std::isfinite(summary.final_cost);
-  out.converged = summary.termination_type == ceres::CONVERGENCE || out.arrived;
-  out.cost = out.usable ? summary.final_cost : std::numeric_limits<double>::infinity();
-  out.iterations = iterations;
-  return out;
-}
-
-// Dense weighted Jacobian (rows residuals, columns x0..x4, zero columns for
-// held blocks) at x.
-bool JacobianAt(const FitContext& ctx, Unknowns x, Eigen::MatrixXd* jac) {
-  ceres::Problem problem;
-  BuildProblem(ctx, x, false, &problem);
-  ceres::Problem::EvaluateOptions eo;
-  eo.parameter_blocks = {&x[0], &x[1], &x[2], &x[3], &x[4]};
-  ceres::CRSMatrix crs;
-  if (!problem.Evaluate(eo, nullptr, nullptr, nullptr, &crs)) return false;
-  jac->setZero(crs.num_rows, crs.num_cols);
-  for (int r = 0; r < crs.num_rows; ++r) {
-    for (int k = crs.rows[r]; k < crs.rows[r + 1]; ++k) (*jac)(r, crs.cols[k]) = crs.values[k];
-  }
-  return true;
-}
-
-// Gauss-Newton covariance of the free, identifiable blocks by
-// ceres::Covariance (DENSE_SVD, no null space allowed: a rank-deficient
-// problem fails instead of returning a pseudo-inverse with zero variance
-// along the undetermined direction). `held[j]` marks blocks held constant;
-// `range_prior[j]` adds the residual (x_j - x_j,hat) / kUniformUnitStd, the
-// Gaussian with the std of a uniform distribution over the fixity range
-// [0, 1]: a fixity the data leave undetermined then carries "anywhere in
-// its range" into the covariance of N and EI instead of being held at an
-// arbitrary point of the flat valley (which would make their intervals
-// conditional on it, hence too tight).
-using Blocks = std::array<bool, kUnknowns>;
-using CovarianceMatrix = Eigen::Matrix<double, kUnknowns, kUnknowns>;
-
-bool CovarianceAt(const FitContext& ctx, Unknowns x, const Blocks& held, const Blocks& range_prior,
-                  CovarianceMatrix* cov) {
-  ceres::Problem problem;
-  BuildProblem(ctx, x, held[0], &problem);
-  for (int j = 1; j < kUnknowns; ++j) {
-    if (held[j] && !problem.IsParameterBlockConstant(&x[j])) problem.SetParameterBlockConstant(&x[j]);
-    if (range_prior[j] && !problem.IsParameterBlockConstant(&x[j])) {
-      ceres::Matrix a(1, 1);
-      a(0, 0) = 1.0 / kUniformUnitStd;
-      ceres::Vector b(1);
-      b[0] = x[j];
-      problem.AddResidualBlock(new ceres::NormalPrior(a, b), nullptr, &x[j]);
-    }
-  }
-  ceres::Covariance::Options co;
-  co.algorithm_type = ceres::DENSE_SVD;
-  co.null_space_rank = 0;
-  co.num_threads = 1;
-  ceres::Covariance covariance(co);
-  std::vector<const double*> blocks;
-  for (int j = 0; j < kUnknowns; ++j) {
-    if (!problem.IsParameterBlockConstant(&x[j])) blocks.push_back(&x[j]);
-  }
-  cov->setZero();
-  if (blocks.empty()) return true;
-  std::vector<std::pair<const double*, const double*>> pairs;
-  for (const double* a : blocks) {
-    for (const double* b : blocks) pairs.emplace_back(a, b);
-  }
-  if (!covariance.Compute(pairs, &problem)) return false;
-  for (int i = 0; i < kUnknowns; ++i) {
-    for (int j = 0; j < kUnknowns; ++j) {
-      if (problem.IsParameterBlockConstant(&x[i]) || problem.IsParameterBlockConstant(&x[j])) continue;
-      double v = 0.0;
-      if (!covariance.GetCovarianceBlock(&x[i], &x[j], &v)) return false;
-      (*cov)(i, j) = v;
-    }
-  }
-  return true;
-}
-
 }  // namespace
 
-void AppendForceCautions(const model::Member& member, model::Direction plane, double axial_force_n,
-                         double critical_compression_n, Cautions* cautions) {
-  if (axial_force_n < 0.0) {
-    const double share = critical_compression_n > 0.0 ? -axial_force_n / critical_compression_n : 1.0;
-    if (share > kNearBucklingShare) {
-      cautions->push_back({"compression-near-buckling",
-                           "The member is in compression at " + FormatNumber(100 * share, 3) +
-                               " % of its critical load " + FormatKn(critical_compression_n) + "."});
-    } else {
-      cautions->push_back({"compression", "The member is in compression (" + FormatKn(axial_force_n) + ")."});
-    }
-  }
-  if (member.Slenderness(plane) < kStockySlenderness) {
-    cautions->push_back({"stocky-member", "Slenderness L/r = " + FormatNumber(member.Slenderness(plane), 3) +
-                                              " is below " + FormatNumber(kStockySlenderness, 3) +
-                                              ": shear and rotary inertia, ignored by the model, matter."});
-  }
-  if (member.design_axial_force_n && *member.design_axial_force_n != 0.0) {
-    const double d = *member.design_axial_force_n;
-    if (std::abs(axial_force_n - d) > kDesignForceDeviationShare * std::abs(d)) {
-      cautions->push_back(
-          {"far-from-design-force", "The estimate " + FormatKn(axial_force_n) +
-                                        " differs from the design force " + FormatKn(d) + " by more than " +
-                                        FormatNumber(100 * kDesignForceDeviationShare, 2) + " %."});
-    }
-  }
-}
-
-namespace {
-
-// One identification with the EI prior of `options` (the whole sequence of
-// the file comment of identify.h); IdentifyFromModes adds the prior
-// conflict check, the refusals and the verdict.
-// `forced_orders` (optional): the numbering to use instead of the search's
-// (one entry per measured mode in ascending frequency, 0 = left out);
-// `search` (optional) receives the search's hypothesis with its rival.
+// One identification (identify_hypotheses.h): IdentifyFromModes adds the
+// prior conflict check, the rival numbering, the refusals and the verdict.
 Status IdentifyWithPrior(const model::Member& member, const ModalIdentification& ident,
                          const IdentifyOptions& options, Estimate* estimate,
-                         const std::vector<int>* forced_orders = nullptr, OrderHypothesis* search = nullptr) {
+                         const std::vector<int>* forced_orders, OrderHypothesis* search) {
   const auto t0 = std::chrono::steady_clock::now();
   if (Status s = model::ValidateMember(member); !s.ok()) return s;
   if (!(options.shape_std > 0.0 && options.ei_prior_sigma_ln > 0.0 && options.min_elements >= 1 &&
@@ -696,6 +206,8 @@ Status IdentifyWithPrior(const model::Member& member, const ModalIdentification&
   ctx.free_left = member.left.kind == model::RotationEnd::Kind::kElastic;
   ctx.free_right = member.right.kind == model::RotationEnd::Kind::kElastic;
   ctx.ea_over_l = member.AxialRigidity_n() / member.length_m;
+  ctx.length_m = member.length_m;
+  ctx.ea_from_fitted_e = options.sag_ea_from_fitted_e;
   // Declared axial support ratio (the start of x4; see AxialSupportMatters).
   double rho_declared = 1.0;
   {
@@ -729,10 +241,13 @@ Status IdentifyWithPrior(const model::Member& member, const ModalIdentification&
   const double ei_start =
       std::clamp(hyp.bending_stiffness_nm2, ei_nominal / ei_spread, ei_nominal * ei_spread);
   const double x1_start = std::log(ei_start / ei_nominal) + kLnEiOffset;
-  Unknowns x_reg = {std::max(hyp.axial_force_n, -0.5 * n_euler_pinned) / ctx.n_scale, x1_start,
-                    kFixityOffset + 0.0, kFixityOffset + 0.0, kFixityOffset + rho_declared};
+  Unknowns x_reg = {hyp.axial_force_n / ctx.n_scale, x1_start, kFixityOffset + 0.0, kFixityOffset + 0.0,
+                    kFixityOffset + rho_declared};
   if (!ctx.free_left) x_reg[2] = kFixityOffset;  // unused for held ends
   if (!ctx.free_right) x_reg[3] = kFixityOffset;
+  // No start beyond kStartCriticalShare of the critical load at its own
+  // fixities (identify_hypotheses.h).
+  x_reg[0] = AboveCompressionFloor(ctx, x_reg, n_euler_pinned);
 
   auto pairs_from = [&](const std::vector<ModePair>& mp) {
     std::vector<PairData> out;
@@ -772,7 +287,8 @@ Status IdentifyWithPrior(const model::Member& member, const ModalIdentification&
       const int n0 = hyp.order[i0];
       const double f_model = r.modes[n0 - 1].frequency_hz, f = measured[i0].frequency_hz;
       const double n_new = ctx.N(x_pair.data()) + (f * f - f_model * f_model) / (n0 * n0 * f2_per_n);
-      x_pair[0] = std::max(n_new, -0.5 * n_euler_pinned) / ctx.n_scale;
+      x_pair[0] = n_new / ctx.n_scale;
+      x_pair[0] = AboveCompressionFloor(ctx, x_pair, n_euler_pinned);
     }
   }
   model::ModalResult start_modes;
@@ -871,20 +387,7 @@ Status IdentifyWithPrior(const model::Member& member, const ModalIdentification&
   // corrected). A start at the regression's own pinned ends would sit on
   // the bound r = 0, where the reflected differences cost extra model calls.
   std::vector<Unknowns> starts = {x_pair};
-  {
-    std::vector<double> grid_l = ctx.free_left ? options.start_fixities : std::vector<double>{0.0};
-    std::vector<double> grid_r = ctx.free_right ? options.start_fixities : std::vector<double>{0.0};
-    if (ctx.free_left || ctx.free_right) {
-      for (double rl : grid_l) {
-        for (double rr : grid_r) {
-          Unknowns x = x_reg;
-          if (ctx.free_left) x[2] = kFixityOffset + rl;
-          if (ctx.free_right) x[3] = kFixityOffset + rr;
-          starts.push_back(x);
-        }
-      }
-    }
-  }
+  for (const Unknowns& s : GridStarts(ctx, x_reg, options)) starts.push_back(s);
 
   // Each start's force is corrected by one Newton step on the lowest paired
   // mode, using the pinned-beam slope d(f^2)/dN = n^2 / (4 m L^2) (the
@@ -902,7 +405,13 @@ Status IdentifyWithPrior(const model::Member& member, const ModalIdentification&
     const double slope = low->order * low->order * f2_per_n;
     const double n_new =
         ctx.N(st.data()) + (low->frequency_hz * low->frequency_hz - f_model * f_model) / slope;
-    st[0] = std::max(n_new, -0.5 * n_euler_pinned) / ctx.n_scale;
+    st[0] = n_new / ctx.n_scale;
+    st[0] = AboveCompressionFloor(ctx, st, n_euler_pinned);
+  }
+  // Compression: a grid over N / P_cr (restrained critical load) at
+  // mid-range fixities (identify_hypotheses.h), not corrected.
+  if (ctx.N(x_pair.data()) < 0.0) {
+    for (const Unknowns& st : CompressionStarts(ctx, x_pair)) starts.push_back(st);
   }
 
   std::vector<FitOutcome> outcomes;
@@ -911,7 +420,7 @@ Status IdentifyWithPrior(const model::Member& member, const ModalIdentification&
     outcomes.clear();
     best = FitOutcome{};
     for (const Unknowns& s : starts) {
-      FitOutcome o = RunFit(ctx, s, false, options, best.usable ? &best : nullptr);
+      FitOutcome o = RunFit(ctx, s, -1, options, best.usable ? &best : nullptr);
       outcomes.push_back(o);
       if (o.usable && !o.arrived && o.cost < best.cost) best = o;
     }
@@ -946,7 +455,7 @@ Status IdentifyWithPrior(const model::Member& member, const ModalIdentification&
       ctx.Reset();
       set_fit_modes();
       check_mesh(best.x);
-      FitOutcome o = RunFit(ctx, best.x, false, options);
+      FitOutcome o = RunFit(ctx, best.x, -1, options);
       if (!o.usable) break;
       best = o;
       continue;
@@ -972,7 +481,7 @@ Status IdentifyWithPrior(const model::Member& member, const ModalIdentification&
 
   // Mesh check at the estimate; a refined mesh is polished from the estimate.
   if (check_mesh(best.x)) {
-    FitOutcome o = RunFit(ctx, best.x, false, options);
+    FitOutcome o = RunFit(ctx, best.x, -1, options);
     if (o.usable) best = o;
   }
 
@@ -981,6 +490,12 @@ Status IdentifyWithPrior(const model::Member& member, const ModalIdentification&
   int n_data = 1;  // prior
   for (const auto& p : ctx.pairs) n_data += 1 + (ctx.UseShapes() ? static_cast<int>(p.shape.size()) - 1 : 0);
   const int dof = n_data - n_free;
+
+  // EA of the sag term: from the fitted E, or the nominal one where the
+  // data prefer it (identify_hypotheses.h).
+  const SagComparison sag = CompareSagAxialRigidity(
+      ctx, options,
+      plane == model::Direction::kVertical && member.axial.kind != model::AxialEnds::Kind::kFree, dof, &best);
   const double chi2 = 2.0 * best.cost;
   const double reduced_chi2 = dof > 0 ? chi2 / dof : 0.0;
   const double cov_scale = std::max(1.0, reduced_chi2);
@@ -988,30 +503,9 @@ Status IdentifyWithPrior(const model::Member& member, const ModalIdentification&
   // --- Identifiability --------------------------------------------------------
   const Unknowns& x = best.x;
   const double n_hat = ctx.N(x.data());
-  Blocks free_block{}, unidentified{};
+  Blocks free_block{};
   for (int j = 0; j < kUnknowns; ++j) free_block[j] = ctx.Free(j);
-  Eigen::MatrixXd jac;
-  if (JacobianAt(ctx, x, &jac)) {
-    // Natural units (see kMaxIdentifiableStd): x0 in units of max(|N|, 0.1 N_scale).
-    Eigen::Matrix<double, kUnknowns, 1> unit = Eigen::Matrix<double, kUnknowns, 1>::Ones();
-    unit[0] = std::max(std::abs(x[0]), 0.1);
-    std::vector<int> cols;
-    for (int j = 0; j < kUnknowns; ++j) {
-      if (free_block[j]) cols.push_back(j);
-    }
-    Eigen::MatrixXd js(jac.rows(), cols.size());
-    for (size_t k = 0; k < cols.size(); ++k) js.col(k) = jac.col(cols[k]) * unit[cols[k]];
-    Eigen::SelfAdjointEigenSolver<Eigen::MatrixXd> es(js.transpose() * js);
-    for (int e = 0; e < static_cast<int>(cols.size()); ++e) {
-      const double lambda = es.eigenvalues()[e];
-      const double std_dir =
-          lambda > 0.0 ? 1.0 / std::sqrt(lambda / cov_scale) : std::numeric_limits<double>::infinity();
-      if (std_dir <= kMaxIdentifiableStd) continue;
-      for (size_t k = 0; k < cols.size(); ++k) {
-        if (std::abs(es.eigenvectors()(k, e)) >= kParticipation) unidentified[cols[k]] = true;
-      }
-    }
-  }
+  const Blocks unidentified = UnidentifiedUnknowns(ctx, x, free_block, cov_scale);
   {
     static const char* names[kUnknowns] = {"axial force", "bending stiffness", "left fixity", "right fixity",
                                            "axial support stiffness"};
@@ -1066,53 +560,15 @@ Status IdentifyWithPrior(const model::Member& member, const ModalIdentification&
   }
   const long calls_before_profile = ctx.calls;
   if (options.profile_axial_force) {
-    const double target = kChi2Dof1At95 * cov_scale;  // in chi-square units
-    double sides[2] = {n_lo, n_hi};
-    for (int side = 0; side < 2; ++side) {
-      const double sign = side == 0 ? -1.0 : 1.0;
-      double step =
-          std::isfinite(n_std) && n_std > 0.0 ? kZ95 * std_of(0) : 0.1 * std::max(std::abs(x[0]), 1.0);
-      step = std::max(step, 1e-3 * std::max(std::abs(x[0]), 0.1));
-      Unknowns xa = x;
-      double da = 0.0;
-      bool closed = false;
-      double boundary = x[0];
-      for (int it = 0; it < kMaxProfileSteps; ++it) {
-        Unknowns xs = xa;
-        xs[0] = xa[0] + sign * step;
-        // Start the others at their conditional mean given N under the
-        // Gauss-Newton (Wald) approximation, x_j + cov(j, N) / cov(N, N) dN
-        // (the regression of x_j on N): near the profile's optimum, so the
-        // held-N fit needs few iterations; fixities stay in their range.
-        if (have_cov && cov(0, 0) > 0.0) {
-          for (int j = 1; j < kUnknowns; ++j) {
-            if (!free_block[j]) continue;
-            xs[j] += cov(j, 0) / cov(0, 0) * (xs[0] - xa[0]);
-            if (j >= kLeft) xs[j] = std::clamp(xs[j], kFixityOffset, kFixityOffset + 1.0);
-          }
-        }
-        FitOutcome o = RunFit(ctx, xs, true, options);
-        if (!o.usable) {
-          step *= 0.5;
-          continue;
-        }
-        const double db = 2.0 * (o.cost - best.cost);
-        if (db >= target) {
-          // sqrt(delta chi2) is close to linear in N near the optimum.
-          const double sa = std::sqrt(std::max(0.0, da)), sb = std::sqrt(db), st = std::sqrt(target);
-          boundary = xa[0] + (xs[0] - xa[0]) * (st - sa) / std::max(sb - sa, 1e-12);
-          closed = true;
-          break;
-        }
-        xa = o.x;
-        da = std::max(0.0, db);
-        boundary = xa[0];
-        step *= 2.0;
-      }
-      if (!closed) profile_open = true;
-      sides[side] = boundary * ctx.n_scale;
-    }
-    const double p_lo = sides[0], p_hi = sides[1];
+    ProfileInput pin;
+    pin.unknown = 0;
+    pin.cov = have_cov ? &cov : nullptr;
+    pin.cov_scale = cov_scale;
+    pin.fallback_step = 0.1 * std::max(std::abs(x[0]), 1.0);
+    pin.min_step = 1e-3 * std::max(std::abs(x[0]), 0.1);
+    const ProfileInterval prof = Profile(ctx, best, free_block, pin, options);
+    profile_open = prof.open;
+    const double p_lo = prof.low * ctx.n_scale, p_hi = prof.high * ctx.n_scale;
     if (!std::isfinite(n_std) || p_hi - p_lo > n_hi - n_lo) n_method = "profile";
     if (!std::isfinite(n_std)) {
       n_lo = p_lo;
@@ -1123,7 +579,22 @@ Status IdentifyWithPrior(const model::Member& member, const ModalIdentification&
     }
     n_std = std::max(std::isfinite(n_std) ? n_std : 0.0, (n_hi - n_lo) / (2.0 * kZ95));
   }
-  est.fit.profile_model_calls = ctx.calls - calls_before_profile;
+  // EA of the sag term undecided by the data: the interval also covers the
+  // nominal-EA estimate (the same interval shifted to its force).
+  if (sag.comparable && std::abs(sag.other_force_n - n_hat) > 0.25 * (n_hi - n_lo)) {
+    const double d = sag.other_force_n - n_hat;
+    n_lo = std::min(n_lo, n_lo + d);
+    n_hi = std::max(n_hi, n_hi + d);
+    n_std = std::max(n_std, (n_hi - n_lo) / (2.0 * kZ95));
+    n_method = "sag-stiffness";
+    est.cautions.push_back(
+        {"sag-stiffness-uncertain",
+         "The sag of the member couples its vertical modes to its axial stiffness EA, which the record does "
+         "not fix: EA from the fitted E gives " +
+             FormatKn(n_hat) + ", EA from the nominal E (" + FormatNumber(sag.other_ea_share, 3) +
+             " times that) gives " + FormatKn(sag.other_force_n) +
+             "; the interval covers both. Knowing E or the section settles it."});
+  }
   est.axial_force_n = {n_hat, n_std, n_lo, n_hi, false, !unidentified[0] && !profile_open};
   if (profile_open || !std::isfinite(n_std)) {
     est.cautions.push_back({"force-interval-open",
@@ -1131,13 +602,32 @@ Status IdentifyWithPrior(const model::Member& member, const ModalIdentification&
                             "searched; the interval shown is only the searched range."});
   }
 
-  // EI: log-normal interval from the std of ln EI.
+  // EI: log-normal Wald interval from the std of ln EI, and the profile
+  // likelihood of ln EI (as for N; the Wald interval alone was 2-3 times too
+  // narrow across repeated records of one member, issue 12): the wider one
+  // is reported (fit.bending_stiffness_interval).
+  std::string ei_method = "wald";
   {
     const double ei = ctx.EI(x.data());
     // Without a covariance the prior's std is an upper bound of the
     // posterior std of ln EI (data only add information to a Gaussian prior).
     const double s = have_cov ? std_of(1) : options.ei_prior_sigma_ln;
-    est.bending_stiffness_nm2 = {ei,    ei * s,          ei * std::exp(-kZ95 * s), ei * std::exp(kZ95 * s),
+    double ln_lo = -kZ95 * s, ln_hi = kZ95 * s;  // ln(EI_bound / EI)
+    if (options.profile_bending_stiffness) {
+      ProfileInput pin;
+      pin.unknown = 1;
+      pin.cov = have_cov ? &cov : nullptr;
+      pin.cov_scale = cov_scale;
+      pin.fallback_step = options.ei_prior_sigma_ln;
+      pin.min_step = 1e-3;
+      const ProfileInterval prof = Profile(ctx, best, free_block, pin, options);
+      const double p_lo = prof.low - x[1], p_hi = prof.high - x[1];
+      if (p_hi - p_lo > ln_hi - ln_lo) ei_method = "profile";
+      ln_lo = std::min(ln_lo, p_lo);
+      ln_hi = std::max(ln_hi, p_hi);
+    }
+    const double s_reported = std::max(s, (ln_hi - ln_lo) / (2.0 * kZ95));
+    est.bending_stiffness_nm2 = {ei,    ei * s_reported, ei * std::exp(ln_lo), ei * std::exp(ln_hi),
                                  false, !unidentified[1]};
     if (s > kPriorDominatedShare * options.ei_prior_sigma_ln) {
       est.cautions.push_back(
@@ -1146,6 +636,7 @@ Status IdentifyWithPrior(const model::Member& member, const ModalIdentification&
                " N m^2 +- " + FormatNumber(100 * options.ei_prior_sigma_ln, 2) + " %), not by the record."});
     }
   }
+  est.fit.profile_model_calls = ctx.calls - calls_before_profile;
 
   // Fixities.
   model::ModalResult final_modes;
@@ -1173,7 +664,8 @@ Status IdentifyWithPrior(const model::Member& member, const ModalIdentification&
   est.fixity_left = fixity(2, ctx.free_left, final_ok ? final_modes.fixity_left : 0.0);
   est.fixity_right = fixity(3, ctx.free_right, final_ok ? final_modes.fixity_right : 0.0);
   est.axial_support_ratio = fixity(kAxial, ctx.free_axial, rho_declared);
-  est.axial_support_stiffness_n_per_m = SupportStiffness(est.axial_support_ratio.value, ctx.ea_over_l);
+  est.axial_support_stiffness_n_per_m =
+      SupportStiffness(est.axial_support_ratio.value, ctx.EaOverL(x.data()));
 
   // Modes with pairing and model values at the estimate.
   for (size_t i = 0; i < measured.size(); ++i) {
@@ -1211,61 +703,9 @@ Status IdentifyWithPrior(const model::Member& member, const ModalIdentification&
   est.fit.starts_at_best = at_best;
   est.fit.elements = elements;
   est.fit.axial_force_interval = n_method;
+  est.fit.bending_stiffness_interval = ei_method;
 
-  // --- Cautions ---------------------------------------------------------------------
-  const int paired = static_cast<int>(ctx.pairs.size());
-  if (paired == 1) {
-    est.cautions.push_back({"single-mode",
-                            "Only one mode pairs with the member model; force, stiffness and end restraint "
-                            "trade off against each other and the intervals are correspondingly wide."});
-  }
-  if (record_index.size() == 1) {
-    est.cautions.push_back({"single-sensor", "Only one sensor in the " + std::string(model::ToString(plane)) +
-                                                 " plane: mode shapes cannot confirm the mode orders."});
-  }
-  for (size_t i = 0; i < est.modes.size(); ++i) {
-    if (est.modes[i].paired) continue;
-    est.cautions.push_back({"unpaired-mode", "The mode at " +
-                                                 FormatNumber(est.modes[i].measured.frequency_hz) +
-                                                 " Hz pairs with no bending mode of the member model and was "
-                                                 "not used."});
-  }
-  auto at_bound = [&](const EstimatedQuantity& q, const char* side) {
-    if (q.fixed || !q.identifiable) return;
-    if (q.value <= kFixityBoundDistance || q.value >= 1.0 - kFixityBoundDistance) {
-      est.cautions.push_back({"fixity-at-bound", std::string("The ") + side + " end fixity sits at " +
-                                                     (q.value < 0.5 ? "0 (pinned)" : "1 (clamped)") +
-                                                     ", the bound of its range; its interval is one-sided."});
-    }
-  };
-  at_bound(est.fixity_left, "left");
-  at_bound(est.fixity_right, "right");
-  if (ctx.free_axial && est.axial_support_ratio.identifiable) {
-    const double rho = est.axial_support_ratio.value;
-    if (rho <= kFixityBoundDistance || rho >= 1.0 - kFixityBoundDistance) {
-      est.cautions.push_back({"axial-support-at-bound",
-                              std::string("The axial support stiffness sits at ") +
-                                  (rho < 0.5 ? "0 (supports free to move axially)" : "rigid supports") +
-                                  ", the bound of its range; its interval is one-sided."});
-    }
-  }
-  if (n_hi - n_lo > kWideIntervalShare * std::abs(n_hat)) {
-    est.cautions.push_back({"wide-interval", "The 95 % interval of the axial force [" + FormatKn(n_lo) +
-                                                 ", " + FormatKn(n_hi) + "] is wider than " +
-                                                 FormatNumber(100 * kWideIntervalShare, 2) +
-                                                 " % of the estimate " + FormatKn(n_hat) + "."});
-  }
-  if (reduced_chi2 > kPoorFitReducedChi2) {
-    est.cautions.push_back({"poor-fit", "The model reproduces the modes poorly (reduced chi-square " +
-                                            FormatNumber(reduced_chi2, 3) +
-                                            "); the intervals were widened accordingly, "
-                                            "but the beam model may not describe this member."});
-  }
-  if (!best.converged) {
-    est.cautions.push_back(
-        {"not-converged", "The best fit stopped at its iteration limit before converging."});
-  }
-  AppendForceCautions(member, plane, n_hat, est.critical_compression_n, &est.cautions);
+  AppendFitCautions(member, ctx.free_axial, &est);
 
   est.fit.forward_model_calls = ctx.calls;
   est.fit.seconds = std::chrono::duration<double>(std::chrono::steady_clock::now() - t0).count();
@@ -1273,160 +713,15 @@ Status IdentifyWithPrior(const model::Member& member, const ModalIdentification&
   return Status::Ok();
 }
 
-// Score of an estimate without its EI prior: the chi-square of the data
-// (frequencies and shapes; twice the cost less the squared prior residual)
-// plus kUnexplainedModePenalty for every strong in-plane mode left
-// unpaired (unpaired modes add nothing to the chi-square, so a fit that
-// explains fewer modes must not look better for it).
-constexpr double kUnexplainedModePenalty = 9.0;
-double DataScore(const Estimate& e, double ei_nominal, double sigma_ln) {
-  const double z = std::log(e.bending_stiffness_nm2.value / ei_nominal) / sigma_ln;
-  return std::max(0.0, 2.0 * e.fit.cost - z * z) +
-         kUnexplainedModePenalty * CountStrongModes(e).strong_unpaired;
-}
-
-// I of the other orientation of a rectangle over I of the declared one in
-// `plane` ((w/d)^2 in the vertical plane, (d/w)^2 in the lateral one); 0
-// for other sections.
-double OtherOrientationRatio(const model::Member& member, model::Direction plane) {
-  const auto& s = member.section;
-  if (s.shape != model::Section::Shape::kRectangle || !(s.width_m > 0.0 && s.depth_m > 0.0)) return 0.0;
-  const double r = s.width_m / s.depth_m;
-  return plane == model::Direction::kVertical ? r * r : 1.0 / (r * r);
-}
-
-// The prior sigma an estimate was made with (relaxed after a conflict).
-double PriorSigmaOf(const Estimate& e, const IdentifyOptions& options) {
-  for (const auto& c : e.cautions) {
-    if (c.code == "stiffness-off-nominal") return kRelaxedPriorSigmaLn;
-  }
-  return options.ei_prior_sigma_ln;
-}
-
-// Competing numberings (issue 12, failure class 3): when the search's rival
-// (its winner shifted by +-1 or +-2 orders) scores within kRivalSearchScore
-// of the winner and at least two modes are paired, the rival numbering is
-// fitted too. A rival that explains
-// the data better by more than the 95 % chi-square threshold (scaled by the
-// reduced chi-square when above 1) replaces the estimate; one within it is
-// a second candidate: the force interval is widened to cover both
-// intervals (never the tighter one) and a caution names both forces.
-void CompareRivalNumbering(const model::Member& member, const ModalIdentification& ident,
-                           const IdentifyOptions& options, const OrderHypothesis& search, Estimate* est) {
-  if (search.rival_order.empty() || !(search.rival_score - search.score < kRivalSearchScore)) return;
-  // One paired mode: every numbering fits it exactly; the single-mode
-  // caution and the profile over the fixities already say so.
-  if (std::count_if(est->modes.begin(), est->modes.end(), [](const EstimatedMode& m) { return m.paired; }) <
-      2)
-    return;
-  IdentifyOptions o = options;
-  o.ei_prior_sigma_ln = PriorSigmaOf(*est, options);
-  Estimate alt;
-  if (!IdentifyWithPrior(member, ident, o, &alt, &search.rival_order).ok()) return;
-  est->fit.forward_model_calls += alt.fit.forward_model_calls;
-  const double ei_nominal = member.NominalBendingStiffness_nm2(est->direction);
-  const double score = DataScore(*est, ei_nominal, o.ei_prior_sigma_ln);
-  const double alt_score = DataScore(alt, ei_nominal, o.ei_prior_sigma_ln);
-  const double threshold = kChi2Dof1At95 * std::max(1.0, est->fit.reduced_chi2);
-  auto lowest = [](const Estimate& e) {
-    int n = 0;
-    for (const auto& m : e.modes) {
-      if (m.paired && m.measured.order && (n == 0 || *m.measured.order < n)) n = *m.measured.order;
-    }
-    return n;
-  };
-  if (alt_score < score - threshold) {
-    alt.fit.forward_model_calls = est->fit.forward_model_calls;
-    for (const auto& c : est->cautions) {
-      if (c.code == "stiffness-off-nominal") alt.cautions.push_back(c);
-    }
-    *est = std::move(alt);
-    return;
-  }
-  if (alt_score > score + threshold) return;
-  EstimatedQuantity& n = est->axial_force_n;
-  n.ci95_low = std::min(n.ci95_low, alt.axial_force_n.ci95_low);
-  n.ci95_high = std::max(n.ci95_high, alt.axial_force_n.ci95_high);
-  n.std = std::max(n.std, (n.ci95_high - n.ci95_low) / (2.0 * kZ95));
-  est->fit.axial_force_interval = "hypotheses";
-  est->cautions.push_back(
-      {"order-hypotheses-disagree",
-       "Two numberings of the modes fit the record about equally well: lowest paired order " +
-           std::to_string(lowest(*est)) + " gives " + FormatKn(n.value) + ", lowest paired order " +
-           std::to_string(lowest(alt)) + " gives " + FormatKn(alt.axial_force_n.value) +
-           "; the interval covers both. A record with more modes or sensors away from the nodes decides."});
-  const bool wide = std::any_of(est->cautions.begin(), est->cautions.end(),
-                                [](const Caution& c) { return c.code == "wide-interval"; });
-  if (!wide && n.ci95_high - n.ci95_low > kWideIntervalShare * std::abs(n.value)) {
-    est->cautions.push_back({"wide-interval", "The 95 % interval of the axial force [" +
-                                                  FormatKn(n.ci95_low) + ", " + FormatKn(n.ci95_high) +
-                                                  "] is wider than " +
-                                                  FormatNumber(100 * kWideIntervalShare, 2) +
-                                                  " % of the estimate " + FormatKn(n.value) + "."});
-  }
-}
-
-}  // namespace
+}  // namespace fit
 
 Status IdentifyFromModes(const model::Member& member, const ModalIdentification& ident,
                          const IdentifyOptions& options, Estimate* estimate) {
   Estimate est;
   OrderHypothesis search;
-  if (Status s = IdentifyWithPrior(member, ident, options, &est, nullptr, &search); !s.ok()) return s;
-  // EI prior conflict (issue 12, failure class 2): the nominal EI can be
-  // 4-12 times off (unknown E of old iron, corrosion, built-up sections, a
-  // flat described on edge). When the estimate sits more than
-  // kPriorConflictSigma prior stds from the nominal, or the fit is poor or
-  // leaves strong modes unexplained (the prior may have forced a wrong
-  // numbering of the modes), the whole
-  // identification is repeated with the prior relaxed to
-  // kRelaxedPriorSigmaLn; the relaxed estimate is kept when it is itself
-  // off-nominal by that much and explains the data better by more than
-  // kPriorConflictChi2 (a three-sigma improvement), or when the first was
-  // already off-nominal.
-  const double ei_nominal = member.NominalBendingStiffness_nm2(est.direction);
-  const double z = std::log(est.bending_stiffness_nm2.value / ei_nominal) / options.ei_prior_sigma_ln;
-  const bool off_nominal = std::abs(z) > kPriorConflictSigma;
-  const bool unexplained = CountStrongModes(est).strong_unpaired >= kMinUnpairedForRefusal;
-  if ((off_nominal || unexplained || est.fit.reduced_chi2 > kPoorFitReducedChi2) &&
-      options.ei_prior_sigma_ln < kRelaxedPriorSigmaLn) {
-    IdentifyOptions relaxed_options = options;
-    relaxed_options.ei_prior_sigma_ln = kRelaxedPriorSigmaLn;
-    Estimate relaxed;
-    OrderHypothesis relaxed_search;
-    const Status rs = IdentifyWithPrior(member, ident, relaxed_options, &relaxed, nullptr, &relaxed_search);
-    if (rs.ok()) {
-      const double ratio = relaxed.bending_stiffness_nm2.value / ei_nominal;
-      const bool relaxed_off = std::abs(std::log(ratio)) > kPriorConflictSigma * options.ei_prior_sigma_ln;
-      const bool better = DataScore(relaxed, ei_nominal, kRelaxedPriorSigmaLn) <
-                          DataScore(est, ei_nominal, options.ei_prior_sigma_ln) - kPriorConflictChi2;
-      if (relaxed_off && (better || off_nominal)) {
-        relaxed.fit.forward_model_calls += est.fit.forward_model_calls;
-        relaxed.fit.seconds += est.fit.seconds;
-        std::string msg = "The modes put the bending stiffness at " + FormatNumber(ratio, 3) +
-                          " times its nominal value (" + FormatNumber(relaxed.bending_stiffness_nm2.value) +
-                          " against " + FormatNumber(ei_nominal) +
-                          " N m^2 from E and the section), far outside the " +
-                          FormatNumber(100 * options.ei_prior_sigma_ln, 2) +
-                          " % expected; the fit was repeated with that prior relaxed. Check E, the section "
-                          "(corrosion, built-up parts) and that the record belongs to this member.";
-        if (const double other = OtherOrientationRatio(member, est.direction); other > 0.0) {
-          msg += " A rectangle turned the other way (width and depth swapped) would give " +
-                 FormatNumber(other, 3) + " times the nominal value.";
-        }
-        relaxed.cautions.erase(
-            std::remove_if(relaxed.cautions.begin(), relaxed.cautions.end(),
-                           [](const Caution& c) { return c.code == "stiffness-from-prior"; }),
-            relaxed.cautions.end());
-        relaxed.cautions.push_back({"stiffness-off-nominal", msg});
-        est = std::move(relaxed);
-        search = relaxed_search;
-      } else {
-        est.fit.forward_model_calls += relaxed.fit.forward_model_calls;
-      }
-    }
-  }
-  CompareRivalNumbering(member, ident, options, search, &est);
+  if (Status s = fit::IdentifyWithPrior(member, ident, options, &est, nullptr, &search); !s.ok()) return s;
+  fit::ResolvePriorConflict(member, ident, options, &est, &search);
+  fit::CompareRivalNumbering(member, ident, options, search, &est);
   AppendRefusals(member, &est);
   est.verdict = MakeVerdict(est.cautions);
   *estimate = std::move(est);

@@ -5,7 +5,7 @@
 // Sign convention: N > 0 in tension. Units: SI, suffix on every field.
 //
 // Unknowns (internal, scaled so that Ceres' relative finite-difference step
-// means the same thing for each, see identify.cpp):
+// means the same thing for each, see identify_problem.h):
 //   N                      axial force, bounded below only by buckling,
 //   ln EI                  EI > 0,
 //   r_left, r_right        fixity factors in [0, 1] of `elastic` ends only
@@ -26,7 +26,8 @@
 //                        residual is free of the measured shape's scale and sign);
 //   prior:               (ln EI - ln EI_nominal) / ei_prior_sigma_ln.
 // Uncertainty: Gauss-Newton covariance from ceres::Covariance (DENSE_SVD)
-// scaled by the reduced chi-square when above 1; the N interval is the wider
+// scaled by the reduced chi-square when above 1; the N interval (and the EI
+// interval, on ln EI) is the wider
 // of the Wald interval and the profile-likelihood interval (N held on a
 // grid, the other unknowns re-optimised, boundary at a rise of the
 // chi-square by 3.841, the 95 % point of chi-square with one degree of
@@ -77,7 +78,7 @@ inline constexpr double kDesignForceDeviationShare = 0.3;
 // this share raises the large-amplitude caution (0.5 % is several frequency
 // stds of a good record; common practice, recalled value).
 inline constexpr double kLargeAmplitudeFrequencyShift = 0.005;
-// EI prior conflict (identify.cpp IdentifyFromModes): an estimate more than
+// EI prior conflict (identify_hypotheses.cpp ResolvePriorConflict): an estimate more than
 // kPriorConflictSigma prior stds from the nominal EI (or a poor fit) makes
 // the identification run again with the prior relaxed to
 // kRelaxedPriorSigmaLn (one std = a factor e^2 = 7.4: the 4-12 times errors
@@ -117,10 +118,20 @@ struct IdentifyOptions {
   PairingOptions pairing;
   // Compute the profile-likelihood interval of N (a few extra fits).
   bool profile_axial_force = true;
+  // Compute the profile-likelihood interval of EI (ln EI held on a grid,
+  // the others re-optimised; a few extra fits).
+  bool profile_bending_stiffness = true;
   // Estimate the axial support stiffness where it applies (a declared
   // support spring, vertical plane, sag coupling that moves the lowest
   // mode by more than its std; identify.cpp). false: the declared value holds.
   bool estimate_axial_support = true;
+  // EA of the sag and stretching term from the fitted E (E = EI_fit /
+  // I_nominal of the plane; EA = E A) instead of the nominal E (issue 12).
+  // A section turned the other way or a corroded one changes I and A
+  // differently, so where EA matters the nominal EA is fitted too and the
+  // data choose, or the N interval covers both (identify_hypotheses.h
+  // CompareSagAxialRigidity; caution "sag-stiffness-uncertain").
+  bool sag_ea_from_fitted_e = true;
 };
 
 // One identified quantity: value, one-sigma std and 95 % interval, or
@@ -164,10 +175,15 @@ struct FitSummary {
   long profile_model_calls = 0;  // of which in the profile-likelihood interval
   int elements = 0;              // mesh used
   // "wald" or "profile" (the wider one), or "hypotheses": the union of the
-  // intervals of two numberings of the modes that fit equally well, or for
+  // intervals of two numberings of the modes that fit equally well, or
+  // "sag-stiffness": widened to cover the force with EA from the nominal E
+  // as well as from the fitted one (both fit alike), or for
   // the time-domain fit "modal-floor": its Wald interval widened to the
   // modal estimate's relative width (identify_record.cpp).
   std::string axial_force_interval = "wald";
+  // The same for EI: "wald" (log-normal, from the std of ln EI) or
+  // "profile" (the profile likelihood of ln EI, when wider).
+  std::string bending_stiffness_interval = "wald";
 };
 
 // The time-domain fit behind a "transient" estimate (identify_record.h).

@@ -333,7 +333,9 @@ Status TransientPath(const model::Member& member, const Record& record, const Ei
   }
   if (fo.fit_bending_stiffness) {
     e.bending_stiffness_nm2 = FromFit(r.bending_stiffness_nm2, cov_ok);
-  }  // else: held at the modal estimate, whose interval (prior-dominated) stands
+  } else {  // held at the modal estimate, whose interval (prior-dominated) stands
+    e.fit.bending_stiffness_interval = modal.fit.bending_stiffness_interval;
+  }
   auto fixity = [&](const std::optional<FitEstimate>& f, EstimatedQuantity* q) {
     if (!f) return;  // declared end: the modal estimate's fixed value
     *q = FromFit(*f, cov_ok);

@@ -67,7 +67,11 @@ Status ResolveParameters(const Member& member, Direction direction, const ModalP
   out->fixity_right =
       ResolveFixity(p.fixity_right, member.right, out->ei_nm2, length, &out->k_right_nm_per_rad);
 
-  const double ea_over_l = member.AxialRigidity_n() / length;
+  if (p.axial_rigidity_n && !(std::isfinite(*p.axial_rigidity_n) && *p.axial_rigidity_n > 0.0)) {
+    return Status::InvalidArgument("axial rigidity EA = " + std::to_string(*p.axial_rigidity_n) +
+                                   " N: must be > 0");
+  }
+  const double ea_over_l = p.axial_rigidity_n.value_or(member.AxialRigidity_n()) / length;
   out->k_axial_n_per_m = 0.0;
   if (p.axial_support_stiffness_n_per_m) {
     out->k_axial_n_per_m = SeriesAxialStiffness(ea_over_l, *p.axial_support_stiffness_n_per_m);

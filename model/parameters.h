@@ -24,6 +24,10 @@ struct ModalParameters {
   // Series axial stiffness of the supports [N/m], overriding ends.axial
   // (identify may estimate it). +inf = fixed, 0 = free.
   std::optional<double> axial_support_stiffness_n_per_m;
+  // Axial rigidity EA [N] of the member itself, overriding the member's
+  // E A (identify takes it from the fitted E = EI / I_nominal, issue 12).
+  // Enters only the series axial stiffness k_axial (sag and stretching).
+  std::optional<double> axial_rigidity_n;
   // Standard gravity [m/s^2]; 0 switches the sag coupling off.
   double gravity_m_s2 = 9.80665;
 };

@@ -25,6 +25,12 @@ nlohmann::json Shape(const estimation::Estimate& e, const estimation::Identified
   return shape;
 }
 
+// Keys of "fit" added by issue 12 (docs/FORMATS.md 3.3): how the EI
+// interval was formed.
+void AddIntervalMethods(const estimation::Estimate& e, nlohmann::json* fit) {
+  (*fit)["bending_stiffness_interval"] = e.fit.bending_stiffness_interval;
+}
+
 }  // namespace
 
 nlohmann::json CautionsToJson(const estimation::Cautions& cautions) {
@@ -80,6 +86,7 @@ nlohmann::json EstimateToJson(const estimation::Estimate& e) {
               {"elements", e.fit.elements},
               {"degrees_of_freedom", e.fit.degrees_of_freedom},
               {"axial_force_interval", e.fit.axial_force_interval}};
+  AddIntervalMethods(e, &j["fit"]);
   if (e.transient) {
     const auto& t = *e.transient;
     nlohmann::json q = nlohmann::json::array();

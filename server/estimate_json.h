@@ -16,7 +16,8 @@
 // modes that pair with no model mode; no order, no model values), and in
 // "fit": "starts_at_best", "forward_model_calls", "elements",
 // "degrees_of_freedom", "axial_force_interval" ("wald" or "profile": which
-// interval was the wider and is reported), and for fit.model "transient"
+// interval was the wider and is reported), "bending_stiffness_interval"
+// (the same for EI), and for fit.model "transient"
 // "fit.transient" (window_s [start, end] from the record's first row,
 // sample_rate_hz and low_pass_hz of the fitted window, modes, model_runs,
 // residual_rms_m_s2, signal_rms_m_s2, damping_ratio, axial_force_swing_n,

@@ -25,6 +25,14 @@ stationary process). g_r scales single modes (a weak fundamental).
 Measurement noise per channel: white at noise_share of the channel RMS plus a
 random walk (1/f^2 drift) at drift_share.
 
+Sag (optional, vertical plane, axially fixed supports): "sag_ea_n" (EA [N])
+and "gravity_m_s2" add the stiffness of the extra cable tension that a
+deflection w of a shallow parabolic profile (curvature m g / N) produces,
+h = (EA / L) (m g / N) int w dx (Irvine, Cable Structures, 1981, ch. 3;
+his lambda^2 = (m g L / N)^2 L EA / (N L) for L_e = L): a rank-one term
+(m g / N)^2 (EA / L) h_step 1 1^T in the finite-difference matrix, kept
+symmetric; shift-invert by Sherman-Morrison on the sparse LU.
+
 Faults (optional): a dead channel (signal x 1e-7), a clipped channel (clipped
 at clip_share of its peak), a dropout (a run of exact zeros).
 Cross-axis mixing (optional): every channel also carries the other plane's
@@ -33,7 +41,8 @@ response (end springs k_other, same N and m, EI_other) times sin(angle).
 Usage: beam_reference.py PARAMS_JSON OUT_CSV  -> writes the record CSV (taut's
 record format: '# key=value' lines, a time_s column, one column per channel)
 and prints a JSON object with the true frequencies of the in-plane modes.
-Usage: beam_reference.py --modes PARAMS_JSON -> prints the frequencies only.
+Usage: beam_reference.py --modes PARAMS_JSON -> prints the frequencies (and,
+with "sensor_x_m", "shapes": per mode the shape at the sensors).
 Usage: beam_reference.py --batch CASES_JSON_FILE -> a list of PARAMS objects,
 each with "out" (its CSV path); prints the list of results.
 """
@@ -45,7 +54,7 @@ from scipy import sparse
 from scipy.sparse import linalg as sparse_linalg
 
 
-def beam_modes(L, m, EI, N, k_left, k_right, n_modes, nodes=1999):
+def beam_modes(L, m, EI, N, k_left, k_right, n_modes, nodes=1999, sag_ea=None, gravity=9.80665):
     """Lowest n_modes natural frequencies [Hz] and mass-normalised shapes (nodes x modes)."""
     h = L / (nodes + 1)
 
@@ -61,8 +70,25 @@ def beam_modes(L, m, EI, N, k_left, k_right, n_modes, nodes=1999):
     d0[0] += ghost(k_left) * EI / h**4
     d0[-1] += ghost(k_right) * EI / h**4
     A = sparse.diags([d2, d1, d0, d1, d2], [-2, -1, 0, 1, 2], format="csc")
-    # Lowest eigenpairs by ARPACK in shift-invert mode about 0 (sparse LU).
-    lam, vec = sparse_linalg.eigsh(A, k=n_modes, sigma=0.0, which="LM", tol=1e-13)
+    if sag_ea:
+        # Rank-one sag stiffness c u u^T (module docstring), u = 1 on the nodes.
+        c = (m * gravity / N) ** 2 * (sag_ea / L) * h
+        u = np.ones(nodes)
+        lu = sparse_linalg.splu(A)
+        a_inv_u = lu.solve(u)
+        denom = 1.0 + c * (u @ a_inv_u)
+
+        def op_inv(v):
+            y = lu.solve(np.asarray(v).ravel())
+            return y - c * a_inv_u * (u @ y) / denom
+
+        A_op = sparse_linalg.LinearOperator((nodes, nodes), matvec=lambda v: A @ v + c * u * (u @ v),
+                                            dtype=float)
+        OPinv = sparse_linalg.LinearOperator((nodes, nodes), matvec=op_inv, dtype=float)
+        lam, vec = sparse_linalg.eigsh(A_op, k=n_modes, sigma=0.0, which="LM", OPinv=OPinv, tol=1e-13)
+    else:
+        # Lowest eigenpairs by ARPACK in shift-invert mode about 0 (sparse LU).
+        lam, vec = sparse_linalg.eigsh(A, k=n_modes, sigma=0.0, which="LM", tol=1e-13)
     order = np.argsort(lam)
     lam, vec = lam[order], vec[:, order]
     omega2 = lam / m
@@ -163,9 +189,13 @@ def main():
         return
     if sys.argv[1] == "--modes":
         p = json.loads(sys.argv[2])
-        f, _, _ = beam_modes(p["length_m"], p["mass_per_length_kg_m"], p["ei_nm2"], p["axial_force_n"],
-                             p.get("k_left"), p.get("k_right"), p["modes"])
-        print(json.dumps({"frequencies_hz": list(f)}))
+        f, vec, x = beam_modes(p["length_m"], p["mass_per_length_kg_m"], p["ei_nm2"], p["axial_force_n"],
+                               p.get("k_left"), p.get("k_right"), p["modes"], p.get("nodes", 1999),
+                               p.get("sag_ea_n"), p.get("gravity_m_s2", 9.80665))
+        out = {"frequencies_hz": list(f)}
+        if "sensor_x_m" in p:  # shapes at the sensors, one list per mode
+            out["shapes"] = shapes_at(vec, x, np.array(p["sensor_x_m"]), p["length_m"]).T.tolist()
+        print(json.dumps(out))
         return
     print(json.dumps(simulate(json.loads(sys.argv[1]), sys.argv[2])))
 

@@ -22,13 +22,16 @@
 #include <cmath>
 #include <cstdio>
 #include <filesystem>
+#include <nlohmann/json.hpp>
 #include <numbers>
 #include <sstream>
 #include <string>
 #include <vector>
 
+#include "estimation/identify.h"
 #include "estimation/identify_record.h"
 #include "estimation/record.h"
+#include "model/modal.h"
 #include "tests/estimation/beam_reference.h"
 
 namespace taut::estimation {
@@ -80,7 +83,7 @@ class HardFamilies : public ::testing::Test {
     }
     EXPECT_LE(e.axial_force_n.ci95_low, f.force_n) << f.name;
     EXPECT_GE(e.axial_force_n.ci95_high, f.force_n) << f.name;
-    if (e.axial_force_n.ci95_high - e.axial_force_n.ci95_low > 0.25 * f.force_n) {
+    if (e.axial_force_n.ci95_high - e.axial_force_n.ci95_low > 0.25 * std::abs(f.force_n)) {
       EXPECT_NE(e.verdict.code, "usable") << f.name << ": a wide interval must lower the verdict";
     }
   }
@@ -212,6 +215,131 @@ TEST_F(HardFamilies, OrdinaryRecordStaysAccurate) {
   ExpectHonest(f, s, e);
   EXPECT_NEAR(e.axial_force_n.value / f.force_n, 1.0, 0.01);
   EXPECT_EQ(e.verdict.code, "usable") << e.verdict.summary;
+}
+
+// Class 3, compression: restrained struts (a 3 m, 50 mm bracing bar,
+// fixities 0.5 / 0.7) at N / P_cr = -0.3, -0.55 and -0.8, two sensors at
+// L/4 and L/2. P_cr is the critical load of the restrained bar (taut's
+// model with the true EI and fixities sets the share only; the record comes
+// from the reference). Expectation of the file comment; measured: truth
+// inside intervals 140, 55 and 41 % of |N| wide (two sensors leave N, EI and
+// the fixities trading off), verdict reduced-confidence, none refused.
+TEST_F(HardFamilies, RestrainedStrutInCompression) {
+  for (double share : {0.3, 0.55, 0.8}) {
+    Family f;
+    f.name = "strut-" + std::to_string(static_cast<int>(std::lround(100 * share)));
+    f.length_m = 3.0;
+    f.diameter_m = 0.05;
+    f.fixity_left = 0.5;
+    f.fixity_right = 0.7;
+    f.fs = 512.0;
+    f.duration_s = 120.0;
+    f.sensor_share = {0.25, 0.5};
+    f.seed = 11;
+    const model::Member member = DeclaredMember(f);
+    model::ModalModel mm(member, model::Direction::kLateral, model::ModalOptions{80});
+    model::ModalParameters truth;
+    truth.bending_stiffness_nm2 = Ei(f);
+    truth.fixity_left = f.fixity_left;
+    truth.fixity_right = f.fixity_right;
+    double p_cr = 0.0;
+    ASSERT_TRUE(mm.CriticalCompression(truth, &p_cr).ok());
+    f.force_n = -share * p_cr;
+    Estimate e;
+    const Status s = Identify(f, member, &e);
+    ExpectHonest(f, s, e);
+    if (s.ok()) {
+      EXPECT_TRUE(HasCaution(e, "compression") || HasCaution(e, "compression-near-buckling")) << f.name;
+    }
+  }
+}
+
+// Modes of the reference (frequencies with a std of 0.1 % of f, shapes at
+// the sensors scaled to max |.| = 1) for IdentifyFromModes.
+ModalIdentification ReferenceModes(const std::string& params, const model::Member& member) {
+  const nlohmann::json j = nlohmann::json::parse(RunReference({"--modes", params}));
+  ModalIdentification id;
+  for (const auto& s : member.sensors) id.channels.push_back(s.channel);
+  for (size_t k = 0; k < j["frequencies_hz"].size(); ++k) {
+    IdentifiedMode m;
+    m.frequency_hz = j["frequencies_hz"][k];
+    m.frequency_std_hz = 1e-3 * m.frequency_hz;
+    double amax = 0.0;
+    for (double v : j["shapes"][k]) amax = std::max(amax, std::abs(v));
+    for (double v : j["shapes"][k]) m.shape.push_back(v / amax);
+    id.modes.push_back(m);
+  }
+  return id;
+}
+
+// The reference's sag coupling against Irvine's closed form ([I] Irvine,
+// Cable Structures, 1981, eq. 3.31 for the symmetric in-plane modes of a
+// shallow cable: tan(x) = x - (4 / lambda^2) x^3, x = omega L / (2
+// sqrt(N/m)), lambda^2 = (m g L / N)^2 EA / N): a string (EI = 0) of 30 m,
+// 5 kg/m at 20 kN with EA = 1e8 N (lambda^2 = 27.0), first symmetric mode
+// within 1e-5 relative (finite differences and the rectangle rule for the
+// tension integral, both O(h^2)). The antisymmetric second mode stays at the
+// string's 2 / (2L) sqrt(N/m).
+TEST_F(HardFamilies, ReferenceSagMatchesIrvine) {
+  const double L = 30.0, m = 5.0, n = 20000.0, ea = 1e8, g = 9.80665;
+  const std::string out = RunReference(
+      {"--modes",
+       "{\"length_m\":30,\"mass_per_length_kg_m\":5,\"ei_nm2\":0,\"axial_force_n\":20000,\"modes\":2,"
+       "\"sag_ea_n\":1e8,\"gravity_m_s2\":9.80665}"});
+  const std::vector<double> f = ParseFrequencies(out);
+  ASSERT_EQ(f.size(), 2u) << out;
+  const double lambda2 = std::pow(m * g * L / n, 2) * ea / n;
+  // Bisection of tan(x) - x + 4 x^3 / lambda^2 on (pi/2, 3 pi/2), where it
+  // goes from -inf to +inf once.
+  double lo = kPi / 2 + 1e-9, hi = 1.5 * kPi - 1e-9;
+  for (int it = 0; it < 200; ++it) {
+    const double mid = 0.5 * (lo + hi);
+    (std::tan(mid) - mid + 4 * mid * mid * mid / lambda2 < 0 ? lo : hi) = mid;
+  }
+  const double f_irvine = 2 * lo / L * std::sqrt(n / m) / (2 * kPi);
+  EXPECT_NEAR(f[0] / f_irvine, 1.0, 1e-5) << "lambda^2 " << lambda2;
+  EXPECT_NEAR(f[1] / (2.0 / (2 * L) * std::sqrt(n / m)), 1.0, 1e-5);
+}
+
+// EA of the sag term from the fitted E (issue 12): a 30 m, 30 mm tie at
+// 25 kN sensed vertically (lambda^2 about 24, where the sag coupling lifts
+// the first symmetric mode strongly), its E 30 % below the nominal (an iron
+// of unknown grade); modes from the reference with the true EI and EA. With
+// EA from the nominal E the sag term is 1/0.7 too stiff; with EA from the
+// fitted E the force is closer to the truth, within 2 % and inside its
+// interval.
+TEST_F(HardFamilies, SagUsesTheFittedModulus) {
+  Family f;
+  f.name = "sag-e-off";
+  f.length_m = 30.0;
+  f.diameter_m = 0.03;
+  f.force_n = 25000.0;
+  f.ei_factor = 0.7;
+  model::Member member = DeclaredMember(f);
+  for (auto& s : member.sensors) s.direction = model::Direction::kVertical;
+  const double ea_true = f.ei_factor * member.AxialRigidity_n();
+  std::string params = Params(f);
+  params.pop_back();
+  params += ",\"modes\":12,\"sag_ea_n\":" + Num(ea_true) + ",\"gravity_m_s2\":9.80665}";
+  // Params(f) already holds "modes":16; the later key wins in the parser.
+  const ModalIdentification id = ReferenceModes(params, member);
+  ASSERT_EQ(id.modes.size(), 12u);
+  Estimate fitted_e, nominal_e;
+  ASSERT_TRUE(IdentifyFromModes(member, id, {}, &fitted_e).ok());
+  IdentifyOptions nominal;
+  nominal.sag_ea_from_fitted_e = false;
+  ASSERT_TRUE(IdentifyFromModes(member, id, nominal, &nominal_e).ok());
+  const double err_fitted = std::abs(fitted_e.axial_force_n.value / f.force_n - 1);
+  const double err_nominal = std::abs(nominal_e.axial_force_n.value / f.force_n - 1);
+  std::printf(
+      "[ sag ] EA from fitted E: N %.6g [%.6g, %.6g] EI/EI_true %.4f; nominal E: N %.6g [%.6g, %.6g]\n",
+      fitted_e.axial_force_n.value, fitted_e.axial_force_n.ci95_low, fitted_e.axial_force_n.ci95_high,
+      fitted_e.bending_stiffness_nm2.value / Ei(f), nominal_e.axial_force_n.value,
+      nominal_e.axial_force_n.ci95_low, nominal_e.axial_force_n.ci95_high);
+  EXPECT_LT(err_fitted, err_nominal);
+  EXPECT_LT(err_fitted, 0.02);
+  EXPECT_LE(fitted_e.axial_force_n.ci95_low, f.force_n);
+  EXPECT_GE(fitted_e.axial_force_n.ci95_high, f.force_n);
 }
 
 }  // namespace

@@ -73,6 +73,9 @@ TEST(EstimateJson, FollowsFormatsSection3) {
   for (const char* key : {"cost", "reduced_chi2", "iterations", "starts", "seconds"}) {
     EXPECT_TRUE(j["fit"].contains(key)) << key;
   }
+  // How the intervals of N and EI were formed (issue 12, FORMATS.md 3.3).
+  EXPECT_EQ(j["fit"]["axial_force_interval"], "wald");
+  EXPECT_EQ(j["fit"]["bending_stiffness_interval"], "wald");
   // Axial support beside the contract keys: declared (fixed) here, rigid
   // supports have no finite stiffness (null).
   EXPECT_EQ(j["axial_support"]["ratio"], nlohmann::json({{"value", 1.0}, {"fixed", true}}));
