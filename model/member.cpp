@@ -173,6 +173,11 @@ std::vector<ResolvedTolerance> ResolveTolerances(const Member& m) {
   return out;
 }
 
+void DeclareMeasuredPrecisely(Member* m) {
+  m->tolerances = Tolerances{0.0, 0.0, 0.0, 0.0, 0.0, 0.0};
+  for (Sensor& s : m->sensors) s.position_tolerance_m = 0.0;
+}
+
 Member PerturbMember(const Member& member, const ResolvedTolerance& t, double delta) {
   using Kind = ResolvedTolerance::Kind;
   Member m = member;

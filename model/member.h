@@ -194,6 +194,11 @@ struct ResolvedTolerance {
 // Precondition: ValidateMember(member).ok().
 std::vector<ResolvedTolerance> ResolveTolerances(const Member& member);
 
+// Declares every input of `member` measured precisely (all tolerances 0):
+// for members whose description is exact by construction (simulated
+// records in tests) or where the engineer has measured everything.
+void DeclareMeasuredPrecisely(Member* member);
+
 // `member` with the input `t` moved by `delta` (in the unit of t.nominal).
 // A length change scales the sensor positions with it (sensors keep their
 // share of the span; their own tolerances are separate entries).

@@ -10,6 +10,7 @@
 
 #include "server/iso_time.h"
 #include "server/json_limits.h"
+#include "server/json_path.h"
 #include "server/safe_text.h"
 
 namespace taut::server {
@@ -23,51 +24,14 @@ using model::RotationEnd;
 using model::Section;
 using nlohmann::json;
 
-// Thrown inside this file only, turned into a Status by the entry points.
-struct PathError {
-  std::string message;
-};
-
-[[noreturn]] void Fail(const std::string& path, const std::string& rule) {
-  throw PathError{path + ": " + rule};
-}
+// The JSON-path helpers (json_path.h) under this file's short names.
+[[noreturn]] void Fail(const std::string& path, const std::string& rule) { FailAt(path, rule); }
 
 std::string Show(const json& v) { return ShowJson(v); }
 
-void RequireObject(const json& j, const std::string& path) {
-  if (!j.is_object()) Fail(path, "must be a JSON object, got " + Show(j));
-}
+double Number(const json& v, const std::string& path) { return NumberAt(v, path); }
 
-// Rejects keys of `j` outside `allowed`.
-void OnlyKeys(const json& j, const std::string& path, std::initializer_list<const char*> allowed) {
-  for (auto it = j.begin(); it != j.end(); ++it) {
-    bool ok = false;
-    for (const char* a : allowed) ok = ok || it.key() == a;
-    if (!ok) {
-      std::string list;
-      for (const char* a : allowed) list += std::string(list.empty() ? "" : ", ") + a;
-      Fail(path + "." + Excerpt(it.key(), 64), "unknown key (allowed here: " + list + ")");
-    }
-  }
-}
-
-const json& Required(const json& j, const std::string& path, const char* key) {
-  auto it = j.find(key);
-  if (it == j.end()) Fail(path + "." + key, "required key is missing");
-  return *it;
-}
-
-double Number(const json& v, const std::string& path) {
-  if (!v.is_number()) Fail(path, "must be a number, got " + Show(v));
-  const double x = v.get<double>();
-  if (!std::isfinite(x)) Fail(path, "must be finite");
-  return x;
-}
-
-std::string Str(const json& v, const std::string& path) {
-  if (!v.is_string()) Fail(path, "must be a string, got " + Show(v));
-  return v.get<std::string>();
-}
+std::string Str(const json& v, const std::string& path) { return StringAt(v, path); }
 
 // True when `s` has 1..max_len characters, each alphanumeric, '_' or one
 // of `extra`. (Hand-written rather than std::regex: GCC 12 warns inside
@@ -82,11 +46,7 @@ bool IsToken(const std::string& s, size_t max_len, const char* extra) {
   return true;
 }
 
-std::string Fmt(double x) {
-  std::ostringstream os;
-  os << x;
-  return os.str();
-}
+std::string Fmt(double x) { return FormatJsonNumber(x); }
 
 double Positive(const json& v, const std::string& path) {
   const double x = Number(v, path);
@@ -385,7 +345,7 @@ void ReadMember(const json& j, Member* m, const MemberReadOptions& options) {
 Status MemberFromJson(const json& j, Member* member, MemberReadOptions options) {
   try {
     ReadMember(j, member, options);
-  } catch (const PathError& e) {
+  } catch (const JsonPathError& e) {
     return Status::InvalidArgument(e.message);
   }
   // Belt and braces: the model's own preconditions must hold for anything
