@@ -53,10 +53,11 @@ struct Setup {
   int Unknowns() const { return 2 + free_left + free_right; }
 };
 
-// Residuals of the modal fit (identify.h) of `member` at `theta` = (N,
-// ln EI, free fixities...); `group` receives the group of each row.
-bool Residuals(const Setup& s, const model::Member& member, const Eigen::VectorXd& theta, Eigen::VectorXd* r,
-               std::vector<int>* group, int* solves) {
+// Residuals of the modal fit (identify.h) of `model`'s member at `theta` =
+// (N, ln EI, free fixities...); `group` receives the group of each row.
+bool Residuals(const Setup& s, const model::ModalModel& model, const Eigen::VectorXd& theta,
+               Eigen::VectorXd* r, std::vector<int>* group, int* solves) {
+  const model::Member& member = model.member();
   model::ModalParameters p;
   p.axial_force_n = theta(0);
   p.bending_stiffness_nm2 = std::exp(theta(1));
@@ -64,7 +65,6 @@ bool Residuals(const Setup& s, const model::Member& member, const Eigen::VectorX
   if (s.free_left) p.fixity_left = std::clamp(theta(k++), 0.0, 1.0);
   if (s.free_right) p.fixity_right = std::clamp(theta(k++), 0.0, 1.0);
   p.axial_support_stiffness_n_per_m = s.axial_support_n_per_m;
-  const model::ModalModel model(member, s.plane, {s.elements});
   model::ModalResult res;
   ++*solves;
   if (!model.Solve(p, s.num_modes, &res).ok()) return false;
@@ -235,7 +235,8 @@ ToleranceTerms ComputeToleranceTerms(const model::Member& member, const Identify
   }
   Eigen::VectorXd r0;
   std::vector<int> group;
-  if (!Residuals(s, member, theta, &r0, &group, &t.model_solves)) {
+  const model::ModalModel base(member, s.plane, {s.elements});  // shared by the Jacobian's columns
+  if (!Residuals(s, base, theta, &r0, &group, &t.model_solves)) {
     t.reason = "the model fails at the estimate";
     return t;
   }
@@ -254,8 +255,8 @@ ToleranceTerms ComputeToleranceTerms(const model::Member& member, const Identify
     Eigen::VectorXd tp = theta, tm = theta, rp, rm;
     tp(j) += up;
     tm(j) -= down;
-    if (!Residuals(s, member, tp, &rp, nullptr, &t.model_solves) ||
-        !Residuals(s, member, tm, &rm, nullptr, &t.model_solves) || rp.size() != rows || rm.size() != rows) {
+    if (!Residuals(s, base, tp, &rp, nullptr, &t.model_solves) ||
+        !Residuals(s, base, tm, &rm, nullptr, &t.model_solves) || rp.size() != rows || rm.size() != rows) {
       t.reason = "the model fails next to the estimate";
       return t;
     }
@@ -282,9 +283,10 @@ ToleranceTerms ComputeToleranceTerms(const model::Member& member, const Identify
         kInputStep *
         (in.kind == model::ResolvedTolerance::Kind::kSensorPosition ? member.length_m : in.nominal);
     Eigen::VectorXd rp, rm;
-    if (!Residuals(s, model::PerturbMember(member, in, h), theta, &rp, nullptr, &t.model_solves) ||
-        !Residuals(s, model::PerturbMember(member, in, -h), theta, &rm, nullptr, &t.model_solves) ||
-        rp.size() != rows || rm.size() != rows) {
+    const model::ModalModel up(model::PerturbMember(member, in, h), s.plane, {s.elements});
+    const model::ModalModel down(model::PerturbMember(member, in, -h), s.plane, {s.elements});
+    if (!Residuals(s, up, theta, &rp, nullptr, &t.model_solves) ||
+        !Residuals(s, down, theta, &rm, nullptr, &t.model_solves) || rp.size() != rows || rm.size() != rows) {
       t.reason = "the model fails with " + in.key + " moved";
       return t;
     }
