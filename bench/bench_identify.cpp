@@ -15,6 +15,7 @@
 #include "estimation/identify_record.h"
 #include "estimation/modal_id.h"
 #include "estimation/record.h"
+#include "estimation/tolerance_budget.h"
 #include "model/modal.h"
 #include "tests/server/synthetic_record.h"
 
@@ -81,6 +82,31 @@ void BM_IdentifyFromModes(benchmark::State& state) {
   state.counters["profile_calls"] = static_cast<double>(profile_calls);
 }
 BENCHMARK(BM_IdentifyFromModes)->Unit(benchmark::kMillisecond);
+
+// Issue 17: the tolerance terms and the uncertainty budget
+// (estimation/tolerance_budget.h) on the case above: the same
+// identification followed by ComputeToleranceTerms and ApplyToleranceTerms,
+// as IdentifyRecord and the supplied-modes path run them. Its extra cost is
+// the ratio to BM_IdentifyFromModes in one run; "budget_solves" counts the
+// forward-model solves the budget adds.
+void BM_IdentifyFromModesWithTolerances(benchmark::State& state) {
+  const auto member = BenchMember();
+  const auto modes = BenchModes(member);
+  taut::estimation::IdentifyOptions options;
+  options.shape_std = 0.03;
+  int solves = 0;
+  for (auto _ : state) {
+    taut::estimation::Estimate e;
+    auto s = taut::estimation::IdentifyFromModes(member, modes, options, &e);
+    if (!s.ok()) state.SkipWithError(s.message.c_str());
+    const auto terms = taut::estimation::ComputeToleranceTerms(member, options, e);
+    taut::estimation::ApplyToleranceTerms(member, terms, &e);
+    solves = terms.model_solves;
+    benchmark::DoNotOptimize(e);
+  }
+  state.counters["budget_solves"] = solves;
+}
+BENCHMARK(BM_IdentifyFromModesWithTolerances)->Unit(benchmark::kMillisecond);
 
 // The whole `identify` path of the issue: a 300 s, 3-channel, 512 Hz record
 // (synthesised once, tests/server/synthetic_record.h: the lowest

@@ -34,6 +34,8 @@ constexpr std::array kCatalogue = {
     CatalogueEntry{"channel-left-out", kR, "a faulty channel was left out"},
     CatalogueEntry{"drift", kR, "a channel drifts"},
     CatalogueEntry{"time-jitter", kI, "the time stamps jitter around a uniform step"},
+    // Modes supplied by the engineer instead of a record (estimation/supplied_modes.cpp).
+    CatalogueEntry{"modes-supplied", kI, "the modes were supplied, not identified from a record"},
     // Modal identification (estimation/modal_id.cpp).
     CatalogueEntry{"rate-too-low", kI, "the band top was lowered below Nyquist"},
     CatalogueEntry{"no-mode", kU, "no mode was found in the record"},

@@ -56,6 +56,8 @@
 #include "estimation/cautions.h"
 #include "estimation/modes.h"
 #include "estimation/pairing.h"
+#include "estimation/simplified_formulas.h"
+#include "estimation/uncertainty_budget.h"
 #include "model/member.h"
 #include "model/status.h"
 
@@ -250,6 +252,11 @@ struct Estimate {
   // (cautions.h MakeVerdict); set whenever `cautions` is final.
   Verdict verdict;
   std::string notice;
+  // Issue 17, set after the fit by estimation/tolerance_budget.h
+  // (IdentifyRecord and the supplied-modes path; not by IdentifyFromModes):
+  // the variance budget of N and the two simplified formulas beside it.
+  std::optional<UncertaintyBudget> uncertainty_budget;
+  std::optional<SimplifiedComparison> simplified;
 };
 
 // Estimates N, EI and the elastic fixities of `member` from `modes`.

@@ -12,6 +12,7 @@
 #include "estimation/channel_faults.h"
 #include "estimation/conditioning.h"
 #include "estimation/pairing.h"
+#include "estimation/tolerance_budget.h"
 #include "model/modal.h"
 
 namespace taut::estimation {
@@ -489,6 +490,9 @@ Status IdentifyRecord(const model::Member& member, const Record& full_record,
   Estimate modal;
   if (Status s = IdentifyFromModes(member, modes, options.identify, &modal); !s.ok()) return s;
   if (modal.verdict.code == "unusable") return Finish(std::move(modal), estimate, progress);  // refused
+  // Issue 17: the member's tolerances, on the modal model at the modal
+  // estimate (tolerance_budget.h), applied to whichever estimate is reported.
+  const ToleranceTerms tolerance_terms = ComputeToleranceTerms(member, options.identify, modal);
 
   // The amplitude check and the choice of the model.
   Eigen::MatrixXd y = record.samples;
@@ -520,6 +524,7 @@ Status IdentifyRecord(const model::Member& member, const Record& full_record,
                ". The record holds no free decay for the nonlinear time-domain fit; record a free decay "
                "(excitation=impact) or at a smaller amplitude."});
     }
+    ApplyToleranceTerms(member, tolerance_terms, &modal);
     modal.fit.seconds = std::chrono::duration<double>(std::chrono::steady_clock::now() - t0).count();
     return Finish(std::move(modal), estimate, progress);
   }
@@ -534,6 +539,7 @@ Status IdentifyRecord(const model::Member& member, const Record& full_record,
                                   "vibration as extra force."});
     transient = std::move(modal);
   }
+  ApplyToleranceTerms(member, tolerance_terms, &transient);
   transient.fit.seconds = std::chrono::duration<double>(std::chrono::steady_clock::now() - t0).count();
   return Finish(std::move(transient), estimate, progress);
 }

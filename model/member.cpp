@@ -1,5 +1,6 @@
 #include "model/member.h"
 
+#include <algorithm>
 #include <cmath>
 #include <limits>
 #include <numbers>
@@ -110,7 +111,110 @@ Status ValidateMember(const Member& m) {
       return Bad(at + ".mass_kg", s.mass_kg, "must be >= 0");
     }
   }
+  // Tolerances: declared values only (the defaults are within the rule).
+  for (const ResolvedTolerance& t : ResolveTolerances(m)) {
+    if (!(std::isfinite(t.std) && t.std >= 0.0)) return Bad(t.key, t.std, "must be >= 0");
+    const double of = t.kind == ResolvedTolerance::Kind::kSensorPosition ? m.length_m : t.nominal;
+    if (t.std > kMaxToleranceShare * of) {
+      return Bad(t.key, t.std,
+                 "must be at most " + std::to_string(kMaxToleranceShare) + " of " +
+                     (t.kind == ResolvedTolerance::Kind::kSensorPosition ? "the length" : "its value") +
+                     " (" + std::to_string(of) + ")");
+    }
+  }
   return Status::Ok();
+}
+
+std::vector<ResolvedTolerance> ResolveTolerances(const Member& m) {
+  using Kind = ResolvedTolerance::Kind;
+  std::vector<ResolvedTolerance> out;
+  const auto add = [&](Kind kind, const std::string& key, double nominal,
+                       const std::optional<double>& declared, double fallback, int sensor = -1) {
+    ResolvedTolerance t;
+    t.kind = kind;
+    t.sensor = sensor;
+    t.key = key;
+    t.nominal = nominal;
+    t.std = declared.value_or(fallback);
+    t.is_default = !declared.has_value();
+    out.push_back(t);
+  };
+  const Tolerances& tol = m.tolerances;
+  add(Kind::kLength, "length_tolerance_m", m.length_m, tol.length_m,
+      std::max(kDefaultLengthToleranceMin_m, kDefaultLengthToleranceShare * m.length_m));
+  switch (m.section.shape) {
+    case Section::Shape::kCircle:
+      add(Kind::kDiameter, "section.dimension_tolerance_m", m.section.diameter_m, tol.section_dimension_m,
+          kDefaultDimensionToleranceShare * m.section.diameter_m);
+      break;
+    case Section::Shape::kRectangle:
+      // One declared tolerance for both dimensions; the default is a share of each.
+      add(Kind::kWidth, "section.dimension_tolerance_m", m.section.width_m, tol.section_dimension_m,
+          kDefaultDimensionToleranceShare * m.section.width_m);
+      add(Kind::kDepth, "section.dimension_tolerance_m", m.section.depth_m, tol.section_dimension_m,
+          kDefaultDimensionToleranceShare * m.section.depth_m);
+      break;
+    case Section::Shape::kGeneral:
+      add(Kind::kArea, "section.area_tolerance_m2", m.section.area_m2, tol.section_area_m2,
+          kDefaultAreaToleranceShare * m.section.area_m2);
+      add(Kind::kSecondMoment, "section.second_moment_tolerance_m4", m.section.second_moment_m4,
+          tol.section_second_moment_m4, kDefaultSecondMomentToleranceShare * m.section.second_moment_m4);
+      break;
+  }
+  add(Kind::kElasticModulus, "material.elastic_modulus_tolerance_pa", m.elastic_modulus_pa,
+      tol.elastic_modulus_pa, kDefaultElasticModulusToleranceShare * m.elastic_modulus_pa);
+  add(Kind::kDensity, "material.density_tolerance_kg_m3", m.density_kg_m3, tol.density_kg_m3,
+      kDefaultDensityToleranceShare * m.density_kg_m3);
+  for (size_t i = 0; i < m.sensors.size(); ++i) {
+    add(Kind::kSensorPosition, "sensors[" + std::to_string(i) + "].position_tolerance_m",
+        m.sensors[i].position_m, m.sensors[i].position_tolerance_m, kDefaultPositionTolerance_m,
+        static_cast<int>(i));
+  }
+  return out;
+}
+
+void DeclareMeasuredPrecisely(Member* m) {
+  m->tolerances = Tolerances{0.0, 0.0, 0.0, 0.0, 0.0, 0.0};
+  for (Sensor& s : m->sensors) s.position_tolerance_m = 0.0;
+}
+
+Member PerturbMember(const Member& member, const ResolvedTolerance& t, double delta) {
+  using Kind = ResolvedTolerance::Kind;
+  Member m = member;
+  switch (t.kind) {
+    case Kind::kLength: {
+      const double scale = (m.length_m + delta) / m.length_m;
+      m.length_m += delta;
+      for (Sensor& s : m.sensors) s.position_m *= scale;
+      break;
+    }
+    case Kind::kDiameter:
+      m.section.diameter_m += delta;
+      break;
+    case Kind::kWidth:
+      m.section.width_m += delta;
+      break;
+    case Kind::kDepth:
+      m.section.depth_m += delta;
+      break;
+    case Kind::kArea:
+      m.section.area_m2 += delta;
+      break;
+    case Kind::kSecondMoment:
+      m.section.second_moment_m4 += delta;
+      break;
+    case Kind::kElasticModulus:
+      m.elastic_modulus_pa += delta;
+      break;
+    case Kind::kDensity:
+      m.density_kg_m3 += delta;
+      break;
+    case Kind::kSensorPosition:
+      if (t.sensor >= 0 && t.sensor < static_cast<int>(m.sensors.size()))
+        m.sensors[t.sensor].position_m += delta;
+      break;
+  }
+  return m;
 }
 
 double FixityFromStiffness(double k, double ei, double length) {

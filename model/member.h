@@ -86,7 +86,51 @@ struct Sensor {
   std::optional<double> sensitivity_mv_per_g = std::nullopt;  // > 0, mV per g (9.80665 m/s^2)
   std::string calibrated_on = {};                             // ISO 8601 date "YYYY-MM-DD", "" = not given
   int polarity = 1;  // +1, or -1: the sensor's axis points against w (docs/FORMATS.md section 1)
+  // One standard deviation of position_m [m] (docs/FORMATS.md section 1);
+  // unset: kDefaultPositionTolerance_m; 0: measured precisely.
+  std::optional<double> position_tolerance_m = std::nullopt;
 };
+
+// What the engineer does not know exactly about the member (docs/FORMATS.md
+// section 1, issue 17). Every value is ONE STANDARD DEVIATION of the
+// declared quantity, in its unit; unset takes the default below
+// (ResolveTolerances); an explicit 0 declares the quantity measured
+// precisely. The estimation propagates them into the intervals
+// (estimation/tolerance_budget.h).
+struct Tolerances {
+  std::optional<double> length_m;                  // of length_m
+  std::optional<double> section_dimension_m;       // of each dimension of a circle or rectangle
+  std::optional<double> section_area_m2;           // general section: of area_m2
+  std::optional<double> section_second_moment_m4;  // general section: of second_moment_m4
+  std::optional<double> elastic_modulus_pa;        // of material.elastic_modulus_pa
+  std::optional<double> density_kg_m3;             // of material.density_kg_m3
+};
+
+// Defaults when a tolerance is absent. Values of common practice, recalled
+// (not taken from a published table or a code):
+//  - length: a free length between anchor plates or pin centres is rarely
+//    known better than about a centimetre (tape, and where a fixing's free
+//    length really starts), and about 0.2 % on long members read from
+//    drawings: std = max(0.01 m, 0.002 L);
+//  - section dimensions: 0.5 % of each dimension (the order of rolling
+//    tolerances of hot-rolled bar and flat); general sections 1 % of the
+//    area and 2 % of the second moment;
+//  - elastic modulus: 5 % (structural steels 195-210 GPa; wrought and cast
+//    iron scatter far more: declare a larger value for them);
+//  - density: 1 % (steels 7800-7870 kg/m3; wrought iron with slag lower);
+//  - sensor position: 0.02 m (a mount placed by tape on site).
+inline constexpr double kDefaultLengthToleranceMin_m = 0.01;
+inline constexpr double kDefaultLengthToleranceShare = 0.002;
+inline constexpr double kDefaultDimensionToleranceShare = 0.005;
+inline constexpr double kDefaultAreaToleranceShare = 0.01;
+inline constexpr double kDefaultSecondMomentToleranceShare = 0.02;
+inline constexpr double kDefaultElasticModulusToleranceShare = 0.05;
+inline constexpr double kDefaultDensityToleranceShare = 0.01;
+inline constexpr double kDefaultPositionTolerance_m = 0.02;
+// A tolerance is at most this share of its quantity (of the length for a
+// sensor position): beyond it the linearised propagation does not hold and
+// the description is better re-measured than declared so uncertain.
+inline constexpr double kMaxToleranceShare = 0.1;
 
 struct Member {
   std::string id;
@@ -104,6 +148,7 @@ struct Member {
   AxialEnds axial;
   std::vector<Sensor> sensors;
   std::optional<double> design_axial_force_n;  // tension > 0
+  Tolerances tolerances;                       // of the nominal values above
 
   // m = density A [kg/m].
   double MassPerLength_kg_m() const;
@@ -120,8 +165,48 @@ struct Member {
   Direction MajorityPlane() const;
 };
 
+// One uncertain input of the member, resolved: its one-sigma tolerance as
+// declared or by default. `key` is the JSON path of the tolerance in the
+// member description (docs/FORMATS.md section 1), e.g. "length_tolerance_m"
+// or "sensors[2].position_tolerance_m" (without "$.").
+struct ResolvedTolerance {
+  enum class Kind {
+    kLength,
+    kDiameter,      // circle
+    kWidth,         // rectangle
+    kDepth,         // rectangle
+    kArea,          // general
+    kSecondMoment,  // general
+    kElasticModulus,
+    kDensity,
+    kSensorPosition,  // `sensor` is the index into Member::sensors
+  };
+  Kind kind = Kind::kLength;
+  int sensor = -1;
+  std::string key;
+  double nominal = 0.0;  // the declared value the tolerance is of
+  double std = 0.0;      // one standard deviation, same unit, >= 0
+  bool is_default = false;
+};
+
+// Every uncertain input of `member` with its tolerance (declared or the
+// default above), in the order of the Kind enumeration, sensors last.
+// Precondition: ValidateMember(member).ok().
+std::vector<ResolvedTolerance> ResolveTolerances(const Member& member);
+
+// Declares every input of `member` measured precisely (all tolerances 0):
+// for members whose description is exact by construction (simulated
+// records in tests) or where the engineer has measured everything.
+void DeclareMeasuredPrecisely(Member* member);
+
+// `member` with the input `t` moved by `delta` (in the unit of t.nominal).
+// A length change scales the sensor positions with it (sensors keep their
+// share of the span; their own tolerances are separate entries).
+Member PerturbMember(const Member& member, const ResolvedTolerance& t, double delta);
+
 // Checks the preconditions every model function relies on (positive length,
-// section and material, sensors strictly inside the span, springs > 0).
+// section and material, sensors strictly inside the span, springs > 0,
+// tolerances finite, >= 0 and at most kMaxToleranceShare of their quantity).
 // Returns kInvalidArgument naming the field and its value. The JSON reader
 // checks the same rules with JSON paths; this is the guard for callers that
 // build a Member in code.

@@ -2,7 +2,10 @@
 // fixity with intervals (record reader -> estimation/identify_record.h: modal
 // identification -> model updating -> for free decays and large amplitudes
 // the nonlinear time-domain fit), as a short table or the docs/FORMATS.md
-// section 3 JSON object.
+// section 3 JSON object. With --modes FILE instead of --record, modes an
+// engineer already has (docs/FORMATS.md section 4, estimation/
+// supplied_modes.h). The table ends with the uncertainty budget of the
+// force and the two simplified formulas beside it (issue 17).
 #include <cmath>
 #include <iomanip>
 #include <nlohmann/json.hpp>
@@ -11,9 +14,11 @@
 
 #include "estimation/identify_record.h"
 #include "estimation/record.h"
+#include "estimation/supplied_modes.h"
 #include "server/cli.h"
 #include "server/estimate_json.h"
 #include "server/member_json.h"
+#include "server/modes_json.h"
 
 namespace taut::server {
 
@@ -22,6 +27,7 @@ namespace {
 struct IdentifyCliOptions {
   std::string member_path;
   std::string record_path;
+  std::string modes_path;  // --modes: supplied modes instead of a record (issue 17)
   std::optional<std::string> units;
   std::string profile_path;
   std::optional<double> temperature_c;
@@ -68,16 +74,70 @@ std::string FixedEndText(const model::RotationEnd& end, double r) {
   return "";
 }
 
+// Sources below this share of var(N) are summed into one line of the table.
+constexpr double kBudgetTableMinShare = 0.005;
+
+// The uncertainty budget of N as a short table (issue 17; docs/FORMATS.md
+// section 3 uncertainty_budget).
+void PrintBudget(std::ostream& out, const estimation::UncertaintyBudget& b) {
+  out << "\n  uncertainty of the axial force: std " << Fixed(b.axial_force_std_n / 1000.0, 3) << " kN (fit "
+      << Fixed(b.fit_std_n / 1000.0, 3) << ", member tolerances " << Fixed(b.tolerance_std_n / 1000.0, 3)
+      << ")\n";
+  out << "  " << std::left << std::setw(44) << "source" << std::right << std::setw(10) << "std_kN"
+      << std::setw(8) << "share"
+      << "\n";
+  int rest = 0;
+  double rest_share = 0.0;
+  for (const auto& x : b.sources) {
+    if (x.share < kBudgetTableMinShare) {
+      ++rest;
+      rest_share += x.share;
+      continue;
+    }
+    std::string name = x.label;
+    if (x.tolerance)
+      name += std::string(x.default_tolerance ? " (default " : " (declared ") + Sig(*x.tolerance, 3) + ")";
+    out << "  " << std::left << std::setw(44) << name << std::right << std::setw(10)
+        << Fixed(x.std_n / 1000.0, 3) << std::setw(6) << Fixed(100.0 * x.share, 1) << " %\n";
+  }
+  if (rest > 0) {
+    out << "  " << std::left << std::setw(44) << (std::to_string(rest) + " more, each below 0.5 %")
+        << std::right << std::setw(10) << "" << std::setw(6) << Fixed(100.0 * rest_share, 1) << " %\n";
+  }
+}
+
+// The simplified formulas beside the estimate, two lines (issue 17).
+void PrintSimplified(std::ostream& out, const estimation::SimplifiedComparison& c) {
+  out << "\n  simplified formulas (for comparison only):";
+  out << " taut string from f1 "
+      << (c.taut_string_force_n ? Fixed(*c.taut_string_force_n / 1000.0, 2) + " kN"
+                                : std::string("n/a (no f1)"));
+  out << "; pinned beam from " << c.modes_used << " mode(s) "
+      << (c.pinned_beam_force_n ? Fixed(*c.pinned_beam_force_n / 1000.0, 2) + " kN"
+                                : std::string("n/a (needs 2)"))
+      << "\n";
+  std::string why;
+  for (const auto& r : c.reasons) why += (why.empty() ? "" : "; ") + r;
+  out << "  why taut differs: "
+      << (why.empty() ? std::string("no left-out effect above 1 % for this member") : why) << ".\n";
+}
+
+// The line that says what the estimate was made from.
+std::string RecordLine(const estimation::Record& record) {
+  std::string line =
+      "record " + Fixed(record.duration_s(), 1) + " s at " + Sig(record.sample_rate_hz) + " Hz";
+  if (!record.recorded_at.empty()) line += ", recorded " + record.recorded_at;
+  if (record.temperature_c) line += ", " + Fixed(*record.temperature_c, 1) + " C";
+  return line;
+}
+
 void PrintTable(std::ostream& out, const model::Member& member, const std::string& member_label,
-                const estimation::Record& record, const estimation::Estimate& e) {
+                const std::string& source_line, const estimation::Estimate& e) {
   // The verdict first: the one line the technician on site needs.
   out << "verdict: " << e.verdict.summary << "\n\n";
   out << "member " << member_label << ", " << model::ToString(e.direction) << " plane, channels";
   for (const auto& c : e.channels) out << " " << c;
-  out << "\nrecord " << Fixed(record.duration_s(), 1) << " s at " << Sig(record.sample_rate_hz) << " Hz";
-  if (!record.recorded_at.empty()) out << ", recorded " << record.recorded_at;
-  if (record.temperature_c) out << ", " << Fixed(*record.temperature_c, 1) << " C";
-  out << "\n\n";
+  out << "\n" << source_line << "\n\n";
   PrintQuantity(out, "axial force", e.axial_force_n, 1000.0, 2, "kN", "");
   out << "  " << std::setw(19) << ""
       << "(tension > 0; interval: " << e.fit.axial_force_interval << ")\n";
@@ -119,6 +179,8 @@ void PrintTable(std::ostream& out, const model::Member& member, const std::strin
         << Fixed(e.transient->modal_axial_force_n / 1000.0, 2) << " kN\n";
   }
   out << "  " << e.identifiability << "\n";
+  if (e.uncertainty_budget) PrintBudget(out, *e.uncertainty_budget);
+  if (e.simplified) PrintSimplified(out, *e.simplified);
   if (!e.cautions.empty()) {
     out << "\ncautions:\n";
     for (const auto& c : e.cautions) {
@@ -129,10 +191,18 @@ void PrintTable(std::ostream& out, const model::Member& member, const std::strin
   out << "\n" << e.notice << "\n";
 }
 
+int RunIdentifyModes(const IdentifyCliOptions& o, const model::Member& member, std::ostream& out,
+                     std::ostream& err);
+
 int RunIdentify(const IdentifyCliOptions& o, std::ostream& out, std::ostream& err) {
   model::Member member;
   if (Status s = LoadMemberFile(o.member_path, &member); !s.ok()) {
     err << "taut identify: " << s.message << "\n";
+    return 1;
+  }
+  if (!o.modes_path.empty()) return RunIdentifyModes(o, member, out, err);
+  if (o.record_path.empty()) {
+    err << "taut identify: give --record FILE (an acceleration record) or --modes FILE (supplied modes)\n";
     return 1;
   }
   estimation::RecordReadOptions ro;
@@ -169,8 +239,38 @@ int RunIdentify(const IdentifyCliOptions& o, std::ostream& out, std::ostream& er
     out << j.dump(2) << "\n";
     return exit_code;
   }
-  PrintTable(out, member, member.id.empty() ? o.member_path : member.id, record, estimate);
+  PrintTable(out, member, member.id.empty() ? o.member_path : member.id, RecordLine(record), estimate);
   return exit_code;
+}
+
+// `taut identify --modes FILE`: the modes an engineer already has
+// (docs/FORMATS.md section 4) instead of a record; the same result.
+int RunIdentifyModes(const IdentifyCliOptions& o, const model::Member& member, std::ostream& out,
+                     std::ostream& err) {
+  estimation::SuppliedModes supplied;
+  if (Status s = LoadSuppliedModesFile(o.modes_path, member, &supplied); !s.ok()) {
+    err << "taut identify: " << s.message << "\n";
+    return 1;
+  }
+  estimation::Estimate estimate;
+  const Status st = estimation::IdentifySuppliedModes(member, supplied, {}, &estimate);
+  const bool refused = !st.ok() && estimate.verdict.code == "unusable";
+  if (!st.ok()) {
+    err << "taut identify: " << o.modes_path << ": " << st.message << "\n";
+    if (!refused) return 1;
+  }
+  if (o.json) {
+    nlohmann::json j = EstimateToJson(estimate);
+    j["member"] = member.id;
+    j["modes_supplied"] = {{"count", supplied.modes.size()}, {"source", supplied.source}};
+    out << j.dump(2) << "\n";
+  } else {
+    PrintTable(out, member, member.id.empty() ? o.member_path : member.id,
+               "modes supplied: " + std::to_string(supplied.modes.size()) + " from " +
+                   (supplied.source.empty() ? o.modes_path : supplied.source),
+               estimate);
+  }
+  return refused ? 1 : 0;
 }
 
 }  // namespace
@@ -182,9 +282,13 @@ void RegisterIdentifyCommand(CLI::App& app, CliContext* ctx) {
   cmd->add_option("--member", o->member_path, "member description (JSON, docs/FORMATS.md section 1)")
       ->required()
       ->check(CLI::ExistingFile);
-  cmd->add_option("--record", o->record_path, "acceleration record (CSV, docs/FORMATS.md section 2)")
-      ->required()
-      ->check(CLI::ExistingFile);
+  CLI::Option* record =
+      cmd->add_option("--record", o->record_path, "acceleration record (CSV, docs/FORMATS.md section 2)")
+          ->check(CLI::ExistingFile);
+  cmd->add_option("--modes", o->modes_path,
+                  "modes measured elsewhere (JSON, docs/FORMATS.md section 4), instead of --record")
+      ->check(CLI::ExistingFile)
+      ->excludes(record);
   cmd->add_option("--units", o->units,
                   "units of the record samples, overriding the file (m/s2, g, mg, V, mV)")
       ->check(CLI::IsMember({"m/s2", "g", "mg", "V", "mV"}));

@@ -31,6 +31,39 @@ void AddIntervalMethods(const estimation::Estimate& e, nlohmann::json* fit) {
   (*fit)["bending_stiffness_interval"] = e.fit.bending_stiffness_interval;
 }
 
+// Issue 17: the variance budget of N (estimation/uncertainty_budget.h).
+nlohmann::json BudgetToJson(const estimation::UncertaintyBudget& b) {
+  nlohmann::json sources = nlohmann::json::array();
+  for (const auto& x : b.sources) {
+    nlohmann::json j = {
+        {"source", x.source}, {"label", x.label}, {"std_n", Number(x.std_n)}, {"share", Number(x.share)}};
+    if (x.tolerance) {
+      j["tolerance"] = Number(*x.tolerance);
+      j["default"] = x.default_tolerance;
+    }
+    sources.push_back(j);
+  }
+  return {{"axial_force_std_n", Number(b.axial_force_std_n)},
+          {"fit_std_n", Number(b.fit_std_n)},
+          {"tolerance_std_n", Number(b.tolerance_std_n)},
+          {"method", b.method},
+          {"sources", sources}};
+}
+
+// Issue 17: the two simplified formulas beside the estimate
+// (estimation/simplified_formulas.h), labelled as simplified.
+nlohmann::json SimplifiedToJson(const estimation::SimplifiedComparison& c) {
+  const auto opt = [](const std::optional<double>& v) { return v ? Number(*v) : nlohmann::json(nullptr); };
+  return {{"label",
+           "simplified formulas, for comparison only (taut string from f1; pinned beam from the "
+           "regression of f_n^2/n^2 on n^2)"},
+          {"taut_string_force_n", opt(c.taut_string_force_n)},
+          {"pinned_beam_force_n", opt(c.pinned_beam_force_n)},
+          {"pinned_beam_bending_stiffness_nm2", opt(c.pinned_beam_bending_stiffness_nm2)},
+          {"modes_used", c.modes_used},
+          {"reasons", c.reasons}};
+}
+
 }  // namespace
 
 nlohmann::json CautionsToJson(const estimation::Cautions& cautions) {
@@ -118,6 +151,8 @@ nlohmann::json EstimateToJson(const estimation::Estimate& e) {
   j["plane"] = model::ToString(e.direction);
   j["identifiability"] = e.identifiability;
   j["critical_compression_n"] = Number(e.critical_compression_n);
+  if (e.uncertainty_budget) j["uncertainty_budget"] = BudgetToJson(*e.uncertainty_budget);
+  if (e.simplified) j["simplified_formulas"] = SimplifiedToJson(*e.simplified);
   j["cautions"] = CautionsToJson(e.cautions);
   j["verdict"] = VerdictToJson(e.verdict);
   j["notice"] = e.notice;

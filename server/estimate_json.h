@@ -24,7 +24,9 @@
 // modal_displacement_m, modal_axial_force_n: the linear estimate the fit
 // started from); "amplitude_check" (order, frequency_hz, frequency_std_hz,
 // amplitude_m, basis, frequency_shift_hz, force_bias_n, exceeds_std: the
-// check that chooses the model, estimation/identify_record.h).
+// check that chooses the model, estimation/identify_record.h);
+// "uncertainty_budget" and "simplified_formulas" (issue 17, docs/FORMATS.md
+// section 3.6) when the estimate carries them.
 #pragma once
 
 #include <nlohmann/json.hpp>

@@ -1,5 +1,6 @@
 #include "server/member_json.h"
 
+#include <algorithm>
 #include <cctype>
 #include <cmath>
 #include <cstring>
@@ -9,6 +10,7 @@
 
 #include "server/iso_time.h"
 #include "server/json_limits.h"
+#include "server/json_path.h"
 #include "server/safe_text.h"
 
 namespace taut::server {
@@ -22,51 +24,14 @@ using model::RotationEnd;
 using model::Section;
 using nlohmann::json;
 
-// Thrown inside this file only, turned into a Status by the entry points.
-struct PathError {
-  std::string message;
-};
-
-[[noreturn]] void Fail(const std::string& path, const std::string& rule) {
-  throw PathError{path + ": " + rule};
-}
+// The JSON-path helpers (json_path.h) under this file's short names.
+[[noreturn]] void Fail(const std::string& path, const std::string& rule) { FailAt(path, rule); }
 
 std::string Show(const json& v) { return ShowJson(v); }
 
-void RequireObject(const json& j, const std::string& path) {
-  if (!j.is_object()) Fail(path, "must be a JSON object, got " + Show(j));
-}
+double Number(const json& v, const std::string& path) { return NumberAt(v, path); }
 
-// Rejects keys of `j` outside `allowed`.
-void OnlyKeys(const json& j, const std::string& path, std::initializer_list<const char*> allowed) {
-  for (auto it = j.begin(); it != j.end(); ++it) {
-    bool ok = false;
-    for (const char* a : allowed) ok = ok || it.key() == a;
-    if (!ok) {
-      std::string list;
-      for (const char* a : allowed) list += std::string(list.empty() ? "" : ", ") + a;
-      Fail(path + "." + Excerpt(it.key(), 64), "unknown key (allowed here: " + list + ")");
-    }
-  }
-}
-
-const json& Required(const json& j, const std::string& path, const char* key) {
-  auto it = j.find(key);
-  if (it == j.end()) Fail(path + "." + key, "required key is missing");
-  return *it;
-}
-
-double Number(const json& v, const std::string& path) {
-  if (!v.is_number()) Fail(path, "must be a number, got " + Show(v));
-  const double x = v.get<double>();
-  if (!std::isfinite(x)) Fail(path, "must be finite");
-  return x;
-}
-
-std::string Str(const json& v, const std::string& path) {
-  if (!v.is_string()) Fail(path, "must be a string, got " + Show(v));
-  return v.get<std::string>();
-}
+std::string Str(const json& v, const std::string& path) { return StringAt(v, path); }
 
 // True when `s` has 1..max_len characters, each alphanumeric, '_' or one
 // of `extra`. (Hand-written rather than std::regex: GCC 12 warns inside
@@ -81,11 +46,7 @@ bool IsToken(const std::string& s, size_t max_len, const char* extra) {
   return true;
 }
 
-std::string Fmt(double x) {
-  std::ostringstream os;
-  os << x;
-  return os.str();
-}
+std::string Fmt(double x) { return FormatJsonNumber(x); }
 
 double Positive(const json& v, const std::string& path) {
   const double x = Number(v, path);
@@ -93,24 +54,51 @@ double Positive(const json& v, const std::string& path) {
   return x;
 }
 
-Section ReadSection(const json& j, const std::string& path) {
+// A tolerance (docs/FORMATS.md section 1): one standard deviation of
+// `of_value`, >= 0 (0: measured precisely) and at most
+// kMaxToleranceShare of it (`of_what` names it in the message).
+double Tolerance(const json& v, const std::string& path, double of_value, const std::string& of_what) {
+  const double x = Number(v, path);
+  if (x < 0.0) Fail(path, "= " + Fmt(x) + ": must be >= 0 (one standard deviation; 0 = measured precisely)");
+  if (x > model::kMaxToleranceShare * of_value) {
+    Fail(path, "= " + Fmt(x) + ": more than " + Fmt(model::kMaxToleranceShare) + " of " + of_what + " (" +
+                   Fmt(of_value) + "); re-measure rather than declare it so uncertain");
+  }
+  return x;
+}
+
+// The optional tolerance `key` of object `j` at `path` into `out`.
+void OptionalTolerance(const json& j, const std::string& path, const char* key, double of_value,
+                       const std::string& of_what, std::optional<double>* out) {
+  if (auto it = j.find(key); it != j.end()) *out = Tolerance(*it, path + "." + key, of_value, of_what);
+}
+
+Section ReadSection(const json& j, const std::string& path, model::Tolerances* tol) {
   RequireObject(j, path);
   const std::string shape = Str(Required(j, path, "shape"), path + ".shape");
   Section s;
   if (shape == "circle") {
-    OnlyKeys(j, path, {"shape", "diameter_m"});
+    OnlyKeys(j, path, {"shape", "diameter_m", "dimension_tolerance_m"});
     s.shape = Section::Shape::kCircle;
     s.diameter_m = Positive(Required(j, path, "diameter_m"), path + ".diameter_m");
+    OptionalTolerance(j, path, "dimension_tolerance_m", s.diameter_m, "the diameter",
+                      &tol->section_dimension_m);
   } else if (shape == "rectangle") {
-    OnlyKeys(j, path, {"shape", "width_m", "depth_m"});
+    OnlyKeys(j, path, {"shape", "width_m", "depth_m", "dimension_tolerance_m"});
     s.shape = Section::Shape::kRectangle;
     s.width_m = Positive(Required(j, path, "width_m"), path + ".width_m");
     s.depth_m = Positive(Required(j, path, "depth_m"), path + ".depth_m");
+    OptionalTolerance(j, path, "dimension_tolerance_m", std::min(s.width_m, s.depth_m),
+                      "the smaller dimension", &tol->section_dimension_m);
   } else if (shape == "general") {
-    OnlyKeys(j, path, {"shape", "area_m2", "second_moment_m4"});
+    OnlyKeys(j, path,
+             {"shape", "area_m2", "second_moment_m4", "area_tolerance_m2", "second_moment_tolerance_m4"});
     s.shape = Section::Shape::kGeneral;
     s.area_m2 = Positive(Required(j, path, "area_m2"), path + ".area_m2");
     s.second_moment_m4 = Positive(Required(j, path, "second_moment_m4"), path + ".second_moment_m4");
+    OptionalTolerance(j, path, "area_tolerance_m2", s.area_m2, "the area", &tol->section_area_m2);
+    OptionalTolerance(j, path, "second_moment_tolerance_m4", s.second_moment_m4, "the second moment",
+                      &tol->section_second_moment_m4);
   } else {
     Fail(path + ".shape",
          "unknown section shape \"" + Excerpt(shape) + "\" (use circle, rectangle or general)");
@@ -257,8 +245,8 @@ void ReadMember(const json& j, Member* m, const MemberReadOptions& options) {
   const std::string root = "$";
   RequireObject(j, root);
   OnlyKeys(j, root,
-           {"id", "length_m", "inclination_deg", "section", "material", "ends", "sensors",
-            "design_axial_force_n"});
+           {"id", "length_m", "length_tolerance_m", "inclination_deg", "section", "material", "ends",
+            "sensors", "design_axial_force_n"});
   *m = Member{};
   if (auto it = j.find("id"); it != j.end()) {
     m->id = Str(*it, "$.id");
@@ -267,20 +255,27 @@ void ReadMember(const json& j, Member* m, const MemberReadOptions& options) {
     Fail("$.id", "required key is missing");
   }
   m->length_m = Positive(Required(j, root, "length_m"), "$.length_m");
+  OptionalTolerance(j, root, "length_tolerance_m", m->length_m, "the length", &m->tolerances.length_m);
   if (auto it = j.find("inclination_deg"); it != j.end()) {
     m->inclination_deg = Number(*it, "$.inclination_deg");
     if (m->inclination_deg < 0.0 || m->inclination_deg > 90.0) {
       Fail("$.inclination_deg", "= " + Fmt(m->inclination_deg) + ": must be in [0, 90]");
     }
   }
-  m->section = ReadSection(Required(j, root, "section"), "$.section");
+  m->section = ReadSection(Required(j, root, "section"), "$.section", &m->tolerances);
   {
     const json& mat = Required(j, root, "material");
     RequireObject(mat, "$.material");
-    OnlyKeys(mat, "$.material", {"elastic_modulus_pa", "density_kg_m3", "yield_strength_pa"});
+    OnlyKeys(mat, "$.material",
+             {"elastic_modulus_pa", "density_kg_m3", "yield_strength_pa", "elastic_modulus_tolerance_pa",
+              "density_tolerance_kg_m3"});
     m->elastic_modulus_pa =
         Positive(Required(mat, "$.material", "elastic_modulus_pa"), "$.material.elastic_modulus_pa");
     m->density_kg_m3 = Positive(Required(mat, "$.material", "density_kg_m3"), "$.material.density_kg_m3");
+    OptionalTolerance(mat, "$.material", "elastic_modulus_tolerance_pa", m->elastic_modulus_pa,
+                      "the elastic modulus", &m->tolerances.elastic_modulus_pa);
+    OptionalTolerance(mat, "$.material", "density_tolerance_kg_m3", m->density_kg_m3, "the density",
+                      &m->tolerances.density_kg_m3);
     if (auto it = mat.find("yield_strength_pa"); it != mat.end()) {
       m->yield_strength_pa = Positive(*it, "$.material.yield_strength_pa");
     }
@@ -300,8 +295,8 @@ void ReadMember(const json& j, Member* m, const MemberReadOptions& options) {
       const std::string path = "$.sensors[" + std::to_string(i) + "]";
       RequireObject(s, path);
       OnlyKeys(s, path,
-               {"channel", "position_m", "mass_kg", "direction", "serial", "sensitivity_mv_per_g",
-                "calibrated_on", "polarity"});
+               {"channel", "position_m", "position_tolerance_m", "mass_kg", "direction", "serial",
+                "sensitivity_mv_per_g", "calibrated_on", "polarity"});
       model::Sensor sensor;
       sensor.channel = Str(Required(s, path, "channel"), path + ".channel");
       if (!IsToken(sensor.channel, 32, "")) {
@@ -315,6 +310,8 @@ void ReadMember(const json& j, Member* m, const MemberReadOptions& options) {
         Fail(path + ".position_m", "= " + Fmt(sensor.position_m) +
                                        ": must lie strictly inside the span (0, " + Fmt(m->length_m) + ") m");
       }
+      OptionalTolerance(s, path, "position_tolerance_m", m->length_m, "the length",
+                        &sensor.position_tolerance_m);
       if (auto mk = s.find("mass_kg"); mk != s.end()) {
         sensor.mass_kg = Number(*mk, path + ".mass_kg");
         if (sensor.mass_kg < 0.0) Fail(path + ".mass_kg", "= " + Fmt(sensor.mass_kg) + ": must be >= 0");
@@ -348,7 +345,7 @@ void ReadMember(const json& j, Member* m, const MemberReadOptions& options) {
 Status MemberFromJson(const json& j, Member* member, MemberReadOptions options) {
   try {
     ReadMember(j, member, options);
-  } catch (const PathError& e) {
+  } catch (const JsonPathError& e) {
     return Status::InvalidArgument(e.message);
   }
   // Belt and braces: the model's own preconditions must hold for anything
@@ -376,6 +373,8 @@ json MemberToJson(const Member& m) {
   json j;
   if (!m.id.empty()) j["id"] = m.id;
   j["length_m"] = m.length_m;
+  const model::Tolerances& tol = m.tolerances;
+  if (tol.length_m) j["length_tolerance_m"] = *tol.length_m;
   j["inclination_deg"] = m.inclination_deg;
   switch (m.section.shape) {
     case Section::Shape::kCircle:
@@ -390,7 +389,13 @@ json MemberToJson(const Member& m) {
                       {"second_moment_m4", m.section.second_moment_m4}};
       break;
   }
+  if (tol.section_dimension_m) j["section"]["dimension_tolerance_m"] = *tol.section_dimension_m;
+  if (tol.section_area_m2) j["section"]["area_tolerance_m2"] = *tol.section_area_m2;
+  if (tol.section_second_moment_m4)
+    j["section"]["second_moment_tolerance_m4"] = *tol.section_second_moment_m4;
   j["material"] = {{"elastic_modulus_pa", m.elastic_modulus_pa}, {"density_kg_m3", m.density_kg_m3}};
+  if (tol.elastic_modulus_pa) j["material"]["elastic_modulus_tolerance_pa"] = *tol.elastic_modulus_pa;
+  if (tol.density_kg_m3) j["material"]["density_tolerance_kg_m3"] = *tol.density_kg_m3;
   if (m.yield_strength_pa) j["material"]["yield_strength_pa"] = *m.yield_strength_pa;
   auto rotation = [](const RotationEnd& e) -> json {
     switch (e.kind) {
@@ -421,6 +426,7 @@ json MemberToJson(const Member& m) {
     if (s.sensitivity_mv_per_g) sensor["sensitivity_mv_per_g"] = *s.sensitivity_mv_per_g;
     if (!s.calibrated_on.empty()) sensor["calibrated_on"] = s.calibrated_on;
     if (s.polarity != 1) sensor["polarity"] = s.polarity;
+    if (s.position_tolerance_m) sensor["position_tolerance_m"] = *s.position_tolerance_m;
     j["sensors"].push_back(sensor);
   }
   if (m.design_axial_force_n) j["design_axial_force_n"] = *m.design_axial_force_n;

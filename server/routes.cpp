@@ -12,6 +12,7 @@ void RegisterRoutes(Router& r) {
   RegisterRecordUploadRoutes(r);
   RegisterRecordRoutes(r);
   RegisterEstimateRoutes(r);
+  RegisterModesRoutes(r);
   RegisterAlertRoutes(r);
   RegisterWebhookRoutes(r);
   RegisterTokenRoutes(r);

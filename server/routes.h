@@ -20,6 +20,7 @@ void RegisterMemberRoutes(Router& r);        // routes_members.cpp
 void RegisterRecordUploadRoutes(Router& r);  // record_upload.cpp
 void RegisterRecordRoutes(Router& r);        // routes_records.cpp
 void RegisterEstimateRoutes(Router& r);      // routes_estimates.cpp
+void RegisterModesRoutes(Router& r);         // routes_modes.cpp (supplied modes, issue 17)
 void RegisterAlertRoutes(Router& r);         // routes_alerts.cpp
 void RegisterWebhookRoutes(Router& r);       // routes_webhooks.cpp
 void RegisterTokenRoutes(Router& r);         // routes_tokens.cpp

@@ -170,6 +170,16 @@ TEST(IdentifyRecord, LargeAmplitudeImpactGoesThroughTheTransientPath) {
   EXPECT_LE(e.axial_force_n.ci95_low, kImpactTruthN);
   EXPECT_GE(e.axial_force_n.ci95_high, kImpactTruthN);
   EXPECT_EQ(e.notice, StandingNotice());
+  // Issue 17: the time-domain estimate carries the tolerance terms of its
+  // modal estimate (tolerance_budget.h): a budget whose std is the fit's and
+  // the tolerances' in quadrature, and an interval at least that wide.
+  ASSERT_TRUE(e.uncertainty_budget.has_value());
+  EXPECT_GT(e.uncertainty_budget->tolerance_std_n, 0.0);
+  EXPECT_NEAR(e.uncertainty_budget->axial_force_std_n,
+              std::hypot(e.uncertainty_budget->fit_std_n, e.uncertainty_budget->tolerance_std_n),
+              1e-9 * e.uncertainty_budget->axial_force_std_n);
+  EXPECT_GE(e.axial_force_n.ci95_high - e.axial_force_n.ci95_low,
+            2 * 1.959 * e.uncertainty_budget->tolerance_std_n);
 }
 
 // The same record without its excitation label (a gateway that omits the

@@ -101,6 +101,99 @@ TEST_F(CliIdentify, TableNamesForceIntervalModesAndNotice) {
   EXPECT_NE(out.find(estimation::StandingNotice()), std::string::npos) << out;
 }
 
+TEST_F(CliIdentify, TableShowsTheUncertaintyBudgetAndTheSimplifiedFormulas) {
+  // Issue 17: the table ends with the budget of the force (its sources by
+  // share; the example member declares no tolerance, so the defaults of
+  // docs/FORMATS.md 1.1 apply and say so) and the two simplified formulas,
+  // labelled as such.
+  const std::string record = (dir_ / "tie.csv").string();
+  ASSERT_TRUE(testing::WriteSyntheticRecord(record, member_, model::Direction::kVertical, truth_, {}));
+  std::string out, err;
+  ASSERT_EQ(Run({"identify", "--member", member_path_, "--record", record}, &out, &err), 0) << err;
+  EXPECT_NE(out.find("uncertainty of the axial force"), std::string::npos) << out;
+  EXPECT_NE(out.find("density (default 78)"), std::string::npos) << out;  // 1 % of 7800 kg/m3
+  EXPECT_NE(out.find("measured frequencies"), std::string::npos) << out;
+  EXPECT_NE(out.find("simplified formulas (for comparison only): taut string from f1"), std::string::npos)
+      << out;
+  EXPECT_NE(out.find("why taut differs:"), std::string::npos) << out;
+  ASSERT_EQ(Run({"identify", "--member", member_path_, "--record", record, "--json"}, &out, &err), 0) << err;
+  const nlohmann::json j = nlohmann::json::parse(out);
+  ASSERT_TRUE(j.contains("uncertainty_budget")) << out;
+  double share = 0.0;
+  for (const auto& x : j["uncertainty_budget"]["sources"]) share += x["share"].get<double>();
+  EXPECT_NEAR(share, 1.0, 1e-9);
+  // The reported std of N is the budget's total (fit and tolerances in quadrature).
+  EXPECT_NEAR(
+      j["axial_force_n"]["std"].get<double>() / j["uncertainty_budget"]["axial_force_std_n"].get<double>(),
+      1.0, 0.05);
+  ASSERT_TRUE(j.contains("simplified_formulas"));
+  EXPECT_GT(j["simplified_formulas"]["taut_string_force_n"].get<double>(), 0.0);
+}
+
+// `taut identify --modes` with the published frequencies of two beams
+// (Blevins, Formulas for Natural Frequency and Mode Shape, 1979, table 8-1:
+// pinned-pinned with the axial-load term of sec. 8.3, f_n = n/(2L)
+// sqrt(N/m + n^2 pi^2 EI/(m L^2)) at N = 30 kN; clamped-clamped without
+// axial force, f_n = lambda_n^2/(2 pi L^2) sqrt(EI/m), lambda = 4.73004074,
+// 7.85320462, 10.9956078), written as a modes file (docs/FORMATS.md
+// section 4) with std 1e-4 f: the force comes back to 1e-4 (of N for the
+// pinned bar; of the Euler load pi^2 EI / L^2 for the clamped one, N = 0).
+TEST_F(CliIdentify, SuppliedBlevinsFrequenciesGiveBackTheForce) {
+  constexpr double kPi = 3.14159265358979323846;
+  const double lambda[] = {4.73004074, 7.85320462, 10.9956078};
+  for (const char* ends : {"pinned", "clamped"}) {
+    const bool pinned = std::string(ends) == "pinned";
+    nlohmann::json mj = MemberToJson(member_);
+    mj["inclination_deg"] = 90.0;  // a hanger: no sag, as the closed forms assume
+    mj["ends"]["left"]["rotation"] = ends;
+    mj["ends"]["right"]["rotation"] = ends;
+    for (auto& sensor : mj["sensors"]) sensor["mass_kg"] = 0.0;
+    const std::string member_path = (dir_ / (std::string(ends) + ".json")).string();
+    std::ofstream(member_path) << mj.dump(2);
+    model::Member m;
+    ASSERT_TRUE(LoadMemberFile(member_path, &m).ok());
+    const double L = m.length_m, mass = m.MassPerLength_kg_m(),
+                 ei = m.NominalBendingStiffness_nm2(model::Direction::kVertical), force = pinned ? 30e3 : 0.0;
+    nlohmann::json modes = {{"source", "Blevins 1979 table 8-1"}, {"modes", nlohmann::json::array()}};
+    for (int n = 1; n <= 3; ++n) {
+      const double f = pinned
+                           ? n / (2 * L) * std::sqrt(force / mass + n * n * kPi * kPi * ei / (mass * L * L))
+                           : lambda[n - 1] * lambda[n - 1] / (2 * kPi * L * L) * std::sqrt(ei / mass);
+      modes["modes"].push_back(
+          {{"frequency_hz", f}, {"frequency_std_hz", 1e-4 * f}, {"damping_ratio", 0.005}});
+    }
+    const std::string modes_path = (dir_ / (std::string(ends) + "-modes.json")).string();
+    std::ofstream(modes_path) << modes.dump(2);
+    std::string out, err;
+    ASSERT_EQ(Run({"identify", "--member", member_path, "--modes", modes_path, "--json"}, &out, &err), 0)
+        << err;
+    const nlohmann::json j = nlohmann::json::parse(out);
+    const double n = j["axial_force_n"]["value"];
+    const double scale = pinned ? force : kPi * kPi * ei / (L * L);
+    std::printf("[ --modes ] %s: N %.8g (truth %.6g)\n", ends, n, force);
+    EXPECT_NEAR((n - force) / scale, 0.0, 1e-4) << ends;
+    EXPECT_EQ(j["cautions"][0]["code"], "modes-supplied");
+    EXPECT_EQ(j["cautions"][0]["severity"], "info");
+    EXPECT_EQ(j["modes_supplied"]["count"], 3);
+    EXPECT_EQ(j["notice"], estimation::StandingNotice());
+    EXPECT_TRUE(j.contains("uncertainty_budget"));
+  }
+}
+
+TEST_F(CliIdentify, ModesFileErrorsNameTheirPath) {
+  const std::string bad = (dir_ / "bad-modes.json").string();
+  std::ofstream(bad)
+      << R"({"modes": [{"frequency_hz": 4.0, "frequency_std_hz": 0.01, "shape": {"zz": 1.0}}]})";
+  std::string out, err;
+  EXPECT_EQ(Run({"identify", "--member", member_path_, "--modes", bad}, &out, &err), 1);
+  EXPECT_NE(err.find("$.modes[0].shape.zz: is not a sensor channel of the member"), std::string::npos) << err;
+  std::ofstream(bad) << R"({"modes": [{"frequency_hz": 4.0}]})";
+  EXPECT_EQ(Run({"identify", "--member", member_path_, "--modes", bad}, &out, &err), 1);
+  EXPECT_NE(err.find("$.modes[0].frequency_std_hz: required key is missing"), std::string::npos) << err;
+  EXPECT_EQ(Run({"identify", "--member", member_path_}, &out, &err), 1);
+  EXPECT_NE(err.find("--record FILE"), std::string::npos) << err;
+}
+
 TEST_F(CliIdentify, ChannelNotInMemberIsOneClearError) {
   testing::RecordSpec spec;
   spec.duration_s = 20.0;

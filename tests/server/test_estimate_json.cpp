@@ -44,6 +44,35 @@ estimation::Estimate Example() {
   return e;
 }
 
+TEST(EstimateJson, BudgetAndSimplifiedFormulasFollowSection36) {
+  // docs/FORMATS.md 3.6: the budget's keys, a tolerance source with its
+  // tolerance and default flag, a fit source without; absent budget, no key.
+  EXPECT_FALSE(EstimateToJson(Example()).contains("uncertainty_budget"));
+  estimation::Estimate e = Example();
+  estimation::UncertaintyBudget b;
+  b.axial_force_std_n = 250.0;
+  b.fit_std_n = 210.0;
+  b.tolerance_std_n = 135.6;
+  b.sources = {{"frequencies", "measured frequencies", 210.0, 0.7056, std::nullopt, false},
+               {"length_tolerance_m", "member length", 135.6, 0.2944, 0.012, true}};
+  e.uncertainty_budget = b;
+  estimation::SimplifiedComparison c;
+  c.taut_string_force_n = 31000.0;
+  c.modes_used = 1;
+  c.reasons = {"bending stiffness: ..."};
+  e.simplified = c;
+  const nlohmann::json j = EstimateToJson(e);
+  EXPECT_EQ(j["uncertainty_budget"]["axial_force_std_n"], 250.0);
+  EXPECT_EQ(j["uncertainty_budget"]["method"], "linearised");
+  EXPECT_EQ(j["uncertainty_budget"]["sources"][0]["source"], "frequencies");
+  EXPECT_FALSE(j["uncertainty_budget"]["sources"][0].contains("tolerance"));
+  EXPECT_EQ(j["uncertainty_budget"]["sources"][1]["tolerance"], 0.012);
+  EXPECT_EQ(j["uncertainty_budget"]["sources"][1]["default"], true);
+  EXPECT_EQ(j["simplified_formulas"]["taut_string_force_n"], 31000.0);
+  EXPECT_TRUE(j["simplified_formulas"]["pinned_beam_force_n"].is_null());
+  EXPECT_NE(j["simplified_formulas"]["label"].get<std::string>().find("simplified"), std::string::npos);
+}
+
 TEST(EstimateJson, FollowsFormatsSection3) {
   const nlohmann::json j = EstimateToJson(Example());
   // Identified quantity: value, std, ci95 = [low, high].

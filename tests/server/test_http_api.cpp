@@ -20,6 +20,7 @@
 #include <sstream>
 #include <thread>
 
+#include "model/modal.h"
 #include "raw_http.h"
 #include "server/auth.h"
 #include "server/hashing.h"
@@ -233,6 +234,46 @@ TEST_F(HttpApiTest, MembersAreVersionedAndSoftDeleted) {
   EXPECT_EQ(c.Delete(path)->status, 204);
   EXPECT_EQ(c.Get(path)->status, 404);
   EXPECT_EQ(c.Get(path + "/versions/2")->status, 200);  // history stays readable
+}
+
+TEST_F(HttpApiTest, SuppliedModesAreIdentifiedSynchronouslyAndNotStored) {
+  // Issue 17, docs/API.md "Modes measured elsewhere": the example tie's
+  // modes 1-3 at 35 kN with fixities 0.5 from the forward model on a fine
+  // mesh (the route's plumbing is under test here; the estimation against
+  // published frequencies is test_cli_identify and test_tolerance_budget),
+  // supplied with 0.2 % stds: the force comes back inside its interval.
+  const std::int64_t member_id = CreateMember();
+  model::Member member;
+  ASSERT_TRUE(ParseMember(member_text_, &member).ok());
+  model::ModalParameters truth;
+  truth.axial_force_n = 35e3;
+  truth.fixity_left = truth.fixity_right = 0.5;
+  model::ModalResult r;
+  ASSERT_TRUE(model::ComputeModes(member, model::Direction::kVertical, truth, 3, &r, {160}).ok());
+  json body = {{"source", "hand-held analyser"}, {"modes", json::array()}};
+  for (const auto& m : r.modes) {
+    json shape;
+    for (size_t c = 0; c < r.channels.size(); ++c) shape[r.channels[c]] = m.shape_at_sensors[c];
+    body["modes"].push_back(
+        {{"frequency_hz", m.frequency_hz}, {"frequency_std_hz", 2e-3 * m.frequency_hz}, {"shape", shape}});
+  }
+  const std::string path = "/v1/members/" + std::to_string(member_id) + "/modes";
+  EXPECT_EQ(Client(read_a_).Post(path, body.dump(), "application/json")->status, 403);
+  auto res = Client(upload_a_).Post(path, body.dump(), "application/json");
+  ASSERT_EQ(res->status, 200) << res->body;
+  const json j = json::parse(res->body);
+  EXPECT_FALSE(j["stored"].get<bool>());
+  EXPECT_EQ(j["cautions"][0]["code"], "modes-supplied");
+  EXPECT_LE(j["axial_force_n"]["ci95"][0].get<double>(), 35e3);
+  EXPECT_GE(j["axial_force_n"]["ci95"][1].get<double>(), 35e3);
+  EXPECT_TRUE(j.contains("uncertainty_budget"));
+  // Not stored: the member still has no estimate.
+  EXPECT_EQ(Client(read_a_).Get("/v1/members/" + std::to_string(member_id) + "/force")->status, 404);
+  // A body that breaks the format: 422 naming the path.
+  body["modes"][1].erase("frequency_std_hz");
+  res = Client(upload_a_).Post(path, body.dump(), "application/json");
+  EXPECT_EQ(res->status, 422);
+  EXPECT_NE(res->body.find("$.modes[1].frequency_std_hz"), std::string::npos) << res->body;
 }
 
 TEST_F(HttpApiTest, UploadIsIdempotentAndTheStoredSamplesRoundTrip) {

@@ -168,6 +168,65 @@ TEST(MemberJson, SensorCalibrationEntries) {
   j = Valid(), j["sensors"][0]["serial"] = "", ExpectError(j, "$.sensors[0].serial", "1 to 64");
 }
 
+// Tolerances (docs/FORMATS.md section 1, issue 17): each one standard
+// deviation; absent = the common-practice default (model/member.h), 0 =
+// measured precisely; read, written back, and every rule named by its path.
+TEST(MemberJson, TolerancesAreReadDefaultedAndChecked) {
+  json j = Valid();
+  j["length_tolerance_m"] = 0.03;
+  j["section"]["dimension_tolerance_m"] = 0.0;  // measured precisely (calliper)
+  j["material"]["elastic_modulus_tolerance_pa"] = 1.5e10;
+  j["sensors"][1]["position_tolerance_m"] = 0.005;
+  model::Member a, b;
+  const Status s = MemberFromJson(j, &a);
+  ASSERT_TRUE(s.ok()) << s.message;
+  EXPECT_EQ(*a.tolerances.length_m, 0.03);
+  EXPECT_EQ(*a.tolerances.section_dimension_m, 0.0);
+  EXPECT_FALSE(a.tolerances.density_kg_m3.has_value());
+  EXPECT_FALSE(a.sensors[0].position_tolerance_m.has_value());
+  ASSERT_TRUE(MemberFromJson(MemberToJson(a), &b).ok());
+  EXPECT_EQ(MemberToJson(a), MemberToJson(b));
+  EXPECT_FALSE(MemberToJson(a)["material"].contains("density_tolerance_kg_m3"));  // a default is not written
+  // Resolved: declared values as given, the others by the defaults of model/member.h.
+  const auto tol = model::ResolveTolerances(a);
+  ASSERT_EQ(tol.size(), 6u);  // length, diameter, E, density, two sensors
+  EXPECT_EQ(tol[0].key, "length_tolerance_m");
+  EXPECT_EQ(tol[0].std, 0.03);
+  EXPECT_FALSE(tol[0].is_default);
+  EXPECT_EQ(tol[1].std, 0.0);                 // declared 0: measured precisely
+  EXPECT_DOUBLE_EQ(tol[3].std, 0.01 * 7850);  // density default: 1 %
+  EXPECT_TRUE(tol[3].is_default);
+  EXPECT_DOUBLE_EQ(tol[4].std, model::kDefaultPositionTolerance_m);
+  EXPECT_EQ(tol[5].key, "sensors[1].position_tolerance_m");
+  EXPECT_EQ(tol[5].std, 0.005);
+  // Defaults of a bare description: length max(0.01 m, 0.2 % L) = 0.012 m at 6 m.
+  ASSERT_TRUE(MemberFromJson(Valid(), &a).ok());
+  EXPECT_DOUBLE_EQ(model::ResolveTolerances(a)[0].std, 0.012);
+  j = Valid(), j["length_tolerance_m"] = -0.01, ExpectError(j, "$.length_tolerance_m", "must be >= 0");
+  j = Valid(), j["length_tolerance_m"] = 0.7,
+  ExpectError(j, "$.length_tolerance_m", "more than 0.1 of the length");
+  j = Valid(), j["length_tolerance_m"] = "2 cm", ExpectError(j, "$.length_tolerance_m", "must be a number");
+  j = Valid(), j["section"]["dimension_tolerance_m"] = 0.01,
+  ExpectError(j, "$.section.dimension_tolerance_m", "more than 0.1 of the diameter");
+  j = Valid(), j["section"]["area_tolerance_m2"] = 1e-6,
+  ExpectError(j, "$.section.area_tolerance_m2", "unknown key");  // general sections only
+  j = Valid(), j["material"]["density_tolerance_kg_m3"] = -5.0,
+  ExpectError(j, "$.material.density_tolerance_kg_m3", "must be >= 0");
+  j = Valid(), j["material"]["elastic_modulus_tolerance_pa"] = 1e11,
+  ExpectError(j, "$.material.elastic_modulus_tolerance_pa", "more than 0.1");
+  j = Valid(), j["sensors"][0]["position_tolerance_m"] = 1.0,
+  ExpectError(j, "$.sensors[0].position_tolerance_m", "more than 0.1 of the length");
+  j = Valid(),
+  j["section"] = {{"shape", "general"},
+                  {"area_m2", 1e-3},
+                  {"second_moment_m4", 1e-7},
+                  {"second_moment_tolerance_m4", -1e-9}},
+  ExpectError(j, "$.section.second_moment_tolerance_m4", "must be >= 0");
+  // The model's own guard for members built in code.
+  a.tolerances.density_kg_m3 = -1.0;
+  EXPECT_FALSE(model::ValidateMember(a).ok());
+}
+
 TEST(MemberJson, SyntaxErrorNamesLineAndColumn) {
   model::Member m;
   const Status s = ParseMember("{\n  \"length_m\": 6.0,\n  \"section\": [,\n}", &m);

@@ -352,6 +352,13 @@ TEST_F(DashboardUiTest, SignInPortfolioMemberEstimateAlertsAndUploadInHeadlessCh
   EXPECT_EQ(Count("figure[data-chart=shape-1] .layer-measured-shape .pt"), 3);
   EXPECT_NE(Text(".box-notice").find(est["result"]["notice"].get<std::string>()), std::string::npos);
   EXPECT_EQ(Count("#cautions li"), static_cast<int>(est["result"]["cautions"].size()));
+  // Issue 17: the uncertainty budget (one row per source of the result) and
+  // the simplified formulas are shown.
+  ASSERT_TRUE(est["result"].contains("uncertainty_budget"));
+  EXPECT_EQ(Count("#uncertainty-budget tbody tr"),
+            static_cast<int>(est["result"]["uncertainty_budget"]["sources"].size()));
+  EXPECT_NE(Text("#uncertainty-budget").find("member length"), std::string::npos);
+  EXPECT_NE(Text("#simplified-formulas").find("Taut string"), std::string::npos);
   EXPECT_EQ(Count("#download"), 1);
 
   // Alerts: listed with their evidence; the technician acknowledges one.

@@ -32,6 +32,8 @@ export async function render(main, [estimateId], ctx) {
         {label: name, href: `#/members/${est.member_id}`}, {label: `Estimate ${est.id}`}].filter(Boolean),
       `Record measured ${when(est.measured_at)}${est.temperature_c !== null ? ', ' + degC(est.temperature_c) : ''}`),
       section('Result', verdictLine(r), resultFacts(r), h('h3', null, 'Cautions'), h('div', {id: 'cautions'}, cautionList(r.cautions)), noticeBox(r.notice)),
+      section('Where the uncertainty of N comes from', budgetTable(r.uncertainty_budget)),
+      section('Simplified formulas', simplifiedFacts(r.simplified_formulas, r.axial_force_n)),
       section('Spectrum', spectrum.error ? errorBox(spectrum.error, 'The spectrum could not be computed') : spectrumChart(spectrum)),
       section('Frequencies', h('div', {class: 'shapes'}, frequencyChart(r), differenceChart(r)), frequencyTable(r), csvButton(`/v1/estimates/${estimateId}`, `estimate-${estimateId}-modes.csv`)),
       section('Mode shapes', shapes.error ? errorBox(shapes.error, 'The model shapes could not be computed') : shapeCharts(shapes)),
@@ -57,6 +59,41 @@ function resultFacts(r) {
       `${r.fit.starts} starts (${r.fit.starts_at_best} at the best), ${r.fit.iterations} iterations; interval for N: ${r.fit.axial_force_interval || '–'}`] : null,
     r.critical_compression_n ? ['Critical compression', kN(r.critical_compression_n)] : null,
   ]);
+}
+
+// ------------------------------------------- uncertainty budget (issue 17)
+
+// The shares of var(N) by source (docs/FORMATS.md 3.6): which to improve,
+// the record or the member's description (a tolerance marked "default" was
+// not declared: measuring it narrows the interval).
+function budgetTable(b) {
+  if (!b) return h('p', {class: 'muted'}, 'This result was made before the uncertainty budget existed.');
+  const rows = b.sources.map((x) => h('tr', null,
+      h('th', {scope: 'row'}, x.label),
+      h('td', {class: 'num'}, x.tolerance !== undefined ? `${sig(x.tolerance, 3)}${x.default ? ' (default)' : ' (declared)'}` : '–'),
+      h('td', {class: 'num'}, kN(x.std_n, 3)),
+      h('td', {class: 'num'}, `${num(100 * x.share, 1)} %`)));
+  return h('div', null,
+      h('p', null, `Standard deviation of N ${kN(b.axial_force_std_n, 3)}: the fit ${kN(b.fit_std_n, 3)} and the member's tolerances ` +
+        `${kN(b.tolerance_std_n, 3)}, in quadrature (${b.method}).`),
+      h('table', {class: 'compact', id: 'uncertainty-budget'}, h('caption', null, 'Shares of the variance of the axial force'),
+          h('thead', null, h('tr', null, ['Source', 'Tolerance (1 σ)', 'σ of N', 'Share'].map((t) => h('th', {scope: 'col'}, t)))),
+          h('tbody', null, rows)));
+}
+
+// The two spreadsheet formulas for the same modes, labelled as simplified,
+// and why taut's value differs.
+function simplifiedFacts(c, n) {
+  if (!c) return h('p', {class: 'muted'}, 'No simplified formula applies to this result.');
+  const value = (v) => (v === null || v === undefined ? 'not available' : kN(v, 2));
+  return h('div', {id: 'simplified-formulas'},
+      h('p', {class: 'help'}, `${c.label}. taut's estimate: ${n ? kN(n.value, 2) : '–'}.`),
+      dl([
+        ['Taut string from f₁', value(c.taut_string_force_n)],
+        [`Pinned beam from ${c.modes_used} ${c.modes_used === 1 ? 'mode' : 'modes'}`, value(c.pinned_beam_force_n)],
+      ]),
+      c.reasons.length ? h('ul', {class: 'reasons'}, c.reasons.map((t) => h('li', null, t + '.')))
+        : h('p', {class: 'muted'}, 'No effect the formulas leave out exceeds 1 % for this member.'));
 }
 
 // ----------------------------------------------------------- spectrum
