@@ -11,9 +11,11 @@
 // PostgreSQL is bench_service's, run with TAUT_BENCH_POSTGRES=1.
 #include <benchmark/benchmark.h>
 #include <signal.h>
+#include <unistd.h>
 
 #include <chrono>
 #include <filesystem>
+#include <fstream>
 #include <nlohmann/json.hpp>
 #include <thread>
 
@@ -127,6 +129,17 @@ void BM_RecordsIdentifiedPerSecond(benchmark::State& state) {
     const double seconds = std::chrono::duration<double>(std::chrono::steady_clock::now() - t0).count();
     state.SetIterationTime(seconds);
     state.counters["records_per_s"] = kRecords / seconds;
+    // CPU the replicas used (utime + stime, proc(5)) over the wall time:
+    // how many of the machine's cores they kept busy.
+    double cpu_s = 0;
+    for (auto& p : procs) {
+      std::ifstream stat("/proc/" + std::to_string(p->pid()) + "/stat");
+      std::string field;
+      for (int k = 1; k <= 15 && stat >> field; ++k) {
+        if (k == 14 || k == 15) cpu_s += std::stod(field) / static_cast<double>(sysconf(_SC_CLK_TCK));
+      }
+    }
+    state.counters["replica_cores_busy"] = cpu_s / seconds;
     for (auto& p : procs) p->Kill(SIGTERM);
   }
 }

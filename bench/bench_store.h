@@ -187,8 +187,8 @@ struct Store {
                   om + ", 1, " + t +
                   ", 10, 'm/s2', 'ambient', 200, 'a1', 1, 1, 'f32le', '\\x0000803f'::bytea, lpad(to_hex(" +
                   std::to_string(base) + " + i), 64, '0'), lpad(to_hex(" + std::to_string(base) +
-                  " + i), 64, '0'), " + t + " FROM generate_series(0, " + std::to_string(kEstimates - 1) +
-                  ") AS i"),
+                  " + i), 64, '0'), " + t + " FROM generate_series(0::bigint, " +
+                  std::to_string(kEstimates - 1) + ") AS i"),
           "records");
       base += kEstimates;
       Check(db.Exec("INSERT INTO job (organisation_id, record_id, state, progress, created_at_unix_ms) "

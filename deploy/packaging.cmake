@@ -1,14 +1,17 @@
 # Installation layout and the Debian package (CPack):
 #   cmake --build build --target package   ->  build/taut_<version>_<arch>.deb
-# The package holds the executable, the systemd unit and its sysusers.d
+# The package holds the executable, the systemd units (SQLite; PostgreSQL
+# replicas, a template unit) and their sysusers.d
 # entry, the configuration example and the man page; postinst creates the
 # service user and a first /etc/taut/taut.conf (deploy/debian/).
 include(GNUInstallDirs)
 
 install(TARGETS taut RUNTIME DESTINATION ${CMAKE_INSTALL_BINDIR})
-install(FILES ${CMAKE_SOURCE_DIR}/deploy/systemd/taut.service DESTINATION lib/systemd/system)
+install(FILES ${CMAKE_SOURCE_DIR}/deploy/systemd/taut.service ${CMAKE_SOURCE_DIR}/deploy/systemd/taut-postgres@.service
+        DESTINATION lib/systemd/system)
 install(FILES ${CMAKE_SOURCE_DIR}/deploy/systemd/taut.sysusers DESTINATION lib/sysusers.d RENAME taut.conf)
-install(FILES ${CMAKE_SOURCE_DIR}/deploy/taut.conf.example ${CMAKE_SOURCE_DIR}/docs/OPERATIONS.md
+install(FILES ${CMAKE_SOURCE_DIR}/deploy/taut.conf.example ${CMAKE_SOURCE_DIR}/deploy/taut-postgres.conf.example
+              ${CMAKE_SOURCE_DIR}/docs/OPERATIONS.md
         DESTINATION ${CMAKE_INSTALL_DOCDIR})
 install(FILES ${CMAKE_SOURCE_DIR}/deploy/taut.1 DESTINATION ${CMAKE_INSTALL_MANDIR}/man1)
 

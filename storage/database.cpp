@@ -116,8 +116,10 @@ StorageStatus Database::QueryText(const std::string& sql, std::string* value) {
   return s;
 }
 
-StorageStatus Database::Begin() {
-  StorageStatus s = pg_ ? Exec("BEGIN ISOLATION LEVEL SERIALIZABLE") : Exec("BEGIN IMMEDIATE;");
+StorageStatus Database::Begin(bool read_committed) {
+  StorageStatus s = !pg_             ? Exec("BEGIN IMMEDIATE;")
+                    : read_committed ? Exec("BEGIN ISOLATION LEVEL READ COMMITTED")
+                                     : Exec("BEGIN ISOLATION LEVEL SERIALIZABLE");
   in_transaction_ = s.ok();
   return s;
 }

@@ -94,8 +94,12 @@ class Database {
   // ISOLATION LEVEL SERIALIZABLE, so concurrent writers behave as if they
   // ran one after the other, as SQLite's single writer does, and a conflict
   // is busy() (SQLSTATE 40001) to be retried. Rollback is harmless when no
-  // transaction is open.
-  StorageStatus Begin();
+  // transaction is open. read_committed (PostgreSQL only): READ COMMITTED
+  // instead, for the one statement that needs no more (the job claim with
+  // FOR UPDATE SKIP LOCKED, whose row lock is what keeps two workers apart;
+  // as SERIALIZABLE it would conflict with every other claim and
+  // completion, and be retried, for nothing).
+  StorageStatus Begin(bool read_committed = false);
   StorageStatus Commit();
   void Rollback();
   bool in_transaction() const { return in_transaction_; }

@@ -81,9 +81,9 @@ StorageStatus DecodeSamples(std::string_view blob, std::size_t expected_values,
   return {};
 }
 
-StorageStatus Repository::Write(const std::function<StorageStatus()>& body) {
+StorageStatus Repository::Write(const std::function<StorageStatus()>& body, bool read_committed) {
   fault_step_ = 0;
-  return internal::WriteTransaction(db_, body);
+  return internal::WriteTransaction(db_, body, read_committed);
 }
 
 StorageStatus Repository::Fault() {

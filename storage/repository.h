@@ -467,7 +467,7 @@ class Repository {
   void SetFaultHookForTesting(std::function<int(int step)> hook) { fault_hook_ = std::move(hook); }
 
  private:
-  StorageStatus Write(const std::function<StorageStatus()>& body);
+  StorageStatus Write(const std::function<StorageStatus()>& body, bool read_committed = false);
   StorageStatus Fault();  // consults fault_hook_ for the next step
   StorageStatus InsertAlert(Id organisation_id, const NewAlert& alert, std::int64_t now_unix_ms, Id* id);
 

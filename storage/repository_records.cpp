@@ -241,25 +241,27 @@ StorageStatus Repository::ClaimNextJob(std::int64_t now_unix_ms, const JobLease&
     return Misuse("job lease owner must have 1..200 characters and its duration must be > 0 ms");
   }
   static const std::string kSqlite = ClaimSql(false), kPostgres = ClaimSql(true);
-  return Write([&]() -> StorageStatus {
-    *claimed = false;  // again on a retry (statement.h): a rolled-back claim is no claim
-    if (StorageStatus f = Fault(); !f.ok()) return f;
-    Statement s(db_, db_.is_postgres() ? kPostgres : kSqlite);
-    s.Bind(1, now_unix_ms);
-    if (leased) {
-      s.Bind(2, std::string_view(lease.owner)).Bind(3, now_unix_ms + lease.duration_ms);
-    } else {
-      s.BindNull(2).BindNull(3);
-    }
-    const int rc = s.Step();
-    if (rc == SQLITE_DONE) return {};
-    if (rc != SQLITE_ROW) return s.status();
-    Job j = ReadJob(s);
-    if (s.Step() != SQLITE_DONE) return s.status();
-    *out = std::move(j);
-    *claimed = true;
-    return {};
-  });
+  return Write(
+      [&]() -> StorageStatus {
+        *claimed = false;  // again on a retry (statement.h): a rolled-back claim is no claim
+        if (StorageStatus f = Fault(); !f.ok()) return f;
+        Statement s(db_, db_.is_postgres() ? kPostgres : kSqlite);
+        s.Bind(1, now_unix_ms);
+        if (leased) {
+          s.Bind(2, std::string_view(lease.owner)).Bind(3, now_unix_ms + lease.duration_ms);
+        } else {
+          s.BindNull(2).BindNull(3);
+        }
+        const int rc = s.Step();
+        if (rc == SQLITE_DONE) return {};
+        if (rc != SQLITE_ROW) return s.status();
+        Job j = ReadJob(s);
+        if (s.Step() != SQLITE_DONE) return s.status();
+        *out = std::move(j);
+        *claimed = true;
+        return {};
+      },
+      /*read_committed=*/true);  // the SKIP LOCKED row lock keeps claimers apart (Database::Begin)
 }
 
 StorageStatus Repository::RenewJobLease(Id job_id, std::string_view owner, std::int64_t now_unix_ms,

@@ -307,13 +307,14 @@ StorageStatus SqliteWriteTransaction(Database& db, const std::function<StorageSt
   return s;
 }
 
-StorageStatus PgWriteTransaction(Database& db, const std::function<StorageStatus()>& body) {
+StorageStatus PgWriteTransaction(Database& db, const std::function<StorageStatus()>& body,
+                                 bool read_committed) {
   thread_local std::minstd_rand random(static_cast<unsigned>(
       std::hash<std::thread::id>{}(std::this_thread::get_id()) ^
       static_cast<std::size_t>(std::chrono::steady_clock::now().time_since_epoch().count())));
   StorageStatus s;
   for (int attempt = 1; attempt <= kPgMaxWriteAttempts; ++attempt) {
-    s = db.Begin();
+    s = db.Begin(read_committed);
     if (s.ok()) {
       s = body();
       if (s.ok()) s = db.Commit();
@@ -332,8 +333,9 @@ StorageStatus PgWriteTransaction(Database& db, const std::function<StorageStatus
 
 }  // namespace
 
-StorageStatus WriteTransaction(Database& db, const std::function<StorageStatus()>& body) {
-  return db.is_postgres() ? PgWriteTransaction(db, body) : SqliteWriteTransaction(db, body);
+StorageStatus WriteTransaction(Database& db, const std::function<StorageStatus()>& body,
+                               bool read_committed) {
+  return db.is_postgres() ? PgWriteTransaction(db, body, read_committed) : SqliteWriteTransaction(db, body);
 }
 
 }  // namespace taut::storage::internal

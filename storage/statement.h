@@ -109,7 +109,9 @@ class Statement {
 inline constexpr int kMaxWriteAttempts = 3;
 inline constexpr int kPgMaxWriteAttempts = 20;
 
-StorageStatus WriteTransaction(Database& db, const std::function<StorageStatus()>& body);
+// read_committed: see Database::Begin (PostgreSQL only; the same retries).
+StorageStatus WriteTransaction(Database& db, const std::function<StorageStatus()>& body,
+                               bool read_committed = false);
 
 // Reads the single row of `stmt` into `fill`, or NotFound(what).
 template <typename Fill>

@@ -55,11 +55,15 @@ grep -q 'listening on http://127.0.0.1:' "$work/serve.out" || fail "taut serve d
 kill "$server_pid"; wait "$server_pid" || true; server_pid=""
 [ -s "$work/t.db" ] || fail "taut serve did not create its database"
 
-sed "s#/usr/bin/taut#$root/usr/bin/taut#" "$root/usr/lib/systemd/system/taut.service" >"$work/taut.service"
-if ! out=$(systemd-analyze verify --man=no "$work/taut.service" 2>&1) || [ -n "$out" ]; then
-  echo "$out" >&2
-  fail "systemd-analyze verify taut.service"
-fi
+# Both units: SQLite, and an instance of the PostgreSQL replicas' template.
+for unit in taut.service taut-postgres@8081.service; do
+  template=${unit/@8081/@}
+  sed "s#/usr/bin/taut#$root/usr/bin/taut#" "$root/usr/lib/systemd/system/$template" >"$work/$unit"
+  if ! out=$(systemd-analyze verify --man=no "$work/$unit" 2>&1) || [ -n "$out" ]; then
+    echo "$out" >&2
+    fail "systemd-analyze verify $unit"
+  fi
+done
 if ! out=$(groff -man -ww -z "$root/usr/share/man/man1/taut.1" 2>&1) || [ -n "$out" ]; then
   echo "$out" >&2
   fail "groff warnings in taut.1"
