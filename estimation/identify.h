@@ -153,6 +153,11 @@ struct EstimatedMode {
   bool paired = false;
   double model_frequency_hz = 0.0;  // at the estimate (paired modes)
   double mac = 0.0;                 // measured vs model shape at the in-plane channels
+  // Unpaired, and its frequency fits a bending mode of the member's other
+  // plane (cross-axis content of tilted sensors; other_plane.h), of this
+  // order there (0 when not other_plane).
+  bool other_plane = false;
+  int other_plane_order = 0;
 };
 
 // FitSummary::model values (docs/FORMATS.md section 3 `fit.model`).
