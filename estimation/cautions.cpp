@@ -52,6 +52,7 @@ constexpr std::array kCatalogue = {
     // Model updating (estimation/identify.cpp).
     CatalogueEntry{"large-amplitude", kR, "large amplitudes bias the linear model"},
     CatalogueEntry{"other-plane-channels-ignored", kI, "channels of the other plane were not used"},
+    CatalogueEntry{"other-plane-modes", kI, "modes of the other plane were recognised and not used"},
     CatalogueEntry{"mesh-error", kR, "the model mesh is coarse for these modes"},
     CatalogueEntry{"not-identifiable", kR, "the modes cannot separate all unknowns"},
     CatalogueEntry{"force-interval-open", kR, "the force interval is open"},

@@ -19,6 +19,7 @@
 #include "estimation/identify_hypotheses.h"
 #include "estimation/identify_problem.h"
 #include "estimation/identify_uncertainty.h"
+#include "estimation/other_plane.h"
 #include "estimation/refusal.h"
 #include "model/modal.h"
 
@@ -705,6 +706,9 @@ Status IdentifyWithPrior(const model::Member& member, const ModalIdentification&
   est.fit.axial_force_interval = n_method;
   est.fit.bending_stiffness_interval = ei_method;
 
+  est.fit.forward_model_calls = ctx.calls;
+  MarkOtherPlaneModes(member, &est);
+  ctx.calls = est.fit.forward_model_calls;
   AppendFitCautions(member, ctx.free_axial, &est);
 
   est.fit.forward_model_calls = ctx.calls;

@@ -44,8 +44,8 @@
 // Sequence: order search and pinned-beam regression (pairing.h) -> pairing
 // at a Newton-corrected mid-fixity start -> mesh chosen so its frequency
 // error is below 0.1 std -> Levenberg-Marquardt from every start (the
-// first one and a grid of fixities) -> re-pairing at the best -> covariance,
-// identifiability, profile -> cautions.
+// first one and a grid of fixities; in compression also a grid over N / P_cr) -> re-pairing at the best ->
+// covariance, identifiability, profile -> cautions.
 #pragma once
 
 #include <limits>
@@ -115,7 +115,8 @@ struct IdentifyOptions {
   double max_mesh_error_sigma = 0.1;
   // Ceres limits per start.
   int max_iterations = 60;
-  // Fixity grid for the extra starts (values for each elastic end).
+  // Fixity grid for the extra starts (values for each elastic end; with
+  // two elastic ends both take the same value: identify_hypotheses.h).
   std::vector<double> start_fixities = {0.2, 0.8};
   PairingOptions pairing;
   // Compute the profile-likelihood interval of N (a few extra fits).
@@ -155,6 +156,11 @@ struct EstimatedMode {
   bool paired = false;
   double model_frequency_hz = 0.0;  // at the estimate (paired modes)
   double mac = 0.0;                 // measured vs model shape at the in-plane channels
+  // Unpaired, and its frequency fits a bending mode of the member's other
+  // plane (cross-axis content of tilted sensors; other_plane.h), of this
+  // order there (0 when not other_plane).
+  bool other_plane = false;
+  int other_plane_order = 0;
 };
 
 // FitSummary::model values (docs/FORMATS.md section 3 `fit.model`).

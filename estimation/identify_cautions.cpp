@@ -54,7 +54,7 @@ void AppendFitCautions(const model::Member& member, bool axial_support_free, Est
                                                  " plane: mode shapes cannot confirm the mode orders."});
   }
   for (size_t i = 0; i < est.modes.size(); ++i) {
-    if (est.modes[i].paired) continue;
+    if (est.modes[i].paired || est.modes[i].other_plane) continue;  // other-plane modes: other_plane.h
     est.cautions.push_back({"unpaired-mode", "The mode at " +
                                                  FormatNumber(est.modes[i].measured.frequency_hz) +
                                                  " Hz pairs with no bending mode of the member model and was "

@@ -30,9 +30,9 @@ Status IdentifyWithPrior(const model::Member& member, const ModalIdentification&
                          const IdentifyOptions& options, Estimate* estimate,
                          const std::vector<int>* forced_orders = nullptr, OrderHypothesis* search = nullptr);
 
-// The starts of the fit after the first (the pairing point): a grid over
-// the fixities of the elastic ends (options.start_fixities) at the
-// regression start `x_reg`.
+// The starts of the fit after the first (the pairing point): the fixities
+// of the elastic ends on options.start_fixities at the regression start
+// `x_reg` (both ends elastic: the same value at both, the grid's diagonal).
 std::vector<Unknowns> GridStarts(const FitContext& ctx, const Unknowns& x_reg,
                                  const IdentifyOptions& options);
 

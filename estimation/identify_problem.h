@@ -179,8 +179,10 @@ struct FitOutcome {
 };
 
 // Adds the residual block on x and sets bounds and held blocks (x0 held
-// when hold_force).
-void BuildProblem(const FitContext& ctx, Unknowns& x, bool hold_force, ceres::Problem* problem);
+// when hold_force). Numeric derivatives by central differences, or forward
+// ones when `forward` (profile points; identify_problem.cpp MakeCost).
+void BuildProblem(const FitContext& ctx, Unknowns& x, bool hold_force, ceres::Problem* problem,
+                  bool forward = false);
 
 // Cost 1/2 |r|^2 at x (infinity when the model cannot be evaluated).
 double CostAt(const FitContext& ctx, const Unknowns& x);

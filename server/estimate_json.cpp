@@ -25,6 +25,14 @@ nlohmann::json Shape(const estimation::Estimate& e, const estimation::Identified
   return shape;
 }
 
+// "plane" of a mode (issue 12, docs/FORMATS.md 3.2): "declared" (paired in
+// the plane analysed), "other" (fits a mode of the other plane: cross-axis
+// content) or "unexplained".
+const char* ModePlane(const estimation::EstimatedMode& m) {
+  if (m.paired) return "declared";
+  return m.other_plane ? "other" : "unexplained";
+}
+
 // Keys of "fit" added by issue 12 (docs/FORMATS.md 3.3): how the EI
 // interval was formed.
 void AddIntervalMethods(const estimation::Estimate& e, nlohmann::json* fit) {
@@ -98,12 +106,14 @@ nlohmann::json EstimateToJson(const estimation::Estimate& e) {
                             {"damping_ratio", Number(id.damping_ratio)},
                             {"shape", Shape(e, id)},
                             {"model_frequency_hz", Number(m.model_frequency_hz)},
-                            {"mac", Number(m.mac)}});
+                            {"mac", Number(m.mac)},
+                            {"plane", ModePlane(m)}});
     } else {
       j["unpaired_modes"].push_back({{"frequency_hz", Number(id.frequency_hz)},
                                      {"frequency_std_hz", Number(id.frequency_std_hz)},
                                      {"damping_ratio", Number(id.damping_ratio)},
-                                     {"shape", Shape(e, id)}});
+                                     {"shape", Shape(e, id)},
+                                     {"plane", ModePlane(m)}});
     }
   }
   j["fit"] = {{"model", e.fit.model},

@@ -12,7 +12,9 @@
 // "axial_support" ({"ratio": quantity of rho = k_ax / (EA/L) in [0, 1],
 // fixed unless estimated (estimation/identify.h), "stiffness_n_per_m": the
 // support stiffness at that ratio, null for rigid supports}), "plane",
-// "identifiability", "critical_compression_n", "unpaired_modes" (measured
+// "identifiability", "critical_compression_n", "plane" on every mode
+// ("declared", "other": fits the other plane's modes, or "unexplained"),
+// "unpaired_modes" (measured
 // modes that pair with no model mode; no order, no model values), and in
 // "fit": "starts_at_best", "forward_model_calls", "elements",
 // "degrees_of_freedom", "axial_force_interval" ("wald" or "profile": which

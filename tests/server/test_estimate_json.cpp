@@ -96,6 +96,9 @@ TEST(EstimateJson, FollowsFormatsSection3) {
   EXPECT_EQ(m["shape"], nlohmann::json({{"a1", 0.71}, {"a2", 1.0}, {"a3", 0.70}}));
   ASSERT_EQ(j["unpaired_modes"].size(), 1u);
   EXPECT_FALSE(j["unpaired_modes"][0].contains("order"));
+  // Which plane each mode belongs to (issue 12, FORMATS.md 3.2).
+  EXPECT_EQ(m["plane"], "declared");
+  EXPECT_EQ(j["unpaired_modes"][0]["plane"], "unexplained");
   // Fit.
   EXPECT_EQ(j["fit"]["model"], "modal");
   EXPECT_EQ(j["fit"]["converged"], true);
