@@ -362,6 +362,8 @@ void ApplyToleranceTerms(const model::Member& member, const ToleranceTerms& term
   b.sources = std::move(src);
   if (!terms.ok) b.method = "none: " + terms.reason;
 
+  b.repeatable_force_std_n = e->axial_force_n.std;
+  b.repeatable_bending_stiffness_std_nm2 = e->bending_stiffness_nm2.std;
   Widen(&e->axial_force_n, std::sqrt(var_n));
   WidenLog(&e->bending_stiffness_nm2, std::sqrt(var_ei));
   for (auto [q, v] : {std::pair{&e->fixity_left, var_rl}, std::pair{&e->fixity_right, var_rr}}) {
@@ -371,6 +373,12 @@ void ApplyToleranceTerms(const model::Member& member, const ToleranceTerms& term
   }
   e->uncertainty_budget = std::move(b);
   e->simplified = Simplified(member, *e);
+}
+
+double RepeatableStd(const Estimate& e, bool force) {
+  if (!e.uncertainty_budget) return force ? e.axial_force_n.std : e.bending_stiffness_nm2.std;
+  return force ? e.uncertainty_budget->repeatable_force_std_n
+               : e.uncertainty_budget->repeatable_bending_stiffness_std_nm2;
 }
 
 }  // namespace taut::estimation

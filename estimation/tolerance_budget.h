@@ -93,4 +93,14 @@ ToleranceTerms ComputeToleranceTerms(const model::Member& member, const Identify
 // and the budget holds the fit's sources only.
 void ApplyToleranceTerms(const model::Member& member, const ToleranceTerms& terms, Estimate* estimate);
 
+// The one-sigma of N (force = true) or of EI of `estimate` without the
+// member tolerances: the fit's part, which varies from one record of a
+// member to the next. The tolerances' error is shared by every estimate
+// made with one member description (a length read 1 % long reads every
+// force about 2 % high), so rules that compare a member's estimates with
+// each other (the drift residual and CUSUM rules, estimation/drift.h) weigh
+// this std; intervals compared with absolute limits keep the whole.
+// Without a budget: the quantity's std.
+double RepeatableStd(const Estimate& estimate, bool force);
+
 }  // namespace taut::estimation

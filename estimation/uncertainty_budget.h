@@ -39,6 +39,11 @@ struct UncertaintyBudget {
   double axial_force_std_n = 0.0;  // sqrt(fit^2 + tolerances^2): the reported std of N
   double fit_std_n = 0.0;          // from the reported fit interval (before the tolerances)
   double tolerance_std_n = 0.0;    // all member tolerances together
+  // The std of N [N] and of EI [N m^2] as the fit reported them, before the
+  // tolerances were added: the part that varies from record to record of
+  // one member description (tolerance_budget.h RepeatableStd).
+  double repeatable_force_std_n = 0.0;
+  double repeatable_bending_stiffness_std_nm2 = 0.0;
   // "linearised": sensitivities by the implicit-function theorem at the
   // modal optimum (tolerance_budget.h); the transient path uses those of
   // its modal estimate.
