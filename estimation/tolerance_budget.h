@@ -44,7 +44,8 @@
 // EI prior, fixity range; scaled by the reduced chi-square when above 1),
 // the part of the reported interval beyond the linear one (order
 // hypotheses and the time-domain fit's modal floor: model choice; a profile
-// interval: nonlinearity), and each tolerance.
+// interval: nonlinearity; a Wald interval wider than the split, as where the
+// data leave a fixity open: fit_unsplit), and each tolerance.
 #pragma once
 
 #include <string>

@@ -20,6 +20,8 @@ inline constexpr const char* kBudgetStiffnessPrior = "stiffness_prior";  // the 
 inline constexpr const char* kBudgetFixityRange = "fixity_range";        // fixities the data leave open
 inline constexpr const char* kBudgetModelChoice = "model_choice";   // order hypotheses, model-error floor
 inline constexpr const char* kBudgetNonlinearity = "nonlinearity";  // profile interval beyond the linear one
+inline constexpr const char* kBudgetFit = "fit";                    // the fit, when the split failed
+inline constexpr const char* kBudgetFitUnsplit = "fit_unsplit";  // rest of a Wald interval the split misses
 
 struct BudgetSource {
   // kBudget* above, or the key of a member tolerance (docs/FORMATS.md
@@ -33,6 +35,7 @@ struct BudgetSource {
   // whether it was the default of common practice (not declared).
   std::optional<double> tolerance;
   bool default_tolerance = false;
+  std::string tolerance_unit;  // of `tolerance`: "m", "m^2", "m^4", "Pa", "kg/m3"
 };
 
 struct UncertaintyBudget {
