@@ -38,8 +38,8 @@ if [ "${TAUT_SKIP_SANITIZE:-0}" != "1" ]; then
     ctest --test-dir build-asan --output-on-failure -j"$JOBS" --timeout 1800 -LE 'slow-under-sanitizers'
 fi
 
-# libFuzzer (clang): the member reader, the JSON record reader, the router and
-# the CSV reader, each for TAUT_FUZZ_SECONDS (default 20) from its committed
+# libFuzzer (clang): the member reader, the supplied-modes reader, the JSON
+# record reader, the router and the CSV reader, each for TAUT_FUZZ_SECONDS (default 20) from its committed
 # seed corpus (fuzz/corpus/<target>, copied: new inputs do not dirty the
 # clone). A crash, a leak, a timeout (10 s per input) or a 2 GB input
 # fails the run. TAUT_SKIP_FUZZ=1 skips it.
@@ -47,8 +47,8 @@ if [ "${TAUT_SKIP_FUZZ:-0}" != "1" ]; then
   cmake -S . -B build-fuzz -G Ninja -DCMAKE_BUILD_TYPE=RelWithDebInfo -DCMAKE_CXX_COMPILER=clang++ \
     -DCMAKE_CXX_FLAGS_RELWITHDEBINFO="-O1 -g1 -DNDEBUG" \
     -DTAUT_FUZZ=ON -DTAUT_BUILD_TESTS=OFF -DTAUT_BUILD_BENCH=OFF
-  cmake --build build-fuzz -j"$JOBS" --target fuzz_member fuzz_record_json fuzz_router fuzz_csv
-  for target in member record_json router csv; do
+  cmake --build build-fuzz -j"$JOBS" --target fuzz_member fuzz_modes fuzz_record_json fuzz_router fuzz_csv
+  for target in member modes record_json router csv; do
     corpus="$(mktemp -d)"
     cp fuzz/corpus/"$target"/* "$corpus"/
     build-fuzz/fuzz/fuzz_"$target" -max_total_time="${TAUT_FUZZ_SECONDS:-20}" -timeout=10 \

@@ -137,6 +137,31 @@ std::string InputLabel(const model::Member& member, const model::ResolvedToleran
   return t.key;
 }
 
+// A budget source of the fit (no tolerance).
+BudgetSource FitSource(const char* code, const std::string& label, double std_n) {
+  BudgetSource b;
+  b.source = code;
+  b.label = label;
+  b.std_n = std_n;
+  return b;
+}
+
+std::string InputUnit(const model::ResolvedTolerance& t) {
+  using Kind = model::ResolvedTolerance::Kind;
+  switch (t.kind) {
+    case Kind::kArea:
+      return "m^2";
+    case Kind::kSecondMoment:
+      return "m^4";
+    case Kind::kElasticModulus:
+      return "Pa";
+    case Kind::kDensity:
+      return "kg/m3";
+    default:
+      return "m";
+  }
+}
+
 // Widens a 95 % interval [lo, hi] around v by a one-sigma term s in
 // quadrature on each side.
 void Widen(EstimatedQuantity* q, double s) {
@@ -332,7 +357,7 @@ void ApplyToleranceTerms(const model::Member& member, const ToleranceTerms& term
   if (terms.ok && var_lin > 0.0) {
     const double scale = std::min(1.0, var_fit / var_lin);
     const auto add = [&](const char* code, const char* label, double v) {
-      if (v > 0.0) src.push_back({code, label, std::sqrt(scale * v), 0.0, std::nullopt, false});
+      if (v > 0.0) src.push_back(FitSource(code, label, std::sqrt(scale * v)));
     };
     add(kBudgetFrequencies, "measured frequencies", terms.var_n_frequencies);
     add(kBudgetModeShapes, "measured mode shapes", terms.var_n_shapes);
@@ -340,21 +365,31 @@ void ApplyToleranceTerms(const model::Member& member, const ToleranceTerms& term
     add(kBudgetFixityRange, "end fixity the data leave open", terms.var_n_fixity_range);
     const double extra = var_fit - scale * var_lin;
     if (extra > 1e-6 * var_fit) {
+      // The reported interval holds more than the linear split: by design
+      // for two numberings or the time-domain floor (model choice) and a
+      // profile-likelihood interval (nonlinearity); for a Wald interval the
+      // fit's own covariance is wider than the split (it treats a fixity
+      // the data leave open its own way, identify.cpp), said as such.
       const std::string& kind = e->fit.axial_force_interval;
-      const bool choice = kind == "hypotheses" || kind == "modal-floor";
-      src.push_back(
-          {choice ? kBudgetModelChoice : kBudgetNonlinearity,
-           choice ? "model choice (" + kind + ")" : "interval beyond the linearised fit (" + kind + ")",
-           std::sqrt(extra), 0.0, std::nullopt, false});
+      if (kind == "hypotheses" || kind == "modal-floor") {
+        src.push_back(FitSource(kBudgetModelChoice, "model choice (" + kind + ")", std::sqrt(extra)));
+      } else if (kind == "profile") {
+        src.push_back(FitSource(kBudgetNonlinearity, "profile-likelihood interval beyond the linearised one",
+                                std::sqrt(extra)));
+      } else {
+        src.push_back(FitSource(kBudgetFitUnsplit, "rest of the fit's interval, not split by source",
+                                std::sqrt(extra)));
+      }
     }
   } else if (var_fit > 0.0) {
-    src.push_back(
-        {"fit", "the fit (not split: " + (terms.ok ? std::string("no linear variance") : terms.reason) + ")",
-         b.fit_std_n, 0.0, std::nullopt, false});
+    src.push_back(FitSource(
+        kBudgetFit,
+        "the fit (not split: " + (terms.ok ? std::string("no linear variance") : terms.reason) + ")",
+        b.fit_std_n));
   }
   for (const InputSensitivity& is : terms.inputs) {
     src.push_back({is.input.key, InputLabel(member, is.input), std::abs(is.d_axial_force) * is.input.std, 0.0,
-                   is.input.std, is.input.is_default});
+                   is.input.std, is.input.is_default, InputUnit(is.input)});
   }
   const double total = var_fit + var_n;
   for (auto& x : src) x.share = total > 0.0 ? x.std_n * x.std_n / total : 0.0;
@@ -362,6 +397,8 @@ void ApplyToleranceTerms(const model::Member& member, const ToleranceTerms& term
   b.sources = std::move(src);
   if (!terms.ok) b.method = "none: " + terms.reason;
 
+  b.repeatable_force_std_n = e->axial_force_n.std;
+  b.repeatable_bending_stiffness_std_nm2 = e->bending_stiffness_nm2.std;
   Widen(&e->axial_force_n, std::sqrt(var_n));
   WidenLog(&e->bending_stiffness_nm2, std::sqrt(var_ei));
   for (auto [q, v] : {std::pair{&e->fixity_left, var_rl}, std::pair{&e->fixity_right, var_rr}}) {
@@ -371,6 +408,12 @@ void ApplyToleranceTerms(const model::Member& member, const ToleranceTerms& term
   }
   e->uncertainty_budget = std::move(b);
   e->simplified = Simplified(member, *e);
+}
+
+double RepeatableStd(const Estimate& e, bool force) {
+  if (!e.uncertainty_budget) return force ? e.axial_force_n.std : e.bending_stiffness_nm2.std;
+  return force ? e.uncertainty_budget->repeatable_force_std_n
+               : e.uncertainty_budget->repeatable_bending_stiffness_std_nm2;
 }
 
 }  // namespace taut::estimation

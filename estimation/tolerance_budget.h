@@ -44,7 +44,8 @@
 // EI prior, fixity range; scaled by the reduced chi-square when above 1),
 // the part of the reported interval beyond the linear one (order
 // hypotheses and the time-domain fit's modal floor: model choice; a profile
-// interval: nonlinearity), and each tolerance.
+// interval: nonlinearity; a Wald interval wider than the split, as where the
+// data leave a fixity open: fit_unsplit), and each tolerance.
 #pragma once
 
 #include <string>
@@ -92,5 +93,15 @@ ToleranceTerms ComputeToleranceTerms(const model::Member& member, const Identify
 // simplified_formulas.h). Without ok terms the intervals stay as they are
 // and the budget holds the fit's sources only.
 void ApplyToleranceTerms(const model::Member& member, const ToleranceTerms& terms, Estimate* estimate);
+
+// The one-sigma of N (force = true) or of EI of `estimate` without the
+// member tolerances: the fit's part, which varies from one record of a
+// member to the next. The tolerances' error is shared by every estimate
+// made with one member description (a length read 1 % long reads every
+// force about 2 % high), so rules that compare a member's estimates with
+// each other (the drift residual and CUSUM rules, estimation/drift.h) weigh
+// this std; intervals compared with absolute limits keep the whole.
+// Without a budget: the quantity's std.
+double RepeatableStd(const Estimate& estimate, bool force);
 
 }  // namespace taut::estimation

@@ -20,6 +20,8 @@ inline constexpr const char* kBudgetStiffnessPrior = "stiffness_prior";  // the 
 inline constexpr const char* kBudgetFixityRange = "fixity_range";        // fixities the data leave open
 inline constexpr const char* kBudgetModelChoice = "model_choice";   // order hypotheses, model-error floor
 inline constexpr const char* kBudgetNonlinearity = "nonlinearity";  // profile interval beyond the linear one
+inline constexpr const char* kBudgetFit = "fit";                    // the fit, when the split failed
+inline constexpr const char* kBudgetFitUnsplit = "fit_unsplit";  // rest of a Wald interval the split misses
 
 struct BudgetSource {
   // kBudget* above, or the key of a member tolerance (docs/FORMATS.md
@@ -33,12 +35,18 @@ struct BudgetSource {
   // whether it was the default of common practice (not declared).
   std::optional<double> tolerance;
   bool default_tolerance = false;
+  std::string tolerance_unit;  // of `tolerance`: "m", "m^2", "m^4", "Pa", "kg/m3"
 };
 
 struct UncertaintyBudget {
   double axial_force_std_n = 0.0;  // sqrt(fit^2 + tolerances^2): the reported std of N
   double fit_std_n = 0.0;          // from the reported fit interval (before the tolerances)
   double tolerance_std_n = 0.0;    // all member tolerances together
+  // The std of N [N] and of EI [N m^2] as the fit reported them, before the
+  // tolerances were added: the part that varies from record to record of
+  // one member description (tolerance_budget.h RepeatableStd).
+  double repeatable_force_std_n = 0.0;
+  double repeatable_bending_stiffness_std_nm2 = 0.0;
   // "linearised": sensitivities by the implicit-function theorem at the
   // modal optimum (tolerance_budget.h); the transient path uses those of
   // its modal estimate.

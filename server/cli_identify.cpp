@@ -96,7 +96,8 @@ void PrintBudget(std::ostream& out, const estimation::UncertaintyBudget& b) {
     }
     std::string name = x.label;
     if (x.tolerance)
-      name += std::string(x.default_tolerance ? " (default " : " (declared ") + Sig(*x.tolerance, 3) + ")";
+      name += std::string(x.default_tolerance ? " (default " : " (declared ") + Sig(*x.tolerance, 3) + " " +
+              x.tolerance_unit + ")";
     out << "  " << std::left << std::setw(44) << name << std::right << std::setw(10)
         << Fixed(x.std_n / 1000.0, 3) << std::setw(6) << Fixed(100.0 * x.share, 1) << " %\n";
   }

@@ -48,6 +48,7 @@ nlohmann::json BudgetToJson(const estimation::UncertaintyBudget& b) {
     if (x.tolerance) {
       j["tolerance"] = Number(*x.tolerance);
       j["default"] = x.default_tolerance;
+      j["tolerance_unit"] = x.tolerance_unit;
     }
     sources.push_back(j);
   }

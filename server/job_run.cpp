@@ -4,6 +4,7 @@
 #include <chrono>
 
 #include "estimation/identify_record.h"
+#include "estimation/tolerance_budget.h"
 #include "server/estimate_json.h"
 #include "server/hashing.h"
 #include "server/iso_time.h"
@@ -96,12 +97,14 @@ std::string RunIdentification(storage::Repository& repo, const storage::Job& job
   storage::NewEstimate ne;
   ne.record_id = stored.id;
   ne.axial_force_n = estimate.axial_force_n.value;
-  ne.force_std_n = estimate.axial_force_n.std;
+  // The repeatable std (without the member tolerances, which every estimate
+  // of the member shares): what the drift rules weigh (tolerance_budget.h).
+  ne.force_std_n = estimation::RepeatableStd(estimate, true);
   ne.force_ci95_low_n = std::min(estimate.axial_force_n.ci95_low, ne.axial_force_n);
   ne.force_ci95_high_n = std::max(estimate.axial_force_n.ci95_high, ne.axial_force_n);
   ne.bending_stiffness_nm2 = estimate.bending_stiffness_nm2.value;
   if (!estimate.bending_stiffness_nm2.fixed)
-    ne.bending_stiffness_std_nm2 = estimate.bending_stiffness_nm2.std;
+    ne.bending_stiffness_std_nm2 = estimation::RepeatableStd(estimate, false);
   ne.result_json = EstimateToJson(estimate).dump();
   if (StorageStatus s = repo.CompleteJobWithEstimate(job.id, ne, NowUnixMs(), estimate_id, job.lease_owner);
       !s.ok()) {

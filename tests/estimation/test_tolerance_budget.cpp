@@ -245,6 +245,10 @@ TEST(ToleranceBudget, BudgetSharesSumToOneAndNameTheDominantInput) {
   EXPECT_FALSE(b.sources.front().default_tolerance);
   EXPECT_NEAR(b.axial_force_std_n, std::hypot(b.fit_std_n, b.tolerance_std_n), 1e-9 * b.axial_force_std_n);
   EXPECT_NEAR(e.axial_force_n.std, b.axial_force_std_n, 0.05 * b.axial_force_std_n);
+  // The repeatable std (drift rules) leaves the shared tolerances out: here
+  // it is the fit's alone, well below the whole.
+  EXPECT_NEAR(RepeatableStd(e, true), b.fit_std_n, 0.05 * b.fit_std_n);
+  EXPECT_LT(RepeatableStd(e, true), 0.5 * e.axial_force_n.std);
   // [B] squared: f_n^2 / n^2 = N / (4 m L^2) + n^2 pi^2 EI / (4 m L^4), a
   // line in n^2 whose intercept the four measured frequencies fix; with EI
   // free (four modes determine it) N = 4 m L^2 a, so dN/dL = 2 N / L and the

@@ -111,7 +111,7 @@ TEST_F(CliIdentify, TableShowsTheUncertaintyBudgetAndTheSimplifiedFormulas) {
   std::string out, err;
   ASSERT_EQ(Run({"identify", "--member", member_path_, "--record", record}, &out, &err), 0) << err;
   EXPECT_NE(out.find("uncertainty of the axial force"), std::string::npos) << out;
-  EXPECT_NE(out.find("density (default 78)"), std::string::npos) << out;  // 1 % of 7800 kg/m3
+  EXPECT_NE(out.find("density (default 78 kg/m3)"), std::string::npos) << out;  // 1 % of 7800 kg/m3
   EXPECT_NE(out.find("measured frequencies"), std::string::npos) << out;
   EXPECT_NE(out.find("simplified formulas (for comparison only): taut string from f1"), std::string::npos)
       << out;

@@ -53,8 +53,8 @@ TEST(EstimateJson, BudgetAndSimplifiedFormulasFollowSection36) {
   b.axial_force_std_n = 250.0;
   b.fit_std_n = 210.0;
   b.tolerance_std_n = 135.6;
-  b.sources = {{"frequencies", "measured frequencies", 210.0, 0.7056, std::nullopt, false},
-               {"length_tolerance_m", "member length", 135.6, 0.2944, 0.012, true}};
+  b.sources = {{"frequencies", "measured frequencies", 210.0, 0.7056, std::nullopt, false, ""},
+               {"length_tolerance_m", "member length", 135.6, 0.2944, 0.012, true, "m"}};
   e.uncertainty_budget = b;
   estimation::SimplifiedComparison c;
   c.taut_string_force_n = 31000.0;
@@ -68,6 +68,7 @@ TEST(EstimateJson, BudgetAndSimplifiedFormulasFollowSection36) {
   EXPECT_FALSE(j["uncertainty_budget"]["sources"][0].contains("tolerance"));
   EXPECT_EQ(j["uncertainty_budget"]["sources"][1]["tolerance"], 0.012);
   EXPECT_EQ(j["uncertainty_budget"]["sources"][1]["default"], true);
+  EXPECT_EQ(j["uncertainty_budget"]["sources"][1]["tolerance_unit"], "m");
   EXPECT_EQ(j["simplified_formulas"]["taut_string_force_n"], 31000.0);
   EXPECT_TRUE(j["simplified_formulas"]["pinned_beam_force_n"].is_null());
   EXPECT_NE(j["simplified_formulas"]["label"].get<std::string>().find("simplified"), std::string::npos);

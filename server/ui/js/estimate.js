@@ -70,7 +70,7 @@ function budgetTable(b) {
   if (!b) return h('p', {class: 'muted'}, 'This result was made before the uncertainty budget existed.');
   const rows = b.sources.map((x) => h('tr', null,
       h('th', {scope: 'row'}, x.label),
-      h('td', {class: 'num'}, x.tolerance !== undefined ? `${sig(x.tolerance, 3)}${x.default ? ' (default)' : ' (declared)'}` : '–'),
+      h('td', {class: 'num'}, x.tolerance !== undefined ? `${sig(x.tolerance, 3)} ${x.tolerance_unit || ''}${x.default ? ' (default)' : ' (declared)'}` : '–'),
       h('td', {class: 'num'}, kN(x.std_n, 3)),
       h('td', {class: 'num'}, `${num(100 * x.share, 1)} %`)));
   return h('div', null,
