@@ -77,12 +77,8 @@ StorageStatus Logbook::Get(Id organisation_id, Id entry_id, LogEntry* out) {
   Statement s(db_,
               std::string("SELECT ") + kColumns + " FROM member_log WHERE id = ?1 AND organisation_id = ?2");
   s.Bind(1, entry_id).Bind(2, organisation_id);
-  const int rc = s.Step();
-  if (rc == SQLITE_DONE)
-    return StorageStatus::NotFound("log entry " + std::to_string(entry_id) + " not found");
-  if (rc != SQLITE_ROW) return s.status();
-  *out = Read(s);
-  return {};
+  return internal::ReadOne(s, "log entry " + std::to_string(entry_id),
+                           [&](const Statement& row) { *out = Read(row); });
 }
 
 StorageStatus Logbook::List(Id organisation_id, Id member_id, std::int64_t from_unix_ms,
@@ -92,15 +88,7 @@ StorageStatus Logbook::List(Id organisation_id, Id member_id, std::int64_t from_
                        "occurred_at_unix_ms >= ?3 AND occurred_at_unix_ms < ?4 "
                        "ORDER BY occurred_at_unix_ms, id");
   s.Bind(1, organisation_id).Bind(2, member_id).Bind(3, from_unix_ms).Bind(4, to_unix_ms);
-  std::vector<LogEntry> rows;
-  for (;;) {
-    const int rc = s.Step();
-    if (rc == SQLITE_DONE) break;
-    if (rc != SQLITE_ROW) return s.status();
-    rows.push_back(Read(s));
-  }
-  *out = std::move(rows);
-  return {};
+  return internal::ReadAll(s, out, Read);
 }
 
 StorageStatus Logbook::Delete(Id organisation_id, Id entry_id) {

@@ -34,8 +34,9 @@ dpkg-deb --ctrl-tarfile "$deb" | tar -t | grep -qx './postinst' || fail "no post
 
 root="$work/root"
 dpkg -x "$deb" "$root"
-for f in usr/bin/taut usr/lib/systemd/system/taut.service usr/lib/sysusers.d/taut.conf \
-         usr/share/doc/taut/taut.conf.example usr/share/doc/taut/OPERATIONS.md usr/share/man/man1/taut.1; do
+for f in usr/bin/taut usr/lib/systemd/system/taut.service usr/lib/systemd/system/taut-postgres@.service \
+         usr/lib/sysusers.d/taut.conf usr/share/doc/taut/taut.conf.example \
+         usr/share/doc/taut/taut-postgres.conf.example usr/share/doc/taut/OPERATIONS.md usr/share/man/man1/taut.1; do
   [ -e "$root/$f" ] || fail "the package lacks /$f"
 done
 

@@ -31,6 +31,7 @@
 #include "storage/migrations.h"
 #include "storage/repository.h"
 #include "synthetic_record.h"
+#include "tests/storage/backend_fixture.h"
 
 // After Eigen (synthetic_record.h): <resolv.h> defines _res.
 #include <httplib.h>
@@ -66,7 +67,9 @@ std::string SyntheticCsv(const std::string& dir, unsigned seed, double duration_
   return ReadFile(path);
 }
 
-class HttpApiTest : public ::testing::Test {
+// Every test runs on both storage backends (tests/storage/backend_fixture.h):
+// the service on an SQLite file and on a PostgreSQL database.
+class HttpApiTest : public ::testing::TestWithParam<storage::testing::Backend> {
  protected:
   void SetUp() override {
     dir_ = std::filesystem::temp_directory_path() /
@@ -74,7 +77,9 @@ class HttpApiTest : public ::testing::Test {
             ::testing::UnitTest::GetInstance()->current_test_info()->name());
     std::filesystem::remove_all(dir_);
     std::filesystem::create_directories(dir_);
-    db_path_ = (dir_ / "taut.db").string();
+    db_path_ = GetParam() == storage::testing::Backend::kSqlite ? (dir_ / "taut.db").string()
+                                                                : storage::testing::FreshPostgresDatabase();
+    ASSERT_FALSE(db_path_.empty());
     StartServer(64u << 20);
     storage::Database db;
     ASSERT_TRUE(storage::OpenAndMigrate(db, db_path_).ok());
@@ -133,8 +138,9 @@ class HttpApiTest : public ::testing::Test {
   std::string member_text_;
   std::int64_t structure_id_ = 0;
 };
+TAUT_BOTH_BACKENDS(HttpApiTest);
 
-TEST_F(HttpApiTest, HealthNeedsNoTokenAndReportsTheSchema) {
+TEST_P(HttpApiTest, HealthNeedsNoTokenAndReportsTheSchema) {
   auto r = Client("").Get("/v1/health");
   ASSERT_TRUE(r);
   EXPECT_EQ(r->status, 200);
@@ -143,7 +149,7 @@ TEST_F(HttpApiTest, HealthNeedsNoTokenAndReportsTheSchema) {
   EXPECT_EQ(j["schema_version"].get<int>(), storage::LatestSchemaVersion());
 }
 
-TEST_F(HttpApiTest, MissingMalformedOrWrongTokensAre401WithTheErrorBody) {
+TEST_P(HttpApiTest, MissingMalformedOrWrongTokensAre401WithTheErrorBody) {
   auto none = Client("").Get("/v1/structures");
   EXPECT_EQ(none->status, 401);
   EXPECT_EQ(json::parse(none->body)["error"]["code"], "unauthorized");
@@ -155,7 +161,7 @@ TEST_F(HttpApiTest, MissingMalformedOrWrongTokensAre401WithTheErrorBody) {
   EXPECT_EQ(Client(admin_a_).Get("/v1/structures")->status, 200);
 }
 
-TEST_F(HttpApiTest, RolesAreEnforcedReadBelowUploadBelowAdmin) {
+TEST_P(HttpApiTest, RolesAreEnforcedReadBelowUploadBelowAdmin) {
   const auto member = CreateMember();
   const std::string csv = SyntheticCsv(dir_.string(), 1);
   const std::string path = "/v1/members/" + std::to_string(member) + "/records";
@@ -167,7 +173,7 @@ TEST_F(HttpApiTest, RolesAreEnforcedReadBelowUploadBelowAdmin) {
   EXPECT_EQ(Client(read_a_).Get("/v1/members/" + std::to_string(member))->status, 200);
 }
 
-TEST_F(HttpApiTest, AnotherOrganisationsIdsAre404NotForbidden) {
+TEST_P(HttpApiTest, AnotherOrganisationsIdsAre404NotForbidden) {
   const auto member = CreateMember();
   auto up = Client(upload_a_).Post("/v1/members/" + std::to_string(member) + "/records",
                                    SyntheticCsv(dir_.string(), 2), "text/csv");
@@ -193,7 +199,7 @@ TEST_F(HttpApiTest, AnotherOrganisationsIdsAre404NotForbidden) {
   EXPECT_EQ(json::parse(b.Get("/v1/structures")->body)["structures"].size(), 0u);
 }
 
-TEST_F(HttpApiTest, UnknownRoutes404WrongMethods405WithAllow) {
+TEST_P(HttpApiTest, UnknownRoutes404WrongMethods405WithAllow) {
   auto c = Client(admin_a_);
   EXPECT_EQ(c.Get("/v1/nothing-here")->status, 404);
   auto r = c.Put("/v1/structures", "{}", "application/json");
@@ -203,7 +209,7 @@ TEST_F(HttpApiTest, UnknownRoutes404WrongMethods405WithAllow) {
   EXPECT_NE(r->get_header_value("Allow").find("GET"), std::string::npos);
 }
 
-TEST_F(HttpApiTest, OversizedBodiesAre413) {
+TEST_P(HttpApiTest, OversizedBodiesAre413) {
   StartServer(1u << 20);  // 1 MiB
   const auto member = CreateMember();
   const std::string big(2u << 20, 'x');
@@ -213,7 +219,7 @@ TEST_F(HttpApiTest, OversizedBodiesAre413) {
   EXPECT_EQ(json::parse(r->body)["error"]["code"], "payload-too-large");
 }
 
-TEST_F(HttpApiTest, MembersAreVersionedAndSoftDeleted) {
+TEST_P(HttpApiTest, MembersAreVersionedAndSoftDeleted) {
   const auto member = CreateMember();
   const std::string path = "/v1/members/" + std::to_string(member);
   auto c = Client(admin_a_);
@@ -236,7 +242,7 @@ TEST_F(HttpApiTest, MembersAreVersionedAndSoftDeleted) {
   EXPECT_EQ(c.Get(path + "/versions/2")->status, 200);  // history stays readable
 }
 
-TEST_F(HttpApiTest, SuppliedModesAreIdentifiedSynchronouslyAndNotStored) {
+TEST_P(HttpApiTest, SuppliedModesAreIdentifiedSynchronouslyAndNotStored) {
   // Issue 17, docs/API.md "Modes measured elsewhere": the example tie's
   // modes 1-3 at 35 kN with fixities 0.5 from the forward model on a fine
   // mesh (the route's plumbing is under test here; the estimation against
@@ -276,7 +282,7 @@ TEST_F(HttpApiTest, SuppliedModesAreIdentifiedSynchronouslyAndNotStored) {
   EXPECT_NE(res->body.find("$.modes[1].frequency_std_hz"), std::string::npos) << res->body;
 }
 
-TEST_F(HttpApiTest, UploadIsIdempotentAndTheStoredSamplesRoundTrip) {
+TEST_P(HttpApiTest, UploadIsIdempotentAndTheStoredSamplesRoundTrip) {
   const auto member = CreateMember();
   const std::string path = "/v1/members/" + std::to_string(member) + "/records";
   const std::string csv = SyntheticCsv(dir_.string(), 4);
@@ -337,7 +343,7 @@ TEST_F(HttpApiTest, UploadIsIdempotentAndTheStoredSamplesRoundTrip) {
   EXPECT_LT(worst, 1e-6);
 }
 
-TEST_F(HttpApiTest, EveryReaderErrorIsA4xxWithItsMessage) {
+TEST_P(HttpApiTest, EveryReaderErrorIsA4xxWithItsMessage) {
   const auto member = CreateMember();
   const std::string path = "/v1/members/" + std::to_string(member) + "/records";
   auto c = Client(upload_a_);
@@ -369,7 +375,7 @@ TEST_F(HttpApiTest, EveryReaderErrorIsA4xxWithItsMessage) {
   EXPECT_EQ(queued_.load(), 0);
 }
 
-TEST_F(HttpApiTest, JsonUploadsFollowTheSameRules) {
+TEST_P(HttpApiTest, JsonUploadsFollowTheSameRules) {
   const auto member = CreateMember();
   const std::string path = "/v1/members/" + std::to_string(member) + "/records";
   json body = {{"recorded_at", "2026-11-21T08:00:00Z"},
@@ -393,7 +399,7 @@ TEST_F(HttpApiTest, JsonUploadsFollowTheSameRules) {
   EXPECT_NE(r->body.find("$.samples[5]"), std::string::npos) << r->body;
 }
 
-TEST_F(HttpApiTest, ConcurrentUploadsLoseNothingAndDuplicateNothing) {
+TEST_P(HttpApiTest, ConcurrentUploadsLoseNothingAndDuplicateNothing) {
   const auto member = CreateMember();
   const std::string path = "/v1/members/" + std::to_string(member) + "/records";
   // 8 threads x 3 distinct records, each sent twice (a gateway retry).
@@ -429,7 +435,7 @@ TEST_F(HttpApiTest, ConcurrentUploadsLoseNothingAndDuplicateNothing) {
 // The read side: estimates stored by the worker's repository calls come
 // back unchanged through force, history (ordered by record time, not by
 // upload order), portfolio (force ratio = force / design force) and alerts.
-TEST_F(HttpApiTest, ForceHistoryPortfolioAndAlerts) {
+TEST_P(HttpApiTest, ForceHistoryPortfolioAndAlerts) {
   const auto member = CreateMember();
   const std::string path = "/v1/members/" + std::to_string(member) + "/records";
   auto c = Client(upload_a_);
@@ -563,7 +569,7 @@ std::vector<std::string> CsvLines(const std::string& body) {
   return lines;
 }
 
-TEST_F(HttpApiTest, CsvExportsCarryUnitsInTheColumnNamesAndFollowRfc4180) {
+TEST_P(HttpApiTest, CsvExportsCarryUnitsInTheColumnNamesAndFollowRfc4180) {
   const auto member = CreateMember();
   auto up = Client(upload_a_);
   const std::string m = std::to_string(member);
@@ -643,7 +649,7 @@ TEST_F(HttpApiTest, CsvExportsCarryUnitsInTheColumnNamesAndFollowRfc4180) {
   EXPECT_EQ(Client("").Get("/v1/alerts?format=csv")->status, 401);
 }
 
-TEST_F(HttpApiTest, TriageListsEveryMemberWorstFirstAndUnusableEstimatesGiveNoRatio) {
+TEST_P(HttpApiTest, TriageListsEveryMemberWorstFirstAndUnusableEstimatesGiveNoRatio) {
   const auto m1 = CreateMember();
   auto admin = Client(admin_a_);
   // A second structure with two members (the example description under other ids).
@@ -693,7 +699,7 @@ TEST_F(HttpApiTest, TriageListsEveryMemberWorstFirstAndUnusableEstimatesGiveNoRa
   EXPECT_EQ(json::parse(Client(admin_b_).Get("/v1/triage")->body)["members"].size(), 0u);
 }
 
-TEST_F(HttpApiTest, LogbookEntriesFollowRolesAndScopingAndCanRestartTheBaseline) {
+TEST_P(HttpApiTest, LogbookEntriesFollowRolesAndScopingAndCanRestartTheBaseline) {
   const auto member = CreateMember();
   const std::string m = std::to_string(member);
   const std::string path = "/v1/members/" + m + "/logbook";
@@ -745,7 +751,7 @@ TEST_F(HttpApiTest, LogbookEntriesFollowRolesAndScopingAndCanRestartTheBaseline)
   EXPECT_EQ(json::parse(r.Get(path)->body)["entries"].size(), 0u);
 }
 
-TEST_F(HttpApiTest, InspectionReportIsOneSelfContainedHtmlDocumentScopedToTheOrganisation) {
+TEST_P(HttpApiTest, InspectionReportIsOneSelfContainedHtmlDocumentScopedToTheOrganisation) {
   const auto member = CreateMember();
   auto up = Client(upload_a_);
   StoreEstimate(db_path_, up, member, "2026-11-20T06:00:00Z", 29000, "reduced-confidence",
@@ -792,7 +798,7 @@ TEST(IsoTime, RoundTripsAppliesOffsetsAndRefusesImpossibleTimes) {
 // Issue 13 item 1: a body nested 100,000 levels deep killed the process by
 // stack overflow (the error path printed the value recursively). Now it is
 // refused before a value is built, and values echoed in errors are bounded.
-TEST_F(HttpApiTest, DeeplyNestedJsonIsRefusedAndEchoedValuesAreBounded) {
+TEST_P(HttpApiTest, DeeplyNestedJsonIsRefusedAndEchoedValuesAreBounded) {
   CreateMember();
   const std::string deep = std::string(100000, '[') + std::string(100000, ']');
   auto c = Client(admin_a_);
@@ -824,7 +830,7 @@ TEST_F(HttpApiTest, DeeplyNestedJsonIsRefusedAndEchoedValuesAreBounded) {
 }
 
 // The same file through `taut identify --member` exited 139 (SIGSEGV).
-TEST_F(HttpApiTest, DeeplyNestedMemberFileIsAnErrorOfTheCli) {
+TEST_P(HttpApiTest, DeeplyNestedMemberFileIsAnErrorOfTheCli) {
   const std::string path = (dir_ / "deep.json").string();
   {
     std::ofstream out(path);
@@ -845,7 +851,7 @@ TEST_F(HttpApiTest, DeeplyNestedMemberFileIsAnErrorOfTheCli) {
 
 // Issue 13 item 3: the token is checked before any body byte is read, and a
 // chunked body is refused as it streams past --max-body.
-TEST_F(HttpApiTest, TokenIsCheckedBeforeTheBodyAndChunkedBodiesStopAtMaxBody) {
+TEST_P(HttpApiTest, TokenIsCheckedBeforeTheBodyAndChunkedBodiesStopAtMaxBody) {
   StartServer(1u << 20);  // 1 MiB
   const auto member = CreateMember();
   const std::string path = "/v1/members/" + std::to_string(member) + "/records";
@@ -893,7 +899,7 @@ TEST_F(HttpApiTest, TokenIsCheckedBeforeTheBodyAndChunkedBodiesStopAtMaxBody) {
 
 // Issue 13 item 2: a client sending a header byte now and then is cut off
 // at the header deadline and counted.
-TEST_F(HttpApiTest, SlowHeadersAreCutAtTheHeaderDeadline) {
+TEST_P(HttpApiTest, SlowHeadersAreCutAtTheHeaderDeadline) {
   StartServer(1u << 20, [](ServeOptions& o) { o.header_deadline_s = 1; });
   const int fd = taut::testing::ConnectFrom("127.0.0.1", server_->port());
   ASSERT_GE(fd, 0);
@@ -919,7 +925,7 @@ TEST_F(HttpApiTest, SlowHeadersAreCutAtTheHeaderDeadline) {
 
 // Issue 13 item 11: control characters in a logged path are escaped, and a
 // request the router never sees is logged and counted.
-TEST_F(HttpApiTest, LoggedPathsAreEscapedAndUnroutedRequestsCounted) {
+TEST_P(HttpApiTest, LoggedPathsAreEscapedAndUnroutedRequestsCounted) {
   std::ostringstream log;
   StartServer(1u << 20, [&](ServeOptions& o) { o.access_log = &log; });
   int fd = taut::testing::ConnectFrom("127.0.0.1", server_->port());
@@ -943,7 +949,7 @@ TEST_F(HttpApiTest, LoggedPathsAreEscapedAndUnroutedRequestsCounted) {
 // Issue 13 item 7: the same body with other overrides is another record,
 // not a duplicate that silently drops them; the same key with other
 // metadata is a conflict.
-TEST_F(HttpApiTest, ReuploadWithOtherOverridesIsANewRecordAndTheSameKeyWithThemIs409) {
+TEST_P(HttpApiTest, ReuploadWithOtherOverridesIsANewRecordAndTheSameKeyWithThemIs409) {
   const auto member = CreateMember();
   const std::string path = "/v1/members/" + std::to_string(member) + "/records";
   const std::string csv = SyntheticCsv(dir_.string(), 21);
@@ -968,7 +974,7 @@ TEST_F(HttpApiTest, ReuploadWithOtherOverridesIsANewRecordAndTheSameKeyWithThemI
 
 // Issue 13 item 8 (JSON path): values binary32 storage cannot hold, and
 // recorded_at outside 1900 .. now + 15 min, are refused with their place.
-TEST_F(HttpApiTest, SampleValuesAndRecordTimesOutOfRangeAre422) {
+TEST_P(HttpApiTest, SampleValuesAndRecordTimesOutOfRangeAre422) {
   const auto member = CreateMember();
   const std::string path = "/v1/members/" + std::to_string(member) + "/records";
   json body = {
@@ -1003,7 +1009,7 @@ TEST_F(HttpApiTest, SampleValuesAndRecordTimesOutOfRangeAre422) {
 
 // Issue 13 item 9: client mistakes are 422 naming the JSON path, not 500
 // or 409; member descriptions that describe no monitorable member are 422.
-TEST_F(HttpApiTest, ClientMistakesAre422NamingTheJsonPath) {
+TEST_P(HttpApiTest, ClientMistakesAre422NamingTheJsonPath) {
   auto c = Client(admin_a_);
   auto expect = [&](const httplib::Result& r, int status, const std::string& path) {
     ASSERT_TRUE(r);
@@ -1054,7 +1060,7 @@ TEST_F(HttpApiTest, ClientMistakesAre422NamingTheJsonPath) {
 }
 
 // Issue 13 item 6: webhooks may not point into the service's own network.
-TEST_F(HttpApiTest, WebhooksToNonPublicAddressesAreRefused) {
+TEST_P(HttpApiTest, WebhooksToNonPublicAddressesAreRefused) {
   auto c = Client(admin_a_);
   for (const char* url : {"http://127.0.0.1:22/", "http://0.0.0.0:8080/", "http://2130706433:80/",
                           "http://[::1]/", "http://169.254.169.254/latest/meta-data/", "http://10.1.2.3/",
@@ -1079,7 +1085,7 @@ TEST_F(HttpApiTest, WebhooksToNonPublicAddressesAreRefused) {
 }
 
 // Issue 13 item 10: an admin lists and revokes the organisation's tokens.
-TEST_F(HttpApiTest, TokensAreListedAndRevokedByAnAdmin) {
+TEST_P(HttpApiTest, TokensAreListedAndRevokedByAnAdmin) {
   auto c = Client(admin_a_);
   EXPECT_EQ(Client(read_a_).Get("/v1/tokens")->status, 403);
   const json list = json::parse(c.Get("/v1/tokens")->body)["tokens"];

@@ -43,6 +43,7 @@
 #include "storage/repository.h"
 #include "tests/server/hanger_record.h"
 #include "tests/server/serve_process.h"
+#include "tests/storage/backend_fixture.h"
 
 // After Eigen: <resolv.h> (pulled in by httplib) defines _res.
 #include <httplib.h>
@@ -56,7 +57,9 @@ using namespace std::chrono_literals;
 using taut::testing::Hanger;
 using taut::testing::HangerCsv;
 
-class ServiceTest : public ::testing::Test {
+// Every test runs on both storage backends (tests/storage/backend_fixture.h):
+// `taut serve --db` an SQLite file, and a PostgreSQL URI.
+class ServiceTest : public ::testing::TestWithParam<storage::testing::Backend> {
  protected:
   void SetUp() override {
     dir_ = std::filesystem::temp_directory_path() /
@@ -64,7 +67,9 @@ class ServiceTest : public ::testing::Test {
             ::testing::UnitTest::GetInstance()->current_test_info()->name());
     std::filesystem::remove_all(dir_);
     std::filesystem::create_directories(dir_);
-    db_ = (dir_ / "taut.db").string();
+    db_ = GetParam() == storage::testing::Backend::kSqlite ? (dir_ / "taut.db").string()
+                                                           : storage::testing::FreshPostgresDatabase();
+    ASSERT_FALSE(db_.empty());
     storage::Database db;
     ASSERT_TRUE(storage::OpenAndMigrate(db, db_).ok());
     storage::Repository repo(db);
@@ -80,7 +85,11 @@ class ServiceTest : public ::testing::Test {
   void StartServe(int workers) {
     // The webhook receivers of these tests listen on loopback, which taut
     // refuses unless allowed (webhook_policy.h).
-    port_ = serve_.Start(db_, (dir_ / "serve.log").string(), workers, {"--webhook-allow", "127.0.0.0/8"});
+    // On PostgreSQL a restarted service does not requeue running jobs
+    // (other replicas may own them): a short lease brings the job of a
+    // killed process back within seconds.
+    port_ = serve_.Start(db_, (dir_ / "serve.log").string(), workers,
+                         {"--webhook-allow", "127.0.0.0/8", "--job-lease", "2"});
     ASSERT_GT(port_, 0) << "taut serve did not report a port; see " << (dir_ / "serve.log");
   }
   httplib::Client Client() const {
@@ -129,8 +138,9 @@ class ServiceTest : public ::testing::Test {
   int port_ = 0;
   Hanger hanger_;
 };
+TAUT_BOTH_BACKENDS(ServiceTest);
 
-TEST_F(ServiceTest, UploadJobEstimateForceQueryReturnsTheTruthWithinItsInterval) {
+TEST_P(ServiceTest, UploadJobEstimateForceQueryReturnsTheTruthWithinItsInterval) {
   StartServe(2);
   const auto member = CreateHanger();
   // Uploaded out of time order; N differs per record so that the latest is
@@ -171,7 +181,7 @@ TEST_F(ServiceTest, UploadJobEstimateForceQueryReturnsTheTruthWithinItsInterval)
 // stored, its job fails with the estimation's reason, and the service's
 // metrics (Prometheus text exposition format) count the outcome, the jobs
 // by state and the requests per route.
-TEST_F(ServiceTest, UnidentifiableRecordFailsItsJobWithTheReasonAndMetricsCountIt) {
+TEST_P(ServiceTest, UnidentifiableRecordFailsItsJobWithTheReasonAndMetricsCountIt) {
   StartServe(1);
   const auto member = CreateHanger();
   std::mt19937_64 rng(5);
@@ -200,7 +210,7 @@ TEST_F(ServiceTest, UnidentifiableRecordFailsItsJobWithTheReasonAndMetricsCountI
       << metrics;
 }
 
-TEST_F(ServiceTest, SigkillWithQueuedAndRunningJobsLosesNothing) {
+TEST_P(ServiceTest, SigkillWithQueuedAndRunningJobsLosesNothing) {
   StartServe(1);
   const auto member = CreateHanger();
   struct Sent {
@@ -277,7 +287,7 @@ TEST_F(ServiceTest, SigkillWithQueuedAndRunningJobsLosesNothing) {
 // by 10 % after day 20: the drift rules (estimation/drift.h) raise an alert
 // within 3 estimates of the loss and none before; the webhook receiver
 // gets it, signed with HMAC-SHA256 of the body (RFC 2104).
-TEST_F(ServiceTest, ForceLossRaisesAnAlertWithinThreeEstimatesAndTheWebhookGetsIt) {
+TEST_P(ServiceTest, ForceLossRaisesAnAlertWithinThreeEstimatesAndTheWebhookGetsIt) {
   // Webhook receiver on loopback.
   httplib::Server receiver;
   std::mutex mu;
@@ -371,7 +381,7 @@ TEST_F(ServiceTest, ForceLossRaisesAnAlertWithinThreeEstimatesAndTheWebhookGetsI
 
 // SIGTERM while a job runs: the service finishes the running job (or
 // leaves it queued) and exits 0; no job is left "running" in the file.
-TEST_F(ServiceTest, SigtermFinishesRunningJobsAndExitsCleanly) {
+TEST_P(ServiceTest, SigtermFinishesRunningJobsAndExitsCleanly) {
   StartServe(1);
   const auto member = CreateHanger();
   std::vector<std::string> csvs;  // made first, so that the uploads come quickly
