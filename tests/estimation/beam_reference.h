@@ -35,9 +35,9 @@ struct Family {
   int seed = 3;
   std::vector<double> sensor_share = {0.2, 0.45, 0.7};
   std::string fault;  // "fault" object of the simulator, "" = none
-  // Cross-axis keys of the simulator ("cross_axis_deg", "ei_other_nm2",
-  // "k_other" as JSON members), "" = none.
-  std::string cross_axis;
+  // More members of the simulator's parameter object (e.g. the cross-axis
+  // keys "cross_axis_deg", "ei_other_nm2", "k_other", or "impact"), "" = none.
+  std::string extra_json;
 };
 
 inline double Ei(const Family& f) {
@@ -81,7 +81,7 @@ inline std::string Params(const Family& f) {
      << ",\"fs\":" << Num(f.fs) << ",\"duration_s\":" << Num(f.duration_s) << ",\"modes\":16"
      << ",\"mode_gain_db\":" << f.gains << ",\"seed\":" << f.seed;
   if (!f.fault.empty()) os << ",\"fault\":" << f.fault;
-  if (!f.cross_axis.empty()) os << "," << f.cross_axis;
+  if (!f.extra_json.empty()) os << "," << f.extra_json;
   os << ",\"sensor_x_m\":[";
   for (size_t i = 0; i < f.sensor_share.size(); ++i)
     os << (i ? "," : "") << Num(f.sensor_share[i] * f.length_m);
