@@ -401,7 +401,14 @@ void ApplyToleranceTerms(const model::Member& member, const ToleranceTerms& term
   for (auto& x : src) x.share = total > 0.0 ? x.std_n * x.std_n / total : 0.0;
   std::stable_sort(src.begin(), src.end(), [](const auto& a, const auto& c) { return a.share > c.share; });
   b.sources = std::move(src);
-  if (!terms.ok) b.method = "none: " + terms.reason;
+  if (!terms.ok) {
+    b.method = "none: " + terms.reason;
+    e->cautions.push_back(
+        {"tolerances-not-propagated",
+         "The member's tolerances could not be propagated (" + terms.reason +
+             "): the intervals hold the fit's uncertainty only, not that of the length, section, "
+             "material and sensor positions."});
+  }
 
   b.repeatable_force_std_n = e->axial_force_n.std;
   b.repeatable_bending_stiffness_std_nm2 = e->bending_stiffness_nm2.std;
