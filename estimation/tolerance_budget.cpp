@@ -380,8 +380,8 @@ void ApplyToleranceTerms(const model::Member& member, const ToleranceTerms& term
       if (kind == "hypotheses" || kind == "modal-floor") {
         src.push_back(FitSource(kBudgetModelChoice, "model choice (" + kind + ")", std::sqrt(extra)));
       } else if (kind == "profile") {
-        src.push_back(FitSource(kBudgetNonlinearity, "profile-likelihood interval beyond the linearised one",
-                                std::sqrt(extra)));
+        src.push_back(
+            FitSource(kBudgetNonlinearity, "profile interval beyond the linear one", std::sqrt(extra)));
       } else {
         src.push_back(FitSource(kBudgetFitUnsplit, "rest of the fit's interval, not split by source",
                                 std::sqrt(extra)));
