@@ -181,4 +181,46 @@ void BM_IdentifyFromRecord(benchmark::State& state) {
 }
 BENCHMARK(BM_IdentifyFromRecord)->Arg(5)->Arg(10)->Unit(benchmark::kMillisecond);
 
+// Issue 17: what the tolerance terms and the budget add to the record path
+// above: the modal estimate of the same record (state.range(0) modes) is
+// made once, then each iteration runs ComputeToleranceTerms and
+// ApplyToleranceTerms on a copy, as IdentifyRecord does after its fit.
+// Compare its median with BM_IdentifyFromRecord's in one run.
+void BM_ToleranceTermsOnRecord(benchmark::State& state) {
+  const auto member = BenchMember();
+  taut::model::ModalParameters p;
+  p.axial_force_n = 30000.0;
+  p.fixity_left = 0.4;
+  p.fixity_right = 0.6;
+  taut::testing::RecordSpec spec;
+  spec.duration_s = 300.0;
+  spec.sample_rate_hz = 512.0;
+  spec.modes = static_cast<int>(state.range(0));
+  const std::string path = (std::filesystem::temp_directory_path() / "taut-bench-tolerances.csv").string();
+  taut::estimation::RecordReadOptions ro;
+  ro.member = &member;
+  taut::estimation::Record record;
+  taut::estimation::ModalIdentification modes;
+  taut::estimation::Estimate modal;
+  const taut::estimation::IdentifyRecordOptions io;
+  if (!taut::testing::WriteSyntheticRecord(path, member, Direction::kVertical, p, spec) ||
+      !taut::estimation::ReadRecordCsv(path, ro, &record).ok() ||
+      !taut::estimation::IdentifyModes(record, io.modal, &modes).ok() ||
+      !taut::estimation::IdentifyFromModes(member, modes, io.identify, &modal).ok()) {
+    state.SkipWithError("cannot make the modal estimate of the record");
+    return;
+  }
+  std::remove(path.c_str());
+  int solves = 0;
+  for (auto _ : state) {
+    taut::estimation::Estimate e = modal;
+    const auto terms = taut::estimation::ComputeToleranceTerms(member, io.identify, e);
+    taut::estimation::ApplyToleranceTerms(member, terms, &e);
+    solves = terms.model_solves;
+    benchmark::DoNotOptimize(e);
+  }
+  state.counters["budget_solves"] = solves;
+}
+BENCHMARK(BM_ToleranceTermsOnRecord)->Arg(10)->Unit(benchmark::kMillisecond);
+
 }  // namespace

@@ -36,6 +36,8 @@ constexpr std::array kCatalogue = {
     CatalogueEntry{"time-jitter", kI, "the time stamps jitter around a uniform step"},
     // Modes supplied by the engineer instead of a record (estimation/supplied_modes.cpp).
     CatalogueEntry{"modes-supplied", kI, "the modes were supplied, not identified from a record"},
+    // Member tolerances (estimation/tolerance_budget.cpp).
+    CatalogueEntry{"tolerances-not-propagated", kR, "the member's tolerances are not in the intervals"},
     // Modal identification (estimation/modal_id.cpp).
     CatalogueEntry{"rate-too-low", kI, "the band top was lowered below Nyquist"},
     CatalogueEntry{"no-mode", kU, "no mode was found in the record"},

@@ -71,6 +71,7 @@ Status IdentifySuppliedModes(const model::Member& member, const SuppliedModes& s
   e.verdict = MakeVerdict(e.cautions);
   if (e.verdict.code != "unusable") {
     ApplyToleranceTerms(fit_member, ComputeToleranceTerms(fit_member, options, e), &e);
+    e.verdict = MakeVerdict(e.cautions);
   }
   if (!shapes) {
     // The stand-in is no sensor of the member: no channel, no shape, no budget line.

@@ -189,7 +189,6 @@ void WidenLog(EstimatedQuantity* q, double s) {
 }
 
 std::optional<SimplifiedComparison> Simplified(const model::Member& member, const Estimate& e) {
-  if (!(e.axial_force_n.value > 0.0)) return std::nullopt;  // the formulas are for tension
   std::vector<std::pair<int, double>> of;
   for (const auto& m : e.modes) {
     if (!m.paired || !m.measured.order) continue;
@@ -308,14 +307,21 @@ ToleranceTerms ComputeToleranceTerms(const model::Member& member, const Identify
         kInputStep *
         (in.kind == model::ResolvedTolerance::Kind::kSensorPosition ? member.length_m : in.nominal);
     Eigen::VectorXd rp, rm;
-    const model::ModalModel up(model::PerturbMember(member, in, h), s.plane, {s.elements});
-    const model::ModalModel down(model::PerturbMember(member, in, -h), s.plane, {s.elements});
+    // Central differences; one-sided where a step would leave the model's
+    // preconditions (a sensor within a step of an end), none where both would.
+    const model::Member plus = model::PerturbMember(member, in, h),
+                        minus = model::PerturbMember(member, in, -h);
+    const bool plus_ok = model::ValidateMember(plus).ok(), minus_ok = model::ValidateMember(minus).ok();
+    if (!plus_ok && !minus_ok) continue;
+    const model::ModalModel up(plus_ok ? plus : member, s.plane, {s.elements});
+    const model::ModalModel down(minus_ok ? minus : member, s.plane, {s.elements});
+    const double step = (plus_ok ? h : 0.0) + (minus_ok ? h : 0.0);
     if (!Residuals(s, up, theta, &rp, nullptr, &t.model_solves) ||
         !Residuals(s, down, theta, &rm, nullptr, &t.model_solves) || rp.size() != rows || rm.size() != rows) {
       t.reason = "the model fails with " + in.key + " moved";
       return t;
     }
-    const Eigen::VectorXd dr = (rp - rm) / (2.0 * h);
+    const Eigen::VectorXd dr = (rp - rm) / step;
     const Eigen::VectorXd dtheta = -cov * (jac.transpose() * dr);
     InputSensitivity is;
     is.input = in;
@@ -374,8 +380,8 @@ void ApplyToleranceTerms(const model::Member& member, const ToleranceTerms& term
       if (kind == "hypotheses" || kind == "modal-floor") {
         src.push_back(FitSource(kBudgetModelChoice, "model choice (" + kind + ")", std::sqrt(extra)));
       } else if (kind == "profile") {
-        src.push_back(FitSource(kBudgetNonlinearity, "profile-likelihood interval beyond the linearised one",
-                                std::sqrt(extra)));
+        src.push_back(
+            FitSource(kBudgetNonlinearity, "profile interval beyond the linear one", std::sqrt(extra)));
       } else {
         src.push_back(FitSource(kBudgetFitUnsplit, "rest of the fit's interval, not split by source",
                                 std::sqrt(extra)));
@@ -395,7 +401,14 @@ void ApplyToleranceTerms(const model::Member& member, const ToleranceTerms& term
   for (auto& x : src) x.share = total > 0.0 ? x.std_n * x.std_n / total : 0.0;
   std::stable_sort(src.begin(), src.end(), [](const auto& a, const auto& c) { return a.share > c.share; });
   b.sources = std::move(src);
-  if (!terms.ok) b.method = "none: " + terms.reason;
+  if (!terms.ok) {
+    b.method = "none: " + terms.reason;
+    e->cautions.push_back(
+        {"tolerances-not-propagated",
+         "The member's tolerances could not be propagated (" + terms.reason +
+             "): the intervals hold the fit's uncertainty only, not that of the length, section, "
+             "material and sensor positions."});
+  }
 
   b.repeatable_force_std_n = e->axial_force_n.std;
   b.repeatable_bending_stiffness_std_nm2 = e->bending_stiffness_nm2.std;

@@ -90,8 +90,10 @@ ToleranceTerms ComputeToleranceTerms(const model::Member& member, const Identify
 // Widens the intervals of N, EI and the fixities of `estimate` (modal or
 // time-domain) by `terms` in quadrature and sets estimate->uncertainty_budget
 // and estimate->simplified (the simplified formulas beside the estimate,
-// simplified_formulas.h). Without ok terms the intervals stay as they are
-// and the budget holds the fit's sources only.
+// simplified_formulas.h). Without ok terms the intervals stay as they are,
+// the budget holds the fit's sources only and the caution
+// "tolerances-not-propagated" (reduced-confidence) says so; the caller
+// sets the verdict afterwards (cautions.h MakeVerdict).
 void ApplyToleranceTerms(const model::Member& member, const ToleranceTerms& terms, Estimate* estimate);
 
 // The one-sigma of N (force = true) or of EI of `estimate` without the

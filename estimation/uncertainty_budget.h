@@ -39,9 +39,11 @@ struct BudgetSource {
 };
 
 struct UncertaintyBudget {
-  double axial_force_std_n = 0.0;  // sqrt(fit^2 + tolerances^2): the reported std of N
-  double fit_std_n = 0.0;          // from the reported fit interval (before the tolerances)
-  double tolerance_std_n = 0.0;    // all member tolerances together
+  // sqrt(fit^2 + tolerances^2) = the larger half-width of the reported 95 %
+  // interval of N / 1.96 (the quantity's std for a symmetric interval).
+  double axial_force_std_n = 0.0;
+  double fit_std_n = 0.0;        // the same of the fit's interval (before the tolerances)
+  double tolerance_std_n = 0.0;  // all member tolerances together
   // The std of N [N] and of EI [N m^2] as the fit reported them, before the
   // tolerances were added: the part that varies from record to record of
   // one member description (tolerance_budget.h RepeatableStd).

@@ -80,9 +80,9 @@ constexpr double kBudgetTableMinShare = 0.005;
 // The uncertainty budget of N as a short table (issue 17; docs/FORMATS.md
 // section 3 uncertainty_budget).
 void PrintBudget(std::ostream& out, const estimation::UncertaintyBudget& b) {
-  out << "\n  uncertainty of the axial force: std " << Fixed(b.axial_force_std_n / 1000.0, 3) << " kN (fit "
-      << Fixed(b.fit_std_n / 1000.0, 3) << ", member tolerances " << Fixed(b.tolerance_std_n / 1000.0, 3)
-      << ")\n";
+  out << "\n  uncertainty of the axial force: 95 % half-width / 1.96 = "
+      << Fixed(b.axial_force_std_n / 1000.0, 3) << " kN (fit " << Fixed(b.fit_std_n / 1000.0, 3)
+      << ", member tolerances " << Fixed(b.tolerance_std_n / 1000.0, 3) << ")\n";
   out << "  " << std::left << std::setw(44) << "source" << std::right << std::setw(10) << "std_kN"
       << std::setw(8) << "share"
       << "\n";
@@ -278,8 +278,9 @@ int RunIdentifyModes(const IdentifyCliOptions& o, const model::Member& member, s
 
 void RegisterIdentifyCommand(CLI::App& app, CliContext* ctx) {
   auto o = std::make_shared<IdentifyCliOptions>();
-  CLI::App* cmd = app.add_subcommand(
-      "identify", "Axial force, bending stiffness and end fixity of a member from an acceleration record");
+  CLI::App* cmd = app.add_subcommand("identify",
+                                     "Axial force, bending stiffness and end fixity of a member from an "
+                                     "acceleration record (or supplied modes)");
   cmd->add_option("--member", o->member_path, "member description (JSON, docs/FORMATS.md section 1)")
       ->required()
       ->check(CLI::ExistingFile);

@@ -264,6 +264,28 @@ TEST(ToleranceBudget, BudgetSharesSumToOneAndNameTheDominantInput) {
   EXPECT_EQ(e.verdict.code, "usable");
 }
 
+TEST(ToleranceBudget, TermsThatFailLeaveTheIntervalAndSaySo) {
+  // An estimate without a paired mode has no residuals to differentiate:
+  // the interval stays the fit's, the budget holds the fit alone, and the
+  // caution tolerances-not-propagated (reduced-confidence) says so.
+  const model::Member m = Bar(6.0, 0.030, Direction::kLateral, {0.5}, RotationEnd::Kind::kPinned, 0.0);
+  Estimate e;
+  e.axial_force_n = {30e3, 500.0, 29e3, 31e3, false, true};
+  const ToleranceTerms t = ComputeToleranceTerms(m, {}, e);
+  EXPECT_FALSE(t.ok);
+  EXPECT_EQ(t.reason, "no paired mode");
+  ApplyToleranceTerms(m, t, &e);
+  EXPECT_EQ(e.axial_force_n.ci95_low, 29e3);
+  EXPECT_EQ(e.axial_force_n.ci95_high, 31e3);
+  ASSERT_TRUE(e.uncertainty_budget.has_value());
+  EXPECT_EQ(e.uncertainty_budget->method, "none: no paired mode");
+  ASSERT_EQ(e.uncertainty_budget->sources.size(), 1u);
+  EXPECT_EQ(e.uncertainty_budget->sources[0].source, "fit");
+  ASSERT_FALSE(e.cautions.empty());
+  EXPECT_EQ(e.cautions.back().code, "tolerances-not-propagated");
+  EXPECT_EQ(SeverityOf("tolerances-not-propagated"), Severity::kReducedConfidence);
+}
+
 TEST(SuppliedModes, PublishedBeamFrequenciesWithoutShapesGiveBackTheForce) {
   // [B] orders 1-3 of a pinned bar at 30 kN and [C] orders 1-3 of a
   // clamped bar without axial force, supplied as frequencies only (std

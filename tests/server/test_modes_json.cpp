@@ -64,6 +64,17 @@ TEST(ModesJson, ValidDocumentIsRead) {
   EXPECT_EQ(*out.plane, model::Direction::kLateral);
 }
 
+TEST(ModesJson, TheShippedExampleReads) {
+  model::Member member;
+  ASSERT_TRUE(LoadMemberFile(std::string(TAUT_EXAMPLES_DIR) + "/maltings-east-tie-2.json", &member).ok());
+  estimation::SuppliedModes out;
+  const Status s =
+      LoadSuppliedModesFile(std::string(TAUT_EXAMPLES_DIR) + "/maltings-east-tie-2-modes.json", member, &out);
+  ASSERT_TRUE(s.ok()) << s.message;
+  EXPECT_EQ(out.modes.size(), 3u);
+  EXPECT_EQ(out.channels.size(), 3u);
+}
+
 TEST(ModesJson, EveryRuleNamesItsPath) {
   json j;
   j = Valid(), j.erase("modes"), ExpectError(j, "$.modes", "required key is missing");

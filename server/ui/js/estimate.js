@@ -74,7 +74,7 @@ function budgetTable(b) {
       h('td', {class: 'num'}, kN(x.std_n, 3)),
       h('td', {class: 'num'}, `${num(100 * x.share, 1)} %`)));
   return h('div', null,
-      h('p', null, `Standard deviation of N ${kN(b.axial_force_std_n, 3)}: the fit ${kN(b.fit_std_n, 3)} and the member's tolerances ` +
+      h('p', null, `Half-width of the 95 % interval of N over 1.96: ${kN(b.axial_force_std_n, 3)}, from the fit ${kN(b.fit_std_n, 3)} and the member's tolerances ` +
         `${kN(b.tolerance_std_n, 3)}, in quadrature (${b.method}).`),
       h('table', {class: 'compact', id: 'uncertainty-budget'}, h('caption', null, 'Shares of the variance of the axial force'),
           h('thead', null, h('tr', null, ['Source', 'Tolerance (1 σ)', 'σ of N', 'Share'].map((t) => h('th', {scope: 'col'}, t)))),
