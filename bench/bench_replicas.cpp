@@ -54,7 +54,8 @@ std::string StartReplicas(const std::string& uri, int n,
   const std::string log = (std::filesystem::temp_directory_path() / "taut-bench-replicas.log").string();
   for (int i = 0; i < n; ++i) {
     procs->push_back(std::make_unique<taut::testing::ServeProcess>());
-    if (procs->back()->Start(uri, log, 1, {"--quiet"}) <= 0) std::abort();
+    if (procs->back()->Start(uri, log, 1, {"--quiet"}) <= 0)
+      std::exit(1);  // exit: the PostgreSQL server is stopped at exit
   }
   return log;
 }
@@ -88,7 +89,7 @@ const std::string& LoadedTemplate() {
     }
     taut::testing::ServeProcess loader;
     const int port = loader.Start(uri, "/dev/null", 1, {"--quiet"});
-    if (port <= 0) std::abort();
+    if (port <= 0) std::exit(1);  // exit: the PostgreSQL server is stopped at exit
     taut::testing::Hanger hanger;
     httplib::Client c("127.0.0.1", port);
     c.set_default_headers({{"Authorization", "Bearer " + token}});
@@ -100,7 +101,7 @@ const std::string& LoadedTemplate() {
     const std::string records = "/v1/members/" + json::parse(m->body)["id"].dump() + "/records";
     for (const std::string& csv : Records()) {
       auto r = c.Post(records, csv, "text/csv");
-      if (!r || r->status != 202) std::abort();
+      if (!r || r->status != 202) std::exit(1);  // exit: the PostgreSQL server is stopped at exit
     }
     WaitForJobs(uri);
     loader.Kill(SIGTERM);

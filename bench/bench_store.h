@@ -44,10 +44,12 @@ inline std::string Hex64(unsigned long long n) {
   return buf;
 }
 
+// exit, not abort: static destructors then stop a PostgreSQL server the
+// benchmark started (NewPostgresDatabase) instead of leaving it running.
 inline void Check(const taut::storage::StorageStatus& s, const char* what) {
   if (!s.ok()) {
     std::fprintf(stderr, "%s: %s\n", what, s.message.c_str());
-    std::abort();
+    std::exit(1);
   }
 }
 
@@ -66,7 +68,7 @@ inline std::string NewPostgresDatabase(const std::string& name, const std::strin
     if (!server.Start(&error)) std::fprintf(stderr, "PostgreSQL: %s\n", error.c_str());
     return server.port() > 0 && error.empty();
   }();
-  if (!started) std::abort();
+  if (!started) std::exit(1);
   taut::storage::PgConnection admin;
   Check(admin.Open(server.Uri("postgres")), "postgres");
   Check(admin.Exec("CREATE DATABASE " + name + (template_db.empty() ? "" : " TEMPLATE " + template_db)),

@@ -201,7 +201,7 @@ struct WorkerPool::Impl {
         const StorageStatus s = repo.RenewJobLease(id, owner, NowUnixMs(), options.job_lease.count());
         if (s.not_found()) {
           Log("level=warn job=" + std::to_string(id) +
-              " lease lost (another worker took the job over); its " + "result will not be stored");
+              " lease lost (another worker took the job over); its result will not be stored");
         } else if (!s.ok()) {
           Log("level=error job=" + std::to_string(id) + " lease renewal: " + s.message);
         }

@@ -16,6 +16,7 @@
 #include <set>
 #include <thread>
 
+#include "storage/postgres.h"
 #include "tests/storage/backend_fixture.h"
 #include "tests/storage/storage_test_support.h"
 
@@ -28,11 +29,14 @@ using testing::MakeFixture;
 using testing::SmallRecord;
 using testing::TempDbFile;
 
-class FaultTest : public ::testing::Test {
+// The step-by-step faults run on both backends (the fault hook is the
+// repository's, before each statement); the tests of SQLite's own locking,
+// triggers and file limits further down stay on SQLite.
+class BackendFaultTest : public testing::BackendTest {
  protected:
   void SetUp() override {
-    const StorageStatus s = OpenAndMigrate(db_, file_.path());
-    ASSERT_TRUE(s.ok()) << s.message;
+    testing::BackendTest::SetUp();
+    if (HasFatalFailure()) return;
     f_ = MakeFixture(repo_, "Foundry Wharf");
   }
   // Row counts of every table a write could touch.
@@ -55,11 +59,28 @@ class FaultTest : public ::testing::Test {
       if (s.ok()) return n - 1;
       EXPECT_EQ(s.sqlite_code, SQLITE_IOERR) << "step " << n << ": " << s.message;
       EXPECT_EQ(Snapshot(), before) << "half-written after a fault at step " << n;
-      EXPECT_EQ(sqlite3_get_autocommit(db_.handle()), 1) << "transaction left open at step " << n;
+      EXPECT_FALSE(db_.in_transaction()) << "transaction left open at step " << n;
+      if (postgres()) {
+        EXPECT_FALSE(db_.postgres()->InTransaction()) << "server-side transaction left open at step " << n;
+      } else {
+        EXPECT_EQ(sqlite3_get_autocommit(db_.handle()), 1) << "transaction left open at step " << n;
+      }
       unchanged();
     }
     ADD_FAILURE() << "operation never succeeded";
     return -1;
+  }
+  Repository repo_{db_};
+  Fixture f_;
+};
+TAUT_BOTH_BACKENDS(BackendFaultTest);
+
+class FaultTest : public ::testing::Test {
+ protected:
+  void SetUp() override {
+    const StorageStatus s = OpenAndMigrate(db_, file_.path());
+    ASSERT_TRUE(s.ok()) << s.message;
+    f_ = MakeFixture(repo_, "Foundry Wharf");
   }
   TempDbFile file_;
   Database db_;
@@ -67,7 +88,7 @@ class FaultTest : public ::testing::Test {
   Fixture f_;
 };
 
-TEST_F(FaultTest, RecordInsertFailingAtEachStepWritesNothing) {
+TEST_P(BackendFaultTest, RecordInsertFailingAtEachStepWritesNothing) {
   RecordInsertResult ins;
   const int steps =
       FailEachStep([&] { return repo_.InsertRecord(f_.org, SmallRecord(f_.member, 1, 10), 1, &ins); }, [] {});
@@ -76,7 +97,7 @@ TEST_F(FaultTest, RecordInsertFailingAtEachStepWritesNothing) {
   EXPECT_EQ(CountRows(db_, "job"), 1);
 }
 
-TEST_F(FaultTest, JobCompletionFailingAtEachStepLeavesTheJobRunning) {
+TEST_P(BackendFaultTest, JobCompletionFailingAtEachStepLeavesTheJobRunning) {
   RecordInsertResult ins;
   ASSERT_TRUE(repo_.InsertRecord(f_.org, SmallRecord(f_.member, 1, 10), 1, &ins).ok());
   Job j;
@@ -100,7 +121,7 @@ TEST_F(FaultTest, JobCompletionFailingAtEachStepLeavesTheJobRunning) {
   EXPECT_EQ(CountRows(db_, "estimate"), 1);
 }
 
-TEST_F(FaultTest, MemberCreateAndUpdateFailingAtEachStepWriteNothing) {
+TEST_P(BackendFaultTest, MemberCreateAndUpdateFailingAtEachStepWriteNothing) {
   Id m = 0;
   EXPECT_EQ(FailEachStep([&] { return repo_.CreateMember(f_.org, f_.structure, "west-tie-1", "{}", 5, &m); },
                          [] {}),
