@@ -705,6 +705,7 @@ Status IdentifyWithPrior(const model::Member& member, const ModalIdentification&
   est.fit.elements = elements;
   est.fit.axial_force_interval = n_method;
   est.fit.bending_stiffness_interval = ei_method;
+  est.fit.sag_ea_from_fitted_e = ctx.ea_from_fitted_e;
 
   est.fit.forward_model_calls = ctx.calls;
   MarkOtherPlaneModes(member, &est);

@@ -192,6 +192,12 @@ struct FitSummary {
   // The same for EI: "wald" (log-normal, from the std of ln EI) or
   // "profile" (the profile likelihood of ln EI, when wider).
   std::string bending_stiffness_interval = "wald";
+  // true when the sag and stretching term of the reported estimate used EA
+  // from the fitted E (EA = EA_nominal EI / EI_nominal,
+  // IdentifyOptions::sag_ea_from_fitted_e), false when it used the nominal
+  // E (the option off, or the data preferred it). Consumers that evaluate
+  // the fit's model again (tolerance_budget.h) follow the same rule.
+  bool sag_ea_from_fitted_e = false;
 };
 
 // The time-domain fit behind a "transient" estimate (identify_record.h).

@@ -49,6 +49,8 @@ struct Setup {
   bool range_left = false, range_right = false;  // not identifiable: range prior
   double r_left = 0.0, r_right = 0.0;            // estimate
   std::optional<double> axial_support_n_per_m;   // estimated: held
+  // EA of the sag term from the fitted E, as the fit did (FitSummary::sag_ea_from_fitted_e).
+  bool ea_from_fitted_e = false;
   bool UseShapes() const { return channels.size() >= 2; }
   int Unknowns() const { return 2 + free_left + free_right; }
 };
@@ -65,6 +67,13 @@ bool Residuals(const Setup& s, const model::ModalModel& model, const Eigen::Vect
   if (s.free_left) p.fixity_left = std::clamp(theta(k++), 0.0, 1.0);
   if (s.free_right) p.fixity_right = std::clamp(theta(k++), 0.0, 1.0);
   p.axial_support_stiffness_n_per_m = s.axial_support_n_per_m;
+  // The fit's EA rule (identify.h FitSummary::sag_ea_from_fitted_e): with EA
+  // from the fitted E, EA = E_fit A = EI A / I depends on the section's A / I,
+  // not on the nominal E, and a sensitivity that held the nominal EA would
+  // disagree with a refit by 5-10 % on a member whose sag couples EA in.
+  if (s.ea_from_fitted_e)
+    p.axial_rigidity_n =
+        member.AxialRigidity_n() * std::exp(theta(1)) / member.NominalBendingStiffness_nm2(s.plane);
   model::ModalResult res;
   ++*solves;
   if (!model.Solve(p, s.num_modes, &res).ok()) return false;
@@ -223,6 +232,7 @@ ToleranceTerms ComputeToleranceTerms(const model::Member& member, const Identify
   s.r_left = modal.fixity_left.value;
   s.r_right = modal.fixity_right.value;
   if (!modal.axial_support_ratio.fixed) s.axial_support_n_per_m = modal.axial_support_stiffness_n_per_m;
+  s.ea_from_fitted_e = modal.fit.sag_ea_from_fitted_e;
   for (const auto& m : modal.modes) {
     if (!m.paired || !m.measured.order || *m.measured.order < 1) continue;
     Setup::Pair p;
