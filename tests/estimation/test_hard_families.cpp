@@ -92,6 +92,19 @@ class HardFamilies : public ::testing::Test {
   std::filesystem::path dir_;
 };
 
+// A family of the reference with the given name, length [m], diameter [m],
+// force [N] and sample rate [Hz]; the rest as Family's defaults.
+Family Tie(const std::string& name, double length_m, double diameter_m, double force_n = Family{}.force_n,
+           double fs = Family{}.fs) {
+  Family f;
+  f.name = name;
+  f.length_m = length_m;
+  f.diameter_m = diameter_m;
+  f.force_n = force_n;
+  f.fs = fs;
+  return f;
+}
+
 bool HasCaution(const Estimate& e, const std::string& code) {
   for (const auto& c : e.cautions) {
     if (c.code == code) return true;
@@ -121,12 +134,7 @@ TEST_F(HardFamilies, ReferenceMatchesPinnedClosedForm) {
 // others (and below the noise): taut must number the visible modes from
 // their true orders, not call the lowest visible one the fundamental.
 TEST_F(HardFamilies, WeakFundamentalOnALongTie) {
-  Family f;
-  f.name = "weak-fundamental";
-  f.length_m = 30.0;
-  f.diameter_m = 0.03;
-  f.force_n = 2000.0;
-  f.fs = 100.0;
+  Family f = Tie("weak-fundamental", 30.0, 0.03, 2000.0, 100.0);
   f.gains = "{\"1\":-30,\"2\":-25}";
   f.seed = 5;
   Estimate e;
@@ -141,12 +149,7 @@ TEST_F(HardFamilies, WeakFundamentalOnALongTie) {
 // say that EI is far off its nominal value.
 TEST_F(HardFamilies, BendingStiffnessFarFromNominal) {
   for (double factor : {0.25, 12.0}) {
-    Family f;
-    f.name = "ei-x" + Num(factor);
-    f.length_m = 12.0;
-    f.diameter_m = 0.036;
-    f.force_n = factor < 1.0 ? 60000.0 : 20000.0;
-    f.fs = 200.0;
+    Family f = Tie("ei-x" + Num(factor), 12.0, 0.036, factor < 1.0 ? 60000.0 : 20000.0, 200.0);
     f.ei_factor = factor;
     Estimate e;
     const Status s = Identify(f, DeclaredMember(f), &e);
@@ -184,12 +187,7 @@ TEST_F(HardFamilies, RecordUnderTheWrongMemberIsRefused) {
 TEST_F(HardFamilies, FaultyChannelIsLeftOut) {
   for (const char* fault :
        {R"({"kind":"dead","channel":1})", R"({"kind":"clipped","channel":0,"clip_share":0.3})"}) {
-    Family f;
-    f.name = "faulty-channel";
-    f.length_m = 12.0;
-    f.diameter_m = 0.036;
-    f.force_n = 60000.0;
-    f.fs = 200.0;
+    Family f = Tie("faulty-channel", 12.0, 0.036, 60000.0, 200.0);
     f.fault = fault;
     Estimate e;
     const Status s = Identify(f, DeclaredMember(f), &e);
@@ -204,12 +202,7 @@ TEST_F(HardFamilies, FaultyChannelIsLeftOut) {
 // An ordinary record (12 m, 36 mm tie at 60 kN, all modes strong): within
 // 1 % of the truth, inside the interval, usable.
 TEST_F(HardFamilies, OrdinaryRecordStaysAccurate) {
-  Family f;
-  f.name = "ordinary";
-  f.length_m = 12.0;
-  f.diameter_m = 0.036;
-  f.force_n = 60000.0;
-  f.fs = 200.0;
+  Family f = Tie("ordinary", 12.0, 0.036, 60000.0, 200.0);
   Estimate e;
   const Status s = Identify(f, DeclaredMember(f), &e);
   ASSERT_TRUE(s.ok()) << s.message;
@@ -245,10 +238,7 @@ ModalIdentification ReferenceModes(const std::string& params, const model::Membe
 // the fixities trading off), verdict reduced-confidence, none refused.
 TEST_F(HardFamilies, RestrainedStrutInCompression) {
   for (double share : {0.3, 0.55, 0.8}) {
-    Family f;
-    f.name = "strut-" + std::to_string(static_cast<int>(std::lround(100 * share)));
-    f.length_m = 3.0;
-    f.diameter_m = 0.05;
+    Family f = Tie("strut-" + std::to_string(static_cast<int>(std::lround(100 * share))), 3.0, 0.05);
     f.fixity_left = 0.5;
     f.fixity_right = 0.7;
     f.fs = 512.0;
@@ -284,12 +274,7 @@ TEST_F(HardFamilies, RestrainedStrutInCompression) {
 // high, and the interval still holds the truth).
 TEST_F(HardFamilies, CrossAxisMixing) {
   for (double deg : {10.0, 18.0, 25.0}) {
-    Family f;
-    f.name = "cross-axis-" + std::to_string(static_cast<int>(deg));
-    f.length_m = 12.0;
-    f.diameter_m = 0.036;
-    f.force_n = 60000.0;
-    f.fs = 200.0;
+    Family f = Tie("cross-axis-" + std::to_string(static_cast<int>(deg)), 12.0, 0.036, 60000.0, 200.0);
     f.extra_json = "\"cross_axis_deg\":" + Num(deg) + ",\"ei_other_nm2\":" + Num(Ei(f)) +
                    ",\"k_other\":" + Num(Spring(f, 0.95));
     Estimate e;
@@ -321,12 +306,7 @@ TEST_F(HardFamilies, CrossAxisMixing) {
 // (the time-domain Wald interval of EI alone held the truth of 6 of 20
 // decays of the coverage study).
 TEST_F(HardFamilies, LargeAmplitudeDecay) {
-  Family f;
-  f.name = "decay";
-  f.length_m = 6.0;
-  f.diameter_m = 0.03;
-  f.force_n = 12000.0;
-  f.fs = 256.0;
+  Family f = Tie("decay", 6.0, 0.03, 12000.0, 256.0);
   f.duration_s = 10.0;
   const model::Member member = DeclaredMember(f);
   f.extra_json =
@@ -347,11 +327,7 @@ TEST_F(HardFamilies, LargeAmplitudeDecay) {
 // ones are left unpaired, marked other-plane with their order, named by the
 // info caution, and the force stays within 1 % of the truth.
 TEST_F(HardFamilies, OtherPlaneModesAreMarkedAndNotUsed) {
-  Family f;
-  f.name = "other-plane";
-  f.length_m = 12.0;
-  f.diameter_m = 0.036;
-  f.force_n = 60000.0;
+  Family f = Tie("other-plane", 12.0, 0.036, 60000.0);
   const model::Member member = DeclaredMember(f);
   std::string params = Params(f);
   params.pop_back();
@@ -422,11 +398,7 @@ TEST_F(HardFamilies, ReferenceSagMatchesIrvine) {
 // fitted E the force is closer to the truth, within 2 % and inside its
 // interval.
 TEST_F(HardFamilies, SagUsesTheFittedModulus) {
-  Family f;
-  f.name = "sag-e-off";
-  f.length_m = 30.0;
-  f.diameter_m = 0.03;
-  f.force_n = 25000.0;
+  Family f = Tie("sag-e-off", 30.0, 0.03, 25000.0);
   f.ei_factor = 0.7;
   model::Member member = DeclaredMember(f);
   for (auto& s : member.sensors) s.direction = model::Direction::kVertical;
