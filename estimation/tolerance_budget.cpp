@@ -382,12 +382,13 @@ void ApplyToleranceTerms(const model::Member& member, const ToleranceTerms& term
     const double extra = var_fit - scale * var_lin;
     if (extra > 1e-6 * var_fit) {
       // The reported interval holds more than the linear split: by design
-      // for two numberings or the time-domain floor (model choice) and a
+      // for two numberings, the two EA of the sag term or the time-domain
+      // floor (model choice) and a
       // profile-likelihood interval (nonlinearity); for a Wald interval the
       // fit's own covariance is wider than the split (it treats a fixity
       // the data leave open its own way, identify.cpp), said as such.
       const std::string& kind = e->fit.axial_force_interval;
-      if (kind == "hypotheses" || kind == "modal-floor") {
+      if (kind == "hypotheses" || kind == "modal-floor" || kind == "sag-stiffness") {
         src.push_back(FitSource(kBudgetModelChoice, "model choice (" + kind + ")", std::sqrt(extra)));
       } else if (kind == "profile") {
         src.push_back(

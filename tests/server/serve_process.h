@@ -76,6 +76,18 @@ class ServeProcess {
     if (pid_ > 0) ::kill(pid_, sig);
   }
 
+  // Stops the child (SIGSTOP) and returns once every thread of it has
+  // stopped (waitpid with WUNTRACED). kill() only queues the signal: a
+  // child still running for a moment after it could commit a write after
+  // the caller looked (seen once in test_service: a job counted running was
+  // done by the time of the SIGKILL). Returns false if it did not stop.
+  bool Stop() {
+    if (pid_ <= 0) return false;
+    ::kill(pid_, SIGSTOP);
+    int status = 0;
+    return waitpid(pid_, &status, WUNTRACED) == pid_ && WIFSTOPPED(status);
+  }
+
   // Sends `sig` and reaps the child; returns its wait status.
   int Kill(int sig) {
     int status = 0;

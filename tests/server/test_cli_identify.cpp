@@ -121,7 +121,9 @@ TEST_F(CliIdentify, TableShowsTheUncertaintyBudgetAndTheSimplifiedFormulas) {
   ASSERT_TRUE(j.contains("uncertainty_budget")) << out;
   double share = 0.0;
   for (const auto& x : j["uncertainty_budget"]["sources"]) share += x["share"].get<double>();
-  EXPECT_NEAR(share, 1.0, 1e-9);
+  // A rest of the fit's variance below 1e-6 of it is not listed
+  // (tolerance_budget.cpp), so the shares sum to 1 within 1e-6.
+  EXPECT_NEAR(share, 1.0, 1e-6);
   // The reported std of N is the budget's total (fit and tolerances in quadrature).
   EXPECT_NEAR(
       j["axial_force_n"]["std"].get<double>() / j["uncertainty_budget"]["axial_force_std_n"].get<double>(),

@@ -195,7 +195,7 @@ TEST_F(ReplicasTest, ThreeReplicasOneKilledEveryJobDoneOnceAlertsAndDeliveriesOn
   const std::string victim = ":" + std::to_string(replicas_[2].pid()) + ":";
   std::string held_job;
   for (int k = 0; k < 2000 && held_job.empty(); ++k) {
-    replicas_[2].Signal(SIGSTOP);
+    ASSERT_TRUE(replicas_[2].Stop());
     const Rows rows =
         Query("SELECT id FROM job WHERE state = 'running' AND lease_owner LIKE '%" + victim + "%'");
     if (!rows.empty()) {

@@ -248,7 +248,7 @@ TEST_P(ServiceTest, SigkillWithQueuedAndRunningJobsLosesNothing) {
   };
   bool caught = false;
   for (int k = 0; k < 400 && !caught; ++k) {
-    serve_.Signal(SIGSTOP);
+    ASSERT_TRUE(serve_.Stop());
     caught = count(storage::JobState::kRunning) == 1 && count(storage::JobState::kQueued) > 0;
     if (!caught) {
       serve_.Signal(SIGCONT);
