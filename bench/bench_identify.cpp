@@ -108,6 +108,21 @@ void BM_IdentifyFromModesWithTolerances(benchmark::State& state) {
 }
 BENCHMARK(BM_IdentifyFromModesWithTolerances)->Unit(benchmark::kMillisecond);
 
+// The record of the record-path benchmarks below, written to `path`: 300 s
+// at 512 Hz of the bench member's lowest `modes` modes at N = 30 kN,
+// fixities 0.4 / 0.6 (tests/server/synthetic_record.h).
+bool WriteBenchRecord(const taut::model::Member& member, int modes, const std::string& path) {
+  taut::model::ModalParameters p;
+  p.axial_force_n = 30000.0;
+  p.fixity_left = 0.4;
+  p.fixity_right = 0.6;
+  taut::testing::RecordSpec spec;
+  spec.duration_s = 300.0;
+  spec.sample_rate_hz = 512.0;
+  spec.modes = modes;
+  return taut::testing::WriteSyntheticRecord(path, member, Direction::kVertical, p, spec);
+}
+
 // The whole `identify` path of the issue: a 300 s, 3-channel, 512 Hz record
 // (synthesised once, tests/server/synthetic_record.h: the lowest
 // state.range(0) modes of the tie at N = 30 kN, fixities 0.4 / 0.6, 1 %
@@ -117,16 +132,8 @@ BENCHMARK(BM_IdentifyFromModesWithTolerances)->Unit(benchmark::kMillisecond);
 // target <= 150 ms CPU median read to result).
 void BM_IdentifyFromRecord(benchmark::State& state) {
   const auto member = BenchMember();
-  taut::model::ModalParameters p;
-  p.axial_force_n = 30000.0;
-  p.fixity_left = 0.4;
-  p.fixity_right = 0.6;
-  taut::testing::RecordSpec spec;
-  spec.duration_s = 300.0;
-  spec.sample_rate_hz = 512.0;
-  spec.modes = static_cast<int>(state.range(0));
   const std::string path = (std::filesystem::temp_directory_path() / "taut-bench-identify.csv").string();
-  if (!taut::testing::WriteSyntheticRecord(path, member, Direction::kVertical, p, spec)) {
+  if (!WriteBenchRecord(member, static_cast<int>(state.range(0)), path)) {
     state.SkipWithError("cannot write the synthetic record");
     return;
   }
@@ -188,14 +195,6 @@ BENCHMARK(BM_IdentifyFromRecord)->Arg(5)->Arg(10)->Unit(benchmark::kMillisecond)
 // Compare its median with BM_IdentifyFromRecord's in one run.
 void BM_ToleranceTermsOnRecord(benchmark::State& state) {
   const auto member = BenchMember();
-  taut::model::ModalParameters p;
-  p.axial_force_n = 30000.0;
-  p.fixity_left = 0.4;
-  p.fixity_right = 0.6;
-  taut::testing::RecordSpec spec;
-  spec.duration_s = 300.0;
-  spec.sample_rate_hz = 512.0;
-  spec.modes = static_cast<int>(state.range(0));
   const std::string path = (std::filesystem::temp_directory_path() / "taut-bench-tolerances.csv").string();
   taut::estimation::RecordReadOptions ro;
   ro.member = &member;
@@ -203,7 +202,7 @@ void BM_ToleranceTermsOnRecord(benchmark::State& state) {
   taut::estimation::ModalIdentification modes;
   taut::estimation::Estimate modal;
   const taut::estimation::IdentifyRecordOptions io;
-  if (!taut::testing::WriteSyntheticRecord(path, member, Direction::kVertical, p, spec) ||
+  if (!WriteBenchRecord(member, static_cast<int>(state.range(0)), path) ||
       !taut::estimation::ReadRecordCsv(path, ro, &record).ok() ||
       !taut::estimation::IdentifyModes(record, io.modal, &modes).ok() ||
       !taut::estimation::IdentifyFromModes(member, modes, io.identify, &modal).ok()) {

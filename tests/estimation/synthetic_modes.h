@@ -8,6 +8,7 @@
 #include <vector>
 
 #include "estimation/modes.h"
+#include "model/member.h"
 #include "model/modal.h"
 
 namespace taut::estimation::testing {
@@ -16,6 +17,29 @@ namespace taut::estimation::testing {
 // error in the synthetic data is negligible against the frequency stds
 // (Hermite cubic frequencies converge as h^4).
 inline constexpr int kTruthElements = 160;
+
+// A round steel bar (E 200 GPa, 7850 kg/m3: the usual structural-steel
+// values) of `length` and `diameter` with sensors at `sensor_share` of the
+// length, all oriented in plane `d`, each with `sensor_mass` kg; both ends
+// of kind `left` / `right`. Shared by the estimation tests.
+inline model::Member SteelBar(double length, double diameter, model::Direction d,
+                              const std::vector<double>& sensor_share,
+                              model::RotationEnd::Kind left = model::RotationEnd::Kind::kElastic,
+                              model::RotationEnd::Kind right = model::RotationEnd::Kind::kElastic,
+                              double sensor_mass = 0.03) {
+  model::Member m;
+  m.id = "test-bar";
+  m.length_m = length;
+  m.section.diameter_m = diameter;
+  m.elastic_modulus_pa = 2.0e11;
+  m.density_kg_m3 = 7850;
+  m.left.kind = left;
+  m.right.kind = right;
+  for (size_t i = 0; i < sensor_share.size(); ++i) {
+    m.sensors.push_back({"s" + std::to_string(i + 1), sensor_share[i] * length, sensor_mass, d});
+  }
+  return m;
+}
 
 struct SyntheticOptions {
   int modes = 4;

@@ -38,18 +38,7 @@ constexpr double kPi = std::numbers::pi;
 
 model::Member Bar(double length, double diameter, Direction d, std::vector<double> sensor_share,
                   RotationEnd::Kind ends, double sensor_mass) {
-  model::Member m;
-  m.id = "test-bar";
-  m.length_m = length;
-  m.section.diameter_m = diameter;
-  m.elastic_modulus_pa = 2.0e11;
-  m.density_kg_m3 = 7850;
-  m.left.kind = ends;
-  m.right.kind = ends;
-  for (size_t i = 0; i < sensor_share.size(); ++i) {
-    m.sensors.push_back({"s" + std::to_string(i + 1), sensor_share[i] * length, sensor_mass, d});
-  }
-  return m;
+  return testing::SteelBar(length, diameter, d, sensor_share, ends, ends, sensor_mass);
 }
 
 const InputSensitivity& Input(const ToleranceTerms& t, ResolvedTolerance::Kind kind) {
